@@ -1,0 +1,508 @@
+"""Turn a StudySpec into DICOM datasets: pure (no I/O) and deterministic.
+
+* CT studies: X-Ray Radiation Dose SR, root TID 10011 (TID 10012 accumulated data,
+  TID 10013 per acquisition).
+* Radiography, fluoroscopy, interventional and mammography studies: the same SOP class with
+  root TID 10001 (TID 10002 per plane with TID 10004/10005/10007, TID 10003 per event).
+* Units that send no dose report: CR Image Storage objects carrying the dose attributes of
+  the X-Ray Acquisition Dose module in their headers, with a tiny pixel matrix.
+* A Basic Text SR that is not a dose report (for the corpus's "not a dose object" files).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from pydicom.dataset import Dataset, FileMetaDataset
+from pydicom.sequence import Sequence
+from pydicom.uid import ExplicitVRLittleEndian, UID
+
+from pipeline import concepts as C
+
+from .sampling import device_observer_uid, uid
+from .scenario import DeviceSpec, Scenario
+from .specs import CtEvent, ProjectionEvent, ReportSpec, StudySpec
+from .sr import (
+    HAS_CONCEPT_MOD,
+    HAS_OBS_CONTEXT,
+    HAS_PROPERTIES,
+    code_item,
+    code_sequence_item,
+    container,
+    datetime_item,
+    format_ds,
+    num_item,
+    text_item,
+    uid_item,
+)
+
+__all__ = [
+    "BASIC_TEXT_SR",
+    "CR_IMAGE",
+    "IMPLEMENTATION_CLASS_UID",
+    "XRAY_RADIATION_DOSE_SR",
+    "make_basic_text_sr",
+    "make_cr_image",
+    "make_ct_rdsr",
+    "make_dataset",
+    "make_projection_rdsr",
+]
+
+XRAY_RADIATION_DOSE_SR = UID("1.2.840.10008.5.1.4.1.1.88.67")
+BASIC_TEXT_SR = UID("1.2.840.10008.5.1.4.1.1.88.11")
+CR_IMAGE = UID("1.2.840.10008.5.1.4.1.1.1")
+IMPLEMENTATION_CLASS_UID = UID(uid("kerma-ledger", "implementation-class", 1))
+IMPLEMENTATION_VERSION = "KERMALEDGER01"
+
+_CT_KIND = {
+    "localizer": C.CONSTANT_ANGLE_ACQUISITION,
+    "spiral": C.SPIRAL_ACQUISITION,
+    "sequenced": C.SEQUENCED_ACQUISITION,
+    "stationary": C.STATIONARY_ACQUISITION_CT,
+}
+_PHANTOM = {"head": C.IEC_HEAD_DOSIMETRY_PHANTOM, "body": C.IEC_BODY_DOSIMETRY_PHANTOM}
+_EVENT_TYPE = {
+    "fluoroscopy": C.FLUOROSCOPY,
+    "stationary": C.STATIONARY_ACQUISITION,
+    "stepping": C.STEPPING_ACQUISITION,
+    "rotational": C.ROTATIONAL_ACQUISITION,
+}
+_PLANE = {"single": C.SINGLE_PLANE, "A": C.PLANE_A, "B": C.PLANE_B}
+_MATERIAL = {"Al": C.ALUMINUM, "Cu": C.COPPER, "Rh": C.RHODIUM, "Mo": C.MOLYBDENUM,
+             "W": C.TUNGSTEN, "Ag": C.SILVER}
+_MATERIAL_TERM = {"Al": "ALUMINUM", "Cu": "COPPER", "Rh": "RHODIUM", "Mo": "MOLYBDENUM",
+                  "W": "TUNGSTEN", "Ag": "SILVER"}
+_VIEW = {"CC": ("399162004", "SCT", "cranio-caudal"),
+         "MLO": ("399368009", "SCT", "medio-lateral oblique")}
+_SIDE = {"L": C.LEFT, "R": C.RIGHT}
+
+
+# --- header modules -------------------------------------------------------------------------
+
+def _file_meta(sop_class: UID, sop_instance: str) -> FileMetaDataset:
+    meta = FileMetaDataset()
+    meta.MediaStorageSOPClassUID = sop_class
+    meta.MediaStorageSOPInstanceUID = sop_instance
+    meta.TransferSyntaxUID = ExplicitVRLittleEndian
+    meta.ImplementationClassUID = IMPLEMENTATION_CLASS_UID
+    meta.ImplementationVersionName = IMPLEMENTATION_VERSION
+    return meta
+
+
+def _da(d: dt.date) -> str:
+    return d.strftime("%Y%m%d")
+
+
+def _tm(t: dt.datetime) -> str:
+    return t.strftime("%H%M%S")
+
+
+def _age_string(age_years: float) -> str:
+    """Patient's Age (AS, PS3.5): nnnD / nnnW / nnnM / nnnY."""
+    if age_years >= 2:
+        return f"{int(age_years):03d}Y"
+    months = int(age_years * 12)
+    if months >= 1:
+        return f"{months:03d}M"
+    return f"{max(1, int(age_years * 52)):03d}W"
+
+
+def _base(scenario: Scenario, spec: StudySpec, report: ReportSpec, sop_class: UID,
+          modality: str, series_number: int) -> Dataset:
+    device = scenario.device(spec.device)
+    site = scenario.sites[device.site]
+    ds = Dataset()
+    ds.file_meta = _file_meta(sop_class, report.sop_instance_uid)
+    ds.SpecificCharacterSet = "ISO_IR 100"
+    ds.InstanceCreationDate = _da(report.content_time.date())
+    ds.InstanceCreationTime = _tm(report.content_time)
+    ds.SOPClassUID = sop_class
+    ds.SOPInstanceUID = report.sop_instance_uid
+    ds.TimezoneOffsetFromUTC = "+0000"
+    ds.StudyDate = _da(spec.study_datetime.date())
+    ds.StudyTime = _tm(spec.study_datetime)
+    ds.ContentDate = _da(report.content_time.date())
+    ds.ContentTime = _tm(report.content_time)
+    ds.AccessionNumber = spec.accession
+    ds.Modality = modality
+    ds.Manufacturer = device.manufacturer
+    ds.InstitutionName = site.institution
+    ds.InstitutionAddress = site.address
+    ds.ReferringPhysicianName = ""
+    ds.StationName = device.station_name
+    ds.StudyDescription = spec.study_description
+    ds.InstitutionalDepartmentName = device.department
+    ds.ManufacturerModelName = device.model
+    p = spec.patient
+    ds.PatientName = p.name
+    ds.PatientID = p.patient_id
+    ds.IssuerOfPatientID = p.issuer
+    ds.PatientBirthDate = _da(p.birth_date)
+    ds.PatientSex = p.sex
+    ds.PatientAge = _age_string(spec.age_years)
+    if p.height_m is not None:
+        ds.PatientSize = format_ds(p.height_m)
+    if p.weight_kg is not None:
+        ds.PatientWeight = format_ds(p.weight_kg)
+    ds.DeviceSerialNumber = device.serial
+    ds.SoftwareVersions = device.software
+    ds.StudyInstanceUID = spec.study_uid
+    ds.SeriesInstanceUID = report.series_instance_uid
+    ds.StudyID = f"S{spec.index:07d}"
+    ds.SeriesNumber = series_number
+    ds.InstanceNumber = report.instance_number
+    return ds
+
+
+def _sr_document(ds: Dataset, device: DeviceSpec) -> None:
+    """SR Document Series and General modules' remaining attributes (PS3.3 C.17.1, C.17.2)."""
+    ds.ReferencedPerformedProcedureStepSequence = Sequence()
+    ds.CompletionFlag = "COMPLETE"
+    ds.VerificationFlag = "UNVERIFIED"
+    ds.PerformedProcedureCodeSequence = Sequence()
+
+
+def _observer_context(scenario: Scenario, device: DeviceSpec) -> list[Dataset]:
+    """TID 1002 Observer Context with TID 1004 device observer attributes."""
+    return [
+        code_item(C.OBSERVER_TYPE, C.DEVICE, HAS_OBS_CONTEXT),
+        uid_item(C.DEVICE_OBSERVER_UID, device_observer_uid(scenario, device.id), HAS_OBS_CONTEXT),
+        text_item(C.DEVICE_OBSERVER_NAME, device.station_name, HAS_OBS_CONTEXT),
+        text_item(C.DEVICE_OBSERVER_MANUFACTURER, device.manufacturer, HAS_OBS_CONTEXT),
+        text_item(C.DEVICE_OBSERVER_MODEL_NAME, device.model, HAS_OBS_CONTEXT),
+        text_item(C.DEVICE_OBSERVER_SERIAL_NUMBER, device.serial, HAS_OBS_CONTEXT),
+        text_item(C.DEVICE_OBSERVER_PHYSICAL_LOCATION, device.location, HAS_OBS_CONTEXT),
+        code_item(C.DEVICE_ROLE_IN_PROCEDURE, C.IRRADIATING_DEVICE, HAS_OBS_CONTEXT),
+    ]
+
+
+def _scope(spec: StudySpec) -> Dataset:
+    return code_item(C.SCOPE_OF_ACCUMULATION, C.SCOPE_STUDY, HAS_OBS_CONTEXT, children=[
+        uid_item(C.STUDY_INSTANCE_UID, spec.study_uid, HAS_PROPERTIES)])
+
+
+def _procedure_reported(procedure) -> Dataset:
+    return code_item(C.PROCEDURE_REPORTED, procedure, HAS_CONCEPT_MOD, children=[
+        code_item(C.HAS_INTENT, C.DIAGNOSTIC_INTENT, HAS_CONCEPT_MOD)])
+
+
+def _root(ds: Dataset, template: str, children: list[Dataset]) -> None:
+    ds.ValueType = "CONTAINER"
+    ds.ConceptNameCodeSequence = Sequence([code_sequence_item(C.XRAY_RADIATION_DOSE_REPORT)])
+    ds.ContinuityOfContent = "SEPARATE"
+    tpl = Dataset()
+    tpl.MappingResource = "DCMR"
+    tpl.TemplateIdentifier = template
+    ds.ContentTemplateSequence = Sequence([tpl])
+    ds.ContentSequence = Sequence(children)
+
+
+# --- CT: TID 10011 --------------------------------------------------------------------------
+
+def _ct_event(e: CtEvent) -> Dataset:
+    source = [
+        text_item(C.IDENTIFICATION_OF_XRAY_SOURCE, "A"),
+        num_item(C.KVP, e.kvp, C.UNIT_KV),
+        num_item(C.MAXIMUM_XRAY_TUBE_CURRENT, e.max_tube_current_ma, C.UNIT_MA),
+        num_item(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
+    ]
+    if e.rotation_time_s is not None and e.kind in ("spiral", "sequenced"):
+        source.append(num_item(C.EXPOSURE_TIME_PER_ROTATION, e.rotation_time_s, C.UNIT_S))
+    params = [
+        num_item(C.EXPOSURE_TIME, e.exposure_time_s, C.UNIT_S),
+        num_item(C.SCANNING_LENGTH, e.scanning_length_mm, C.UNIT_MM),
+        num_item(C.NOMINAL_SINGLE_COLLIMATION_WIDTH, e.single_collimation_mm, C.UNIT_MM),
+        num_item(C.NOMINAL_TOTAL_COLLIMATION_WIDTH, e.total_collimation_mm, C.UNIT_MM),
+    ]
+    if e.pitch_factor is not None:
+        params.append(num_item(C.PITCH_FACTOR, e.pitch_factor, C.UNIT_RATIO))
+    params += [
+        num_item(C.NUMBER_OF_XRAY_SOURCES, 1, C.UNIT_XRAY_SOURCES),
+        container(C.CT_XRAY_SOURCE_PARAMETERS, source),
+    ]
+    children = [
+        text_item(C.ACQUISITION_PROTOCOL, e.protocol),
+        code_item(C.TARGET_REGION, e.target_region),
+        code_item(C.CT_ACQUISITION_TYPE, _CT_KIND[e.kind]),
+        uid_item(C.IRRADIATION_EVENT_UID, e.event_uid),
+        datetime_item(C.DATETIME_STARTED, e.started),
+        container(C.CT_ACQUISITION_PARAMETERS, params),
+    ]
+    if e.ctdivol_mgy is not None:
+        children.append(container(C.CT_DOSE, [
+            num_item(C.MEAN_CTDIVOL, e.ctdivol_mgy, C.UNIT_MGY),
+            code_item(C.CTDIW_PHANTOM_TYPE, _PHANTOM[e.phantom]),
+            num_item(C.DLP, e.dlp_mgy_cm, C.UNIT_MGY_CM),
+        ]))
+    return container(C.CT_ACQUISITION, children)
+
+
+def make_ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """X-Ray Radiation Dose SR with root TID 10011 for the first `report.n_events` events."""
+    device = scenario.device(spec.device)
+    ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
+    ds.SeriesDescription = "Radiation Dose Information"
+    _sr_document(ds, device)
+    events = spec.ct_events[: report.n_events]
+    dlp_total = sum(e.dlp_mgy_cm for e in events if e.dlp_mgy_cm is not None)
+    children = [
+        _procedure_reported(C.COMPUTED_TOMOGRAPHY_XRAY),
+        *_observer_context(scenario, device),
+        datetime_item(C.START_OF_XRAY_IRRADIATION, events[0].started, HAS_OBS_CONTEXT),
+        datetime_item(C.END_OF_XRAY_IRRADIATION, events[-1].started
+                      + dt.timedelta(seconds=max(1, int(events[-1].exposure_time_s))),
+                      HAS_OBS_CONTEXT),
+        _scope(spec),
+        container(C.CT_ACCUMULATED_DOSE_DATA, [
+            num_item(C.TOTAL_NUMBER_OF_IRRADIATION_EVENTS, len(events), C.UNIT_EVENTS),
+            num_item(C.CT_DLP_TOTAL, round(dlp_total, 4), C.UNIT_MGY_CM),
+        ]),
+        *(_ct_event(e) for e in events),
+        code_item(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION),
+    ]
+    _root(ds, "10011", children)
+    return ds
+
+
+# --- projection: TID 10001 ------------------------------------------------------------------
+
+def _gy_m2(gy_cm2: float) -> float:
+    """Gy.cm2 -> Gy.m2 (1 Gy.m2 = 1e4 Gy.cm2), as PS3.16 TID 10003/10007 prescribe."""
+    return gy_cm2 / 1e4
+
+
+def _gy(mgy: float) -> float:
+    return mgy / 1e3
+
+
+def _filters(e: ProjectionEvent) -> Dataset:
+    return container(C.XRAY_FILTERS, [
+        code_item(C.XRAY_FILTER_TYPE, C.FLAT_FILTER),
+        code_item(C.XRAY_FILTER_MATERIAL, _MATERIAL[e.filter_material]),
+        num_item(C.XRAY_FILTER_THICKNESS_MINIMUM, e.filter_thickness_mm, C.UNIT_MM),
+        num_item(C.XRAY_FILTER_THICKNESS_MAXIMUM, e.filter_thickness_mm, C.UNIT_MM),
+    ])
+
+
+def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Dataset:
+    children = [
+        code_item(C.ACQUISITION_PLANE, _PLANE[e.plane], HAS_CONCEPT_MOD),
+        uid_item(C.IRRADIATION_EVENT_UID, e.event_uid),
+        datetime_item(C.DATETIME_STARTED, e.started),
+        code_item(C.IRRADIATION_EVENT_TYPE, _EVENT_TYPE[e.event_type]),
+        text_item(C.ACQUISITION_PROTOCOL, e.protocol),
+    ]
+    if e.anatomy is not None:
+        mods = [code_item(C.LATERALITY, _SIDE[e.laterality], HAS_CONCEPT_MOD)] if e.laterality else None
+        children.append(code_item(C.TARGET_REGION, e.anatomy, children=mods))
+    if is_mammo and e.view in _VIEW:
+        children.append(code_item(C.IMAGE_VIEW, _VIEW[e.view]))
+    if e.entrance_exposure_mgy is not None:
+        children.append(num_item(C.ENTRANCE_EXPOSURE_AT_RP, e.entrance_exposure_mgy, C.UNIT_MGY))
+    if e.dap_gy_cm2 is not None:
+        children.append(num_item(C.DOSE_AREA_PRODUCT, _gy_m2(e.dap_gy_cm2), C.UNIT_GY_M2))
+    # TID 10003A detector data
+    if e.exposure_index is not None:
+        children += [
+            num_item(C.EXPOSURE_INDEX, e.exposure_index, C.UNIT_NONE),
+            num_item(C.TARGET_EXPOSURE_INDEX, e.target_exposure_index, C.UNIT_NONE),
+            num_item(C.DEVIATION_INDEX, e.deviation_index, C.UNIT_NONE),
+        ]
+    # TID 10003B source data
+    if e.dose_rp_mgy is not None:
+        children += [
+            num_item(C.DOSE_RP, _gy(e.dose_rp_mgy), C.UNIT_GY),
+            code_item(C.REFERENCE_POINT_DEFINITION, rp_definition),
+        ]
+    if e.agd_mgy is not None:
+        children.append(num_item(C.AVERAGE_GLANDULAR_DOSE, e.agd_mgy, C.UNIT_MGY))
+    if e.event_type == "fluoroscopy":
+        children.append(code_item(C.FLUORO_MODE, C.PULSED))
+    if e.pulse_rate_per_s is not None:
+        children.append(num_item(C.PULSE_RATE, e.pulse_rate_per_s, C.UNIT_PULSE_PER_S))
+    if e.number_of_pulses is not None:
+        children.append(num_item(C.NUMBER_OF_PULSES, e.number_of_pulses, C.UNIT_NONE))
+    if e.pulse_width_ms is not None:
+        children.append(num_item(C.PULSE_WIDTH, e.pulse_width_ms, C.UNIT_MS))
+    if e.irradiation_duration_s is not None:
+        children.append(num_item(C.IRRADIATION_DURATION, e.irradiation_duration_s, C.UNIT_S))
+    children += [
+        num_item(C.KVP, e.kvp, C.UNIT_KV),
+        num_item(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
+    ]
+    if e.exposure_time_ms is not None:
+        children.append(num_item(C.EXPOSURE_TIME, e.exposure_time_ms, C.UNIT_MS))
+    if e.exposure_uas is not None:
+        children.append(num_item(C.EXPOSURE, e.exposure_uas, C.UNIT_UAS))
+    if e.anode is not None:
+        children.append(code_item(C.ANODE_TARGET_MATERIAL, _MATERIAL[e.anode]))
+    if e.filter_material is not None:
+        children.append(_filters(e))
+    if e.hvl_mm is not None:
+        children.append(num_item(C.HALF_VALUE_LAYER, e.hvl_mm, C.UNIT_MM))
+    if e.field_area_m2 is not None:
+        children.append(num_item(C.COLLIMATED_FIELD_AREA, e.field_area_m2, C.UNIT_M2))
+    # TID 10003C mechanical data
+    if e.primary_angle_deg is not None:
+        children += [
+            num_item(C.POSITIONER_PRIMARY_ANGLE, e.primary_angle_deg, C.UNIT_DEG),
+            num_item(C.POSITIONER_SECONDARY_ANGLE, e.secondary_angle_deg, C.UNIT_DEG),
+        ]
+    if e.compressed_thickness_mm is not None:
+        children.append(num_item(C.COMPRESSION_THICKNESS, e.compressed_thickness_mm, C.UNIT_MM))
+    if e.source_to_isocenter_mm is not None:
+        children.append(num_item(C.DISTANCE_SOURCE_TO_ISOCENTER, e.source_to_isocenter_mm, C.UNIT_MM))
+    if e.sid_mm is not None:
+        children.append(num_item(C.DISTANCE_SOURCE_TO_DETECTOR, e.sid_mm, C.UNIT_MM))
+    return container(C.IRRADIATION_EVENT_XRAY_DATA, children)
+
+
+def _accumulated(plane: str, events: list[ProjectionEvent], modality: str, rp_definition) -> Dataset:
+    """TID 10002 for one plane, with TID 10004 / 10005 / 10007 as the device type requires."""
+    children = [code_item(C.ACQUISITION_PLANE, _PLANE[plane], HAS_CONCEPT_MOD)]
+    if modality == "MG":
+        for side in ("L", "R"):
+            agd = [e.agd_mgy for e in events if e.laterality == side and e.agd_mgy is not None]
+            if agd:
+                children.append(num_item(C.ACCUMULATED_AVERAGE_GLANDULAR_DOSE, round(sum(agd), 6),
+                                         C.UNIT_MGY, children=[
+                                             code_item(C.LATERALITY, _SIDE[side], HAS_CONCEPT_MOD)]))
+        return container(C.ACCUMULATED_XRAY_DOSE_DATA, children)
+
+    def total(values) -> float:
+        return round(sum(v for v in values if v is not None), 6)
+
+    if modality in ("RF", "XA"):
+        fluoro = [e for e in events if e.event_type == "fluoroscopy"]
+        acq = [e for e in events if e.event_type != "fluoroscopy"]
+        children += [
+            num_item(C.FLUORO_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in fluoro)), C.UNIT_GY_M2),
+            num_item(C.FLUORO_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in fluoro)), C.UNIT_GY),
+            num_item(C.TOTAL_FLUORO_TIME, total(e.irradiation_duration_s for e in fluoro), C.UNIT_S),
+            num_item(C.ACQUISITION_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in acq)), C.UNIT_GY_M2),
+            num_item(C.ACQUISITION_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in acq)), C.UNIT_GY),
+            num_item(C.TOTAL_ACQUISITION_TIME, total(e.irradiation_duration_s for e in acq), C.UNIT_S),
+            num_item(C.TOTAL_NUMBER_OF_RADIOGRAPHIC_FRAMES,
+                     sum(e.number_of_pulses or 1 for e in acq), C.UNIT_NONE),
+        ]
+    children += [
+        num_item(C.DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in events)), C.UNIT_GY_M2),
+        num_item(C.DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in events)), C.UNIT_GY),
+        code_item(C.REFERENCE_POINT_DEFINITION, rp_definition),
+    ]
+    return container(C.ACCUMULATED_XRAY_DOSE_DATA, children)
+
+
+def make_projection_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """X-Ray Radiation Dose SR with root TID 10001 (projection radiography, fluoroscopy,
+    interventional or mammography) for the first `report.n_events` events."""
+    device = scenario.device(spec.device)
+    modality = device.modality
+    ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
+    ds.SeriesDescription = "Radiation Dose Information"
+    _sr_document(ds, device)
+    events = list(spec.projection_events[: report.n_events])
+    is_mammo = modality == "MG"
+    rp = C.RP_15CM_FROM_ISOCENTER if modality in ("RF", "XA") else C.RP_AT_SURFACE_OF_PATIENT
+    children = [_procedure_reported(C.MAMMOGRAPHY if is_mammo else C.PROJECTION_XRAY)]
+    if not is_mammo:
+        kind = C.FLUORO_GUIDED_PROJECTION_SYSTEM if modality in ("RF", "XA") \
+            else C.INTEGRATED_PROJECTION_SYSTEM
+        children.append(code_item(C.ACQUISITION_DEVICE_TYPE, kind))
+    children += [*_observer_context(scenario, device), _scope(spec)]
+    children += [
+        code_item(C.XRAY_DETECTOR_DATA_AVAILABLE, C.YES if modality in ("DX", "CR") else C.NO),
+        code_item(C.XRAY_SOURCE_DATA_AVAILABLE, C.YES),
+        code_item(C.XRAY_MECHANICAL_DATA_AVAILABLE, C.YES),
+    ]
+    planes = ["A", "B"] if device.biplane else ["single"]
+    for plane in planes:
+        mine = [e for e in events if e.plane == plane]
+        children.append(_accumulated(plane, mine, modality, rp))
+    children += [_projection_event(e, is_mammo, rp) for e in events]
+    children.append(code_item(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION))
+    _root(ds, "10001", children)
+    return ds
+
+
+# --- image headers (units that send no dose report) -----------------------------------------
+
+def make_cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """CR Image Storage object for one radiograph, dose in the header (PS3.3 C.8.1, C.8.7.8).
+
+    (0018,115E) Image and Fluoroscopy Area Dose Product is in dGy.cm2 (1 dGy.cm2 =
+    0.1 Gy.cm2); (0040,8302) Entrance Dose in mGy is in mGy.
+    """
+    e = spec.projection_events[report.n_events - 1]
+    ds = _base(scenario, spec, report, CR_IMAGE, "CR", report.n_events)
+    ds.ImageType = ["ORIGINAL", "PRIMARY"]
+    ds.AcquisitionDate = _da(e.started.date())
+    ds.AcquisitionTime = _tm(e.started)
+    ds.SeriesDescription = e.protocol
+    ds.ProtocolName = e.protocol
+    ds.BodyPartExamined = e.body_part
+    ds.ViewPosition = e.view
+    ds.PatientOrientation = ""
+    ds.KVP = format_ds(e.kvp)
+    ds.DistanceSourceToDetector = format_ds(e.sid_mm)
+    ds.ExposureTime = str(int(round(e.exposure_time_ms)))
+    ds.XRayTubeCurrent = str(int(round(e.tube_current_ma)))
+    ds.Exposure = str(int(round(e.exposure_uas / 1000.0)))
+    ds.ExposureInuAs = str(int(round(e.exposure_uas)))
+    ds.ImageAndFluoroscopyAreaDoseProduct = format_ds(round(e.dap_gy_cm2 * 10.0, 6))
+    ds.EntranceDoseInmGy = format_ds(e.dose_rp_mgy)
+    ds.EntranceDoseDerivation = "IAK"
+    ds.ExposureIndex = format_ds(e.exposure_index)
+    ds.TargetExposureIndex = format_ds(e.target_exposure_index)
+    ds.DeviationIndex = format_ds(e.deviation_index)
+    ds.IrradiationEventUID = e.event_uid
+    ds.ImagerPixelSpacing = ["0.2", "0.2"]
+    ds.PixelSpacing = ["0.2", "0.2"]
+    ds.SamplesPerPixel = 1
+    ds.PhotometricInterpretation = "MONOCHROME2"
+    ds.Rows = 8
+    ds.Columns = 8
+    ds.BitsAllocated = 16
+    ds.BitsStored = 12
+    ds.HighBit = 11
+    ds.PixelRepresentation = 0
+    ds.PixelData = bytes(range(128))
+    return ds
+
+
+def make_basic_text_sr(scenario: Scenario, spec: StudySpec, sop_instance_uid: str) -> Dataset:
+    """A valid Basic Text SR (a clinical note) filed in a dose study: not a dose object."""
+    report = ReportSpec("other", 0, sop_instance_uid,
+                        uid(scenario.uid_namespace, spec.study_uid, "text-series"), 1,
+                        spec.study_datetime + dt.timedelta(hours=1))
+    device = scenario.device(spec.device)
+    ds = _base(scenario, spec, report, BASIC_TEXT_SR, "SR", 900)
+    _sr_document(ds, device)
+    ds.ValueType = "CONTAINER"
+    ds.ConceptNameCodeSequence = Sequence([code_sequence_item(("18748-4", "LN", "Diagnostic imaging study"))])
+    ds.ContinuityOfContent = "SEPARATE"
+    ds.ContentSequence = Sequence([
+        text_item(C.FINDING, "Synthetic note: no dose content."),
+    ])
+    return ds
+
+
+_MAKERS = {
+    ("rdsr", "CT"): make_ct_rdsr,
+    ("rdsr", "DX"): make_projection_rdsr,
+    ("rdsr", "CR"): make_projection_rdsr,
+    ("rdsr", "RF"): make_projection_rdsr,
+    ("rdsr", "XA"): make_projection_rdsr,
+    ("rdsr", "MG"): make_projection_rdsr,
+    ("image_header", "CR"): make_cr_image,
+    ("image_header", "DX"): make_cr_image,
+}
+
+
+def make_dataset(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """The dataset for one report of a study, chosen by report kind and unit modality."""
+    try:
+        maker = _MAKERS[(report.kind, spec.modality)]
+    except KeyError:
+        raise ValueError(f"no writer for {report.kind} objects of modality {spec.modality}") from None
+    return maker(scenario, spec, report)

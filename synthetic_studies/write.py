@@ -1,0 +1,271 @@
+"""Write a synthetic corpus to disk with its ground-truth manifest (the shell of the generator).
+
+Output folder layout::
+
+    OUT/
+      TGH/tgh-ct1/2026-09/s000123/rdsr_1.dcm     one folder per study: its dose objects,
+      TGH/tgh-ct1/2026-09/s000123/rdsr_1.resent.dcm  and any file defects placed beside them
+      ...
+      files.parquet                               one row per file
+      studies.parquet                             one row per study, true totals
+
+Deterministic: the same scenario, seed, months and study count give byte-identical files
+whatever the number of worker processes.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass
+from pathlib import Path
+
+import pyarrow as pa
+import pyarrow.parquet as pq
+import numpy as np
+
+from .defects import CONTENT_DEFECTS, FILE_DEFECTS, apply_content_defect, is_eligible
+from .generator import make_basic_text_sr, make_dataset
+from .sampling import _rng, device_observer_uid, make_study, uid
+from .scenario import Scenario, load_scenario
+from .specs import StudySpec, study_truth
+
+__all__ = ["CorpusSummary", "FILES_SCHEMA", "STUDIES_SCHEMA", "plan_defects", "write_corpus"]
+
+FILES_SCHEMA = pa.schema([
+    ("path", pa.string()),
+    ("sop_class_uid", pa.string()),
+    ("sop_instance_uid", pa.string()),
+    ("study", pa.string()),
+    ("kind", pa.string()),
+    ("defect", pa.string()),
+    ("n_events", pa.int32()),
+    ("size_bytes", pa.int64()),
+])
+
+STUDIES_SCHEMA = pa.schema([
+    ("study", pa.string()),
+    ("study_instance_uid", pa.string()),
+    ("site", pa.string()),
+    ("institution", pa.string()),
+    ("device", pa.string()),
+    ("device_observer_uid", pa.string()),
+    ("station_name", pa.string()),
+    ("modality", pa.string()),
+    ("exam", pa.string()),
+    ("study_description", pa.string()),
+    ("study_datetime", pa.timestamp("s")),
+    ("patient_id", pa.string()),
+    ("patient_sex", pa.string()),
+    ("patient_age_years", pa.float64()),
+    ("patient_weight_kg", pa.float64()),
+    ("patient_height_m", pa.float64()),
+    ("source_kind", pa.string()),
+    ("n_reports", pa.int32()),
+    ("event_count", pa.int32()),
+    ("dap_total_gy_cm2", pa.float64()),
+    ("dose_rp_total_mgy", pa.float64()),
+    ("fluoro_time_total_s", pa.float64()),
+    ("dlp_total_mgy_cm", pa.float64()),
+    ("ctdivol_mgy", pa.float64()),
+    ("agd_mgy", pa.float64()),
+    ("story", pa.string()),
+    ("defect", pa.string()),
+])
+
+
+@dataclass(frozen=True, slots=True)
+class CorpusSummary:
+    out_dir: Path
+    n_studies: int
+    n_files: int
+    n_defect_files: int
+    by_modality: dict[str, int]
+    size_bytes: int
+
+
+def _study_id(index: int) -> str:
+    return f"s{index:06d}"
+
+
+def _study_dir(spec: StudySpec) -> str:
+    return f"{spec.site}/{spec.device}/{spec.study_datetime:%Y-%m}/{_study_id(spec.index)}"
+
+
+def plan_defects(scenario: Scenario, seed: int, n_studies: int, months: int) -> dict[int, list[str]]:
+    """Which study carries which defect: deterministic from the seed; at least one of each."""
+    plan: dict[int, list[str]] = {}
+    taken_content: set[int] = set()
+    for defect in (*CONTENT_DEFECTS, *FILE_DEFECTS):
+        want = max(1, scenario.defects.get(defect, 1))
+        rng = _rng(seed, "defect", defect)
+        got, tries = 0, 0
+        while got < want and tries < 50 * n_studies:
+            tries += 1
+            index = int(rng.integers(0, n_studies))
+            if defect in CONTENT_DEFECTS and index in taken_content:
+                continue
+            if index in plan and defect in plan[index]:
+                continue
+            if not is_eligible(defect, make_study(scenario, seed, index, n_studies, months)):
+                continue
+            plan.setdefault(index, []).append(defect)
+            if defect in CONTENT_DEFECTS:
+                taken_content.add(index)
+            got += 1
+    return plan
+
+
+def _encode(ds) -> bytes:
+    buf = io.BytesIO()
+    ds.save_as(buf, enforce_file_format=True)
+    return buf.getvalue()
+
+
+def _write_bytes(root: Path, rel: str, data: bytes) -> None:
+    path = root / rel
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(data)
+
+
+def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, months: int,
+                 defects: list[str], root: Path) -> tuple[list[dict], dict]:
+    spec = make_study(scenario, seed, index, n_studies, months)
+    folder = _study_dir(spec)
+    sid = _study_id(index)
+    content_defect = next((d for d in defects if d in CONTENT_DEFECTS), None)
+    files: list[dict] = []
+    for report in spec.reports:
+        ds = make_dataset(scenario, spec, report)
+        defect = None
+        if content_defect and report.kind == "rdsr" and report.instance_number == 1:
+            apply_content_defect(ds, content_defect)
+            defect = content_defect
+        data = _encode(ds)
+        name = f"rdsr_{report.instance_number}.dcm" if report.kind == "rdsr" \
+            else f"img_{report.n_events}.dcm"
+        rel = f"{folder}/{name}"
+        _write_bytes(root, rel, data)
+        files.append(_file_row(rel, ds.SOPClassUID, ds.SOPInstanceUID, sid, report.kind,
+                               defect, report.n_events, len(data)))
+        if report.kind == "rdsr" and report.instance_number == 1:
+            first, first_ds = data, ds
+    if "truncated" in defects:
+        rel = f"{folder}/rdsr_1.partial.dcm"
+        cut = first[: len(first) * 2 // 3]
+        _write_bytes(root, rel, cut)
+        files.append(_file_row(rel, first_ds.SOPClassUID, first_ds.SOPInstanceUID, sid,
+                               "rdsr", "truncated", None, len(cut)))
+    if "duplicate_copy" in defects:
+        rel = f"{folder}/rdsr_1.resent.dcm"
+        _write_bytes(root, rel, first)
+        files.append(_file_row(rel, first_ds.SOPClassUID, first_ds.SOPInstanceUID, sid,
+                               "rdsr", "duplicate_copy", spec.reports[0].n_events, len(first)))
+    if "not_dose_sr" in defects:
+        note_uid = uid(scenario.uid_namespace, seed, index, "note")
+        ds = make_basic_text_sr(scenario, spec, note_uid)
+        data = _encode(ds)
+        rel = f"{folder}/note_1.dcm"
+        _write_bytes(root, rel, data)
+        files.append(_file_row(rel, ds.SOPClassUID, note_uid, sid, "other", "not_dose_sr",
+                               None, len(data)))
+    if "not_dicom" in defects:
+        rel = f"{folder}/dose_screen.dcm"
+        data = (f"Dose summary for study {sid}: exported as text by mistake.\n"
+                "This file is not DICOM.\n").encode()
+        _write_bytes(root, rel, data)
+        files.append(_file_row(rel, None, None, sid, "other", "not_dicom", None, len(data)))
+    return files, _study_row(scenario, spec, content_defect)
+
+
+def _file_row(path, sop_class, sop_instance, study, kind, defect, n_events, size) -> dict:
+    return {"path": path, "sop_class_uid": None if sop_class is None else str(sop_class),
+            "sop_instance_uid": None if sop_instance is None else str(sop_instance),
+            "study": study, "kind": kind, "defect": defect, "n_events": n_events,
+            "size_bytes": size}
+
+
+def _study_row(scenario: Scenario, spec: StudySpec, defect: str | None) -> dict:
+    device = scenario.device(spec.device)
+    p = spec.patient
+    return {
+        "study": _study_id(spec.index),
+        "study_instance_uid": spec.study_uid,
+        "site": spec.site,
+        "institution": scenario.sites[spec.site].institution,
+        "device": spec.device,
+        "device_observer_uid": device_observer_uid(scenario, spec.device),
+        "station_name": device.station_name,
+        "modality": spec.modality,
+        "exam": spec.exam,
+        "study_description": spec.study_description,
+        "study_datetime": spec.study_datetime,
+        "patient_id": p.patient_id,
+        "patient_sex": p.sex,
+        "patient_age_years": spec.age_years,
+        "patient_weight_kg": p.weight_kg,
+        "patient_height_m": p.height_m,
+        "source_kind": spec.reports[0].kind,
+        "n_reports": len(spec.reports),
+        **study_truth(spec),
+        "story": spec.story,
+        "defect": defect,
+    }
+
+
+def _write_chunk(args) -> tuple[list[dict], list[dict]]:
+    scenario_path, seed, indices, n_studies, months, plan, root = args
+    scenario = load_scenario(scenario_path)
+    files, studies = [], []
+    for index in indices:
+        f, s = _write_study(scenario, seed, index, n_studies, months, plan.get(index, []), root)
+        files += f
+        studies.append(s)
+    return files, studies
+
+
+def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studies: int = 2000,
+                 scenario_path: Path | str | None = None, workers: int | None = None) -> CorpusSummary:
+    """Generate the corpus and its manifest under `out_dir`.
+
+    Parameters
+    ----------
+    out_dir : folder to write (created; existing files with the same names are replaced)
+    seed, months, n_studies : what to draw; the same values give byte-identical output
+    scenario_path : a scenario TOML file; default the bundled demo network
+    workers : processes to use (default: CPU count, at most 8)
+    """
+    if n_studies < 1 or months < 1:
+        raise ValueError("need at least one study and one month")
+    root = Path(out_dir)
+    root.mkdir(parents=True, exist_ok=True)
+    scenario = load_scenario(scenario_path)
+    plan = plan_defects(scenario, seed, n_studies, months)
+    workers = workers or min(8, os.cpu_count() or 1)
+    chunk = max(25, n_studies // (workers * 8) or 1)
+    jobs = [(scenario_path, seed, list(range(i, min(i + chunk, n_studies))), n_studies, months,
+             plan, root) for i in range(0, n_studies, chunk)]
+    files, studies = [], []
+    if workers == 1 or len(jobs) == 1:
+        results = map(_write_chunk, jobs)
+    else:
+        pool = ProcessPoolExecutor(max_workers=workers)
+        results = pool.map(_write_chunk, jobs)
+    for f, s in results:
+        files += f
+        studies += s
+    if workers != 1 and len(jobs) != 1:
+        pool.shutdown()
+    files.sort(key=lambda r: r["path"])
+    pq.write_table(pa.Table.from_pylist(files, schema=FILES_SCHEMA), root / "files.parquet")
+    pq.write_table(pa.Table.from_pylist(studies, schema=STUDIES_SCHEMA), root / "studies.parquet")
+    modalities = np.unique([s["modality"] for s in studies], return_counts=True)
+    return CorpusSummary(
+        out_dir=root,
+        n_studies=len(studies),
+        n_files=len(files),
+        n_defect_files=sum(1 for f in files if f["defect"]),
+        by_modality={str(k): int(v) for k, v in zip(*modalities)},
+        size_bytes=sum(f["size_bytes"] for f in files),
+    )

@@ -1,0 +1,36 @@
+"""Shared fixtures: strict pydicom, a small synthetic corpus, external tool lookup."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pandas as pd
+import pydicom.config
+import pytest
+
+from synthetic_studies.write import write_corpus
+
+# Tests run strict (STYLE A.8): invalid values raise instead of warning.
+pydicom.config.settings.reading_validation_mode = pydicom.config.RAISE
+pydicom.config.settings.writing_validation_mode = pydicom.config.RAISE
+
+CORPUS_STUDIES = 320   # enough for every unit, story and defect to appear
+CORPUS_SEED = 7
+
+
+@pytest.fixture(scope="session")
+def corpus(tmp_path_factory) -> Path:
+    """The demo scenario at small size: seed 7, 3 months, 320 studies."""
+    out = tmp_path_factory.mktemp("corpus")
+    write_corpus(out, seed=CORPUS_SEED, months=3, n_studies=CORPUS_STUDIES, workers=2)
+    return out
+
+
+@pytest.fixture(scope="session")
+def files_manifest(corpus) -> pd.DataFrame:
+    return pd.read_parquet(corpus / "files.parquet")
+
+
+@pytest.fixture(scope="session")
+def studies_manifest(corpus) -> pd.DataFrame:
+    return pd.read_parquet(corpus / "studies.parquet")
