@@ -1,3 +1,34 @@
-"""SQL of the warehouse, one relation per file (filled in by the ingest work)."""
+"""SQL of the warehouse: one relation (or one load statement) per file; a tiny loader.
 
-__all__: list[str] = []
+Layers run schema -> staging -> marts; a view may read only from earlier layers. Statements
+in ``load/`` are run by the ingest for each batch.
+"""
+
+from __future__ import annotations
+
+from functools import cache
+from pathlib import Path
+
+__all__ = ["LAYERS", "ROOT", "apply_all", "sql"]
+
+ROOT = Path(__file__).parent
+LAYERS = ("schema", "staging", "marts")
+
+
+@cache
+def sql(name: str) -> str:
+    """Text of the one file ``queries/*/<name>.sql``; KeyError naming `name` if 0 or >1 match."""
+    matches = sorted(ROOT.glob(f"*/{name}.sql"))
+    if len(matches) != 1:
+        raise KeyError(f"expected one SQL file named {name}.sql under {ROOT}, found {len(matches)}")
+    return matches[0].read_text(encoding="utf-8")
+
+
+def apply_all(con) -> list[str]:
+    """Create every table and view, layer by layer; returns relation names in order."""
+    names = []
+    for layer in LAYERS:
+        for path in sorted((ROOT / layer).glob("*.sql")):
+            con.execute(path.read_text(encoding="utf-8"))
+            names.append(path.stem)
+    return names

@@ -1,0 +1,77 @@
+"""Exception tree of Kerma Ledger.
+
+::
+
+    DoseAuditError
+    ├── InputError              -> the file is quarantined with the error's reason; batch goes on
+    │   ├── NotDicomError       (reason: not_dicom, empty_file, truncated)
+    │   ├── UnsupportedTransferSyntaxError
+    │   ├── UnsafeArchiveMemberError
+    │   └── MalformedReportError (carries sop_instance_uid and the concept code, if any)
+    ├── ConfigError             -> stop with a one-line message (e.g. no pseudonymisation key)
+    └── WarehouseError          -> stop with a one-line message (cannot open, busy)
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ConfigError",
+    "DoseAuditError",
+    "InputError",
+    "MalformedReportError",
+    "NotADoseObjectError",
+    "NotDicomError",
+    "UnsafeArchiveMemberError",
+    "UnsupportedTransferSyntaxError",
+    "WarehouseError",
+]
+
+
+class DoseAuditError(Exception):
+    """Base of every error Kerma Ledger raises on purpose."""
+
+
+class InputError(DoseAuditError):
+    """A bad input file: quarantine it with `reason` and carry on with the batch."""
+
+    reason = "unreadable"
+    status = "quarantined"
+
+    def __init__(self, message: str, *, reason: str | None = None,
+                 sop_instance_uid: str | None = None, concept: str | None = None) -> None:
+        super().__init__(message)
+        if reason is not None:
+            self.reason = reason
+        self.sop_instance_uid = sop_instance_uid
+        self.concept = concept
+
+
+class NotDicomError(InputError):
+    reason = "not_dicom"
+
+
+class UnsupportedTransferSyntaxError(InputError):
+    reason = "unsupported_transfer_syntax"
+
+
+class UnsafeArchiveMemberError(InputError):
+    reason = "unsafe_archive_path"
+
+
+class MalformedReportError(InputError):
+    reason = "malformed_report"
+
+
+class NotADoseObjectError(InputError):
+    """Valid DICOM that carries no dose information we count (recorded as not_dose)."""
+
+    reason = "not_a_dose_object"
+    status = "not_dose"
+
+
+class ConfigError(DoseAuditError):
+    """A setting is missing or wrong; the command stops."""
+
+
+class WarehouseError(DoseAuditError):
+    """The warehouse cannot be opened or is busy; the command stops."""

@@ -1,0 +1,306 @@
+"""Ingest: input files -> parsed dose objects -> warehouse, in batches (the shell loop).
+
+Every input file ends in ``source_object`` with a status: ``loaded``, ``duplicate`` (its SOP
+Instance UID is already loaded), ``not_dose`` (valid DICOM without dose information we count)
+or ``quarantined`` (with the reason). One bad file never stops a batch: only ``InputError``
+is caught per file; anything else is a bug and stops the run loudly. Each batch is loaded in
+one transaction, so a crash loses at most the batch in flight, which a rerun redoes.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import uuid
+from collections import Counter
+from collections.abc import Callable, Iterable
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+from .models import DoseObject, as_row
+from .parsing import parse_dose_object
+from .pseudonym import make_pseudonymiser
+from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_dataset
+from .warehouse.connection import connection
+from .warehouse.load import append_batch, ensure_schema, replace_site_map
+from .warehouse.tables import arrow_table
+
+__all__ = ["FileOutcome", "IngestSummary", "ingest", "process_file"]
+
+BATCH_SIZE = 256
+
+
+@dataclass(slots=True)
+class FileOutcome:
+    path: str
+    sha256: str
+    size_bytes: int
+    status: str
+    reason: str | None = None
+    detail: str | None = None
+    sop_instance_uid: str | None = None
+    sop_class_uid: str | None = None
+    obj: DoseObject | None = None
+
+
+@dataclass
+class IngestSummary:
+    run_id: str
+    warehouse: Path
+    seen: int = 0
+    unchanged: int = 0
+    by_status: Counter = field(default_factory=Counter)
+    quarantine_reasons: Counter = field(default_factory=Counter)
+    not_dose_reasons: Counter = field(default_factory=Counter)
+    value_issues: int = 0
+
+    @property
+    def loaded(self) -> int:
+        return self.by_status["loaded"]
+
+
+def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str]) -> FileOutcome:
+    """Bytes of one file -> outcome (parsed object or the reason it was not loaded). No I/O."""
+    digest = hashlib.sha256(data).hexdigest()
+    outcome = FileOutcome(path, digest, len(data), "loaded")
+    with lenient_pydicom() as caught:
+        try:
+            ds = read_dataset(data, path)
+            outcome.sop_class_uid = _text(ds, "SOPClassUID")
+            outcome.sop_instance_uid = _text(ds, "SOPInstanceUID")
+            obj = parse_dose_object(ds, pseudonymise)
+        except InputError as exc:
+            outcome.status = exc.status
+            outcome.reason = exc.reason
+            outcome.detail = str(exc)
+            return outcome
+        except RecursionError:
+            outcome.status, outcome.reason = "quarantined", "content_tree_too_deep"
+            outcome.detail = f"{path}: structure nested too deeply to read"
+            return outcome
+    if caught:
+        from .models import IssueKind, ParseIssue
+        seen = set()
+        for w in caught:
+            text = str(w.message).splitlines()[0][:300]
+            if text not in seen:
+                seen.add(text)
+                obj.issues.append(ParseIssue(IssueKind.PARSER_WARNING, f"pydicom: {text}"))
+    outcome.obj = obj
+    outcome.reason = "loaded_with_note" if obj.note else None
+    outcome.detail = obj.note
+    return outcome
+
+
+def _text(ds, keyword: str) -> str | None:
+    try:
+        value = ds.get(keyword)
+    except Exception:  # noqa: BLE001 - an unreadable UID is reported by the parser
+        return None
+    return str(value).strip() if value else None
+
+
+# --- worker processes ---------------------------------------------------------------------------
+
+_WORKER_PSEUDONYMISE: Callable[[str, str], str] | None = None
+
+
+def _init_worker(key: bytes) -> None:
+    global _WORKER_PSEUDONYMISE
+    _WORKER_PSEUDONYMISE = make_pseudonymiser(key)
+
+
+def _work(item: tuple[str, bytes]) -> FileOutcome:
+    return process_file(item[0], item[1], _WORKER_PSEUDONYMISE)
+
+
+# --- rows for the warehouse ----------------------------------------------------------------------
+
+def _issue_id(sop: str, n: int, issue) -> str:
+    text = f"{sop}\x1f{n}\x1f{issue.kind.value}\x1f{issue.concept_code}\x1f{issue.event_uid}\x1f{issue.detail}"
+    return hashlib.sha256(text.encode()).hexdigest()[:32]
+
+
+def _batch_tables(outcomes: list[FileOutcome], run_id: str, now: dt.datetime):
+    rows: dict[str, list[dict]] = {k: [] for k in (
+        "source_object", "dose_object", "device", "study", "ct_event", "projection_event",
+        "accumulated", "value_issue")}
+    for o in outcomes:
+        rows["source_object"].append({
+            "path": o.path, "sha256": o.sha256, "size_bytes": o.size_bytes,
+            "sop_instance_uid": o.sop_instance_uid, "sop_class_uid": o.sop_class_uid,
+            "status": o.status, "reason": o.reason, "detail": o.detail,
+            "run_id": run_id, "recorded_at": now})
+        obj = o.obj
+        if o.status != "loaded" or obj is None:
+            continue
+        s, d = obj.study, obj.device
+        keys = {"study_key": s.study_key, "device_key": d.device_key, "run_id": run_id}
+        rows["dose_object"].append({
+            "sop_instance_uid": obj.sop_instance_uid, "sha256": o.sha256, "path": o.path,
+            "sop_class_uid": obj.sop_class_uid, "object_kind": obj.kind.value,
+            "modality": obj.modality, "study_key": s.study_key, "patient_key": s.patient_key,
+            "device_key": d.device_key, "content_datetime": obj.content_datetime,
+            "instance_number": obj.instance_number,
+            "source_of_dose_information": obj.source_of_dose_information,
+            "series_description": obj.series_description, "protocol_name": obj.protocol_name,
+            "body_part": obj.body_part, "study_date": s.study_date,
+            "study_description": s.study_description, "patient_age_years": s.patient_age_years,
+            "patient_sex": s.patient_sex, "patient_weight_kg": s.patient_weight_kg,
+            "patient_height_m": s.patient_height_m, "n_ct_events": len(obj.ct_events),
+            "n_projection_events": len(obj.projection_events), "run_id": run_id})
+        rows["device"].append({**as_row(d), "first_run_id": run_id})
+        rows["study"].append({**as_row(s), "first_run_id": run_id})
+        rows["ct_event"] += [{**as_row(e), **keys} for e in obj.ct_events]
+        rows["projection_event"] += [{**as_row(e), **keys} for e in obj.projection_events]
+        rows["accumulated"] += [{**as_row(a), **keys} for a in obj.accumulated]
+        rows["value_issue"] += [{
+            "issue_id": _issue_id(obj.sop_instance_uid, n, i), "sop_instance_uid": obj.sop_instance_uid,
+            "event_uid": i.event_uid, "kind": i.kind.value, "concept_code": i.concept_code,
+            "detail": i.detail, "raw_value": i.raw_value, "raw_unit": i.raw_unit, "run_id": run_id}
+            for n, i in enumerate(obj.issues)]
+    return {name: arrow_table(name, r) for name, r in rows.items()}
+
+
+# --- the run --------------------------------------------------------------------------------------
+
+def _chunks(items: Iterable[Candidate], size: int):
+    chunk: list[Candidate] = []
+    for item in items:
+        chunk.append(item)
+        if len(chunk) == size:
+            yield chunk
+            chunk = []
+    if chunk:
+        yield chunk
+
+
+def _read(c: Candidate) -> tuple[bytes | None, InputError | None, OSError | None]:
+    try:
+        return c.read(), None, None
+    except InputError as exc:
+        return None, exc, None
+    except OSError as exc:
+        return None, None, exc
+
+
+def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
+           sites: dict[str, str] | None = None, batch_size: int = BATCH_SIZE,
+           progress: Callable[[int], None] | None = None) -> IngestSummary:
+    """Ingest every file under `paths` into the warehouse at `warehouse`.
+
+    Idempotent: a file already recorded with the same path and content is skipped, and a SOP
+    Instance UID already loaded is a duplicate, so rerunning over the same inputs changes
+    nothing. Raises WarehouseError (cannot open / busy) before reading any input.
+    """
+    run_id = f"run-{dt.datetime.now(dt.UTC):%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
+    summary = IngestSummary(run_id=run_id, warehouse=Path(warehouse))
+    pseudonymise = make_pseudonymiser(key)
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,)) \
+        if workers > 1 else None
+    started = dt.datetime.now()
+    with connection(warehouse) as con:
+        ensure_schema(con)
+        replace_site_map(con, sites or {})
+        con.register("incoming_run", arrow_table("run", [{
+            "run_id": run_id, "started_at": started, "kerma_version": __version__,
+            "inputs": "; ".join(str(p) for p in paths), "workers": workers}]))
+        con.execute(_sql("insert_run"))
+        con.unregister("incoming_run")
+        loaded_sops = {r[0] for r in con.execute(_sql("select_loaded_sops")).fetchall()}
+        try:
+            for chunk in _chunks(iter_candidates(list(paths)), batch_size):
+                outcomes = _process_chunk(con, chunk, pool, pseudonymise, summary)
+                for o in outcomes:
+                    if o.status == "loaded" and o.sop_instance_uid in loaded_sops:
+                        o.status, o.reason = "duplicate", "sop_instance_already_loaded"
+                        o.detail = f"SOP Instance UID {o.sop_instance_uid} is already loaded"
+                        o.obj = None
+                    elif o.status == "loaded":
+                        loaded_sops.add(o.sop_instance_uid)
+                if outcomes:
+                    append_batch(con, _batch_tables(outcomes, run_id, dt.datetime.now()))
+                for o in outcomes:
+                    summary.by_status[o.status] += 1
+                    if o.status == "quarantined":
+                        summary.quarantine_reasons[o.reason] += 1
+                    elif o.status == "not_dose":
+                        summary.not_dose_reasons[o.reason] += 1
+                    if o.obj is not None:
+                        summary.value_issues += len(o.obj.issues)
+                if progress:
+                    progress(len(chunk))
+        finally:
+            if pool is not None:
+                pool.shutdown()
+        con.execute(_RUN_UPDATE, {
+            "finished_at": dt.datetime.now(), "n_seen": summary.seen,
+            "n_loaded": summary.by_status["loaded"], "n_duplicate": summary.by_status["duplicate"],
+            "n_not_dose": summary.by_status["not_dose"],
+            "n_quarantined": summary.by_status["quarantined"], "n_unchanged": summary.unchanged,
+            "run_id": run_id})
+    return summary
+
+
+def _process_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary) -> list[FileOutcome]:
+    summary.seen += len(chunk)
+    known = _known(con, [c.path for c in chunk])
+    todo: list[tuple[str, bytes]] = []
+    outcomes: list[FileOutcome] = []
+    for c in chunk:
+        data, input_error, os_error = _read(c)
+        if input_error is not None:
+            digest = hashlib.sha256(c.path.encode()).hexdigest()  # no content: key on the name
+            if (c.path, digest) in known:
+                summary.unchanged += 1
+                continue
+            outcomes.append(FileOutcome(c.path, digest, 0, input_error.status,
+                                        input_error.reason, str(input_error)))
+            continue
+        if os_error is not None:
+            digest = hashlib.sha256(c.path.encode()).hexdigest()
+            if (c.path, digest) in known:
+                summary.unchanged += 1
+                continue
+            outcomes.append(FileOutcome(c.path, digest, 0, "quarantined", "unreadable_file",
+                                        f"{c.path}: cannot be read: {os_error.strerror or os_error}"))
+            continue
+        digest = hashlib.sha256(data).hexdigest()
+        if (c.path, digest) in known:
+            summary.unchanged += 1
+            continue
+        todo.append((c.path, data))
+    if pool is not None:
+        outcomes += list(pool.map(_work, todo, chunksize=8))
+    else:
+        outcomes += [process_file(p, d, pseudonymise) for p, d in todo]
+    # the same SOP Instance twice within one batch: the first file wins
+    seen: set[str] = set()
+    for o in outcomes:
+        if o.status == "loaded":
+            if o.sop_instance_uid in seen:
+                o.status, o.reason = "duplicate", "sop_instance_already_loaded"
+                o.detail = f"SOP Instance UID {o.sop_instance_uid} appears twice in the input"
+                o.obj = None
+            else:
+                seen.add(o.sop_instance_uid)
+    return outcomes
+
+
+def _known(con, paths: list[str]) -> set[tuple[str, str]]:
+    import pyarrow as pa
+    con.register("incoming_paths", pa.table({"path": paths}))
+    try:
+        rows = con.execute(_KNOWN).fetchall()
+    finally:
+        con.unregister("incoming_paths")
+    return {(p, s) for p, s in rows}
+
+
+from queries import sql as _sql  # noqa: E402  (SQL lives in queries/)
+
+_RUN_UPDATE = _sql("update_run_counts")
+_KNOWN = _sql("select_known_files")

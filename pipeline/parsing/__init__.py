@@ -1,0 +1,224 @@
+"""Pure parsing core: pydicom Dataset in, DoseObject out. No I/O.
+
+``parse_dose_object`` picks a parser by SOP Class UID (a dict, not a ladder); dose SRs are
+then routed by root template (TID 10011 CT, TID 10001 projection), recognised by the root's
+Content Template Sequence or, when a device omits it, by the Procedure reported code and the
+containers present.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+from pydicom.dataset import Dataset
+from pydicom.uid import UID
+
+from .. import concepts as C
+from ..errors import MalformedReportError, NotADoseObjectError
+from ..models import DoseObject, IssueKind, ObjectKind
+from .common import (Measurer, Pseudonymiser, content_datetime, device_info, header_text,
+                     study_info)
+from .content_tree import (MAX_DEPTH, TreeTooDeepError, code_value_of, concept_key, depth,
+                           first, text_of)
+from .ct import parse_ct_accumulated, parse_ct_events
+from .headers import parse_ct_image_event, parse_projection_image_event
+from .projection import parse_projection_accumulated, parse_projection_events, projection_modality
+
+__all__ = ["DOSE_SR_CLASSES", "IMAGE_CLASSES", "parse_dose_object"]
+
+XRAY_RDSR = "1.2.840.10008.5.1.4.1.1.88.67"
+ENHANCED_XRAY_RDSR = "1.2.840.10008.5.1.4.1.1.88.76"
+DOSE_SR_CLASSES = {XRAY_RDSR, ENHANCED_XRAY_RDSR}
+
+# Image storage classes whose headers may carry dose attributes -> modality if not in header.
+IMAGE_CLASSES = {
+    "1.2.840.10008.5.1.4.1.1.2": "CT",        # CT Image
+    "1.2.840.10008.5.1.4.1.1.2.1": "CT",      # Enhanced CT Image
+    "1.2.840.10008.5.1.4.1.1.1": "CR",        # CR Image
+    "1.2.840.10008.5.1.4.1.1.1.1": "DX",      # Digital X-Ray Image - For Presentation
+    "1.2.840.10008.5.1.4.1.1.1.1.1": "DX",    # Digital X-Ray Image - For Processing
+    "1.2.840.10008.5.1.4.1.1.1.2": "MG",      # Digital Mammography - For Presentation
+    "1.2.840.10008.5.1.4.1.1.1.2.1": "MG",    # Digital Mammography - For Processing
+    "1.2.840.10008.5.1.4.1.1.12.1": "XA",     # X-Ray Angiographic Image
+    "1.2.840.10008.5.1.4.1.1.12.1.1": "XA",   # Enhanced XA Image
+    "1.2.840.10008.5.1.4.1.1.12.2": "RF",     # X-Ray Radiofluoroscopic Image
+    "1.2.840.10008.5.1.4.1.1.12.2.1": "RF",   # Enhanced XRF Image
+    "1.2.840.10008.5.1.4.1.1.13.1.3": "MG",   # Breast Tomosynthesis Image
+}
+_NOT_COUNTED = {
+    "1.2.840.10008.5.1.4.1.1.88.73": "Patient Radiation Dose SR: a derived estimate; the source "
+                                     "reports are counted instead, never both",
+    "1.2.840.10008.5.1.4.1.1.88.68": "Radiopharmaceutical Radiation Dose SR: not an X-ray dose",
+}
+_MAX_ITEMS = 500_000
+_IMAGE_DOSE_ATTRIBUTES = ("ImageAndFluoroscopyAreaDoseProduct", "EntranceDoseInmGy",
+                          "EntranceDose", "OrganDose", "CTDIvol")
+
+
+def _class_name(uid: str) -> str:
+    name = UID(uid).name
+    return name if name != uid else f"SOP class {uid}"
+
+
+def _count_items(ds: Dataset, limit: int) -> int:
+    stack, n = [ds], 0
+    while stack and n <= limit:
+        node = stack.pop()
+        seq = node.get("ContentSequence")
+        if seq:
+            n += len(seq)
+            stack.extend(seq)
+    return n
+
+
+def _parse_sr(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser) -> DoseObject:
+    if concept_key(ds) != ("DCM", C.XRAY_RADIATION_DOSE_REPORT.value):
+        root = ds.get("ConceptNameCodeSequence")
+        found = f"({root[0].get('CodeValue')}, {root[0].get('CodingSchemeDesignator')})" if root else "none"
+        raise MalformedReportError(
+            f"{sop_uid}: root concept is {found}, not (113701, DCM) X-Ray Radiation Dose Report",
+            reason="not_a_dose_report", sop_instance_uid=sop_uid, concept="DCM:113701")
+    if not ds.get("ContentSequence"):
+        raise MalformedReportError(f"{sop_uid}: dose report has an empty content tree",
+                                   reason="empty_content_tree", sop_instance_uid=sop_uid)
+    try:
+        if depth(ds) > MAX_DEPTH:
+            raise TreeTooDeepError
+    except (TreeTooDeepError, RecursionError):
+        raise MalformedReportError(
+            f"{sop_uid}: content tree nested deeper than {MAX_DEPTH} levels",
+            reason="content_tree_too_deep", sop_instance_uid=sop_uid) from None
+    if _count_items(ds, _MAX_ITEMS) > _MAX_ITEMS:
+        raise MalformedReportError(f"{sop_uid}: content tree has more than {_MAX_ITEMS} items",
+                                   reason="content_tree_too_large", sop_instance_uid=sop_uid)
+
+    template = None
+    tpl = ds.get("ContentTemplateSequence")
+    if tpl:
+        template = str(tpl[0].get("TemplateIdentifier", "") or "").strip() or None
+    procedure = code_value_of(first(ds, C.PROCEDURE_REPORTED))
+    proc_key = procedure[0] if procedure else None
+    is_ct = template == "10011" or proc_key == ("SCT", C.COMPUTED_TOMOGRAPHY_XRAY.value) or (
+        template is None and first(ds, C.CT_ACQUISITION, "CONTAINER") is not None)
+    is_mammo = proc_key == ("SCT", C.MAMMOGRAPHY.value)
+    has_structure = first(ds, C.CT_ACQUISITION, "CONTAINER") is not None or \
+        first(ds, C.IRRADIATION_EVENT_XRAY_DATA, "CONTAINER") is not None or \
+        first(ds, C.ACCUMULATED_XRAY_DOSE_DATA, "CONTAINER") is not None or \
+        first(ds, C.CT_ACCUMULATED_DOSE_DATA, "CONTAINER") is not None
+    if sop_class == ENHANCED_XRAY_RDSR and not has_structure:
+        raise MalformedReportError(
+            f"{sop_uid}: Enhanced X-Ray Radiation Dose SR (TID 10040 family) without classic "
+            "TID 10001/10011 structure is not read by this version",
+            reason="enhanced_rdsr_unsupported", sop_instance_uid=sop_uid)
+
+    m = Measurer()
+    study = study_info(ds, pseudonymise, m)
+    if is_ct:
+        kind = ObjectKind.RDSR_CT
+        ct_events = parse_ct_events(ds, sop_uid, m)
+        accumulated = parse_ct_accumulated(ds, sop_uid, m)
+        projection_events = []
+        modality = "CT"
+    else:
+        kind = ObjectKind.RDSR_PROJECTION
+        ct_events = []
+        projection_events = parse_projection_events(ds, sop_uid, m)
+        accumulated = parse_projection_accumulated(ds, sop_uid, m)
+        modality = projection_modality(ds, projection_events, is_mammo)
+    if sop_class == ENHANCED_XRAY_RDSR:
+        kind = ObjectKind.RDSR_ENHANCED
+    if not ct_events and not projection_events and not accumulated:
+        raise MalformedReportError(
+            f"{sop_uid}: dose report has neither irradiation events nor accumulated dose data",
+            reason="no_dose_content", sop_instance_uid=sop_uid)
+    device, has_observer = device_info(ds, modality, from_tree=True)
+    note = None
+    if not has_observer:
+        note = "no device observer context (TID 1004): device identified from the equipment module"
+        m.issue(IssueKind.NO_DEVICE_CONTEXT, note, C.DEVICE_OBSERVER_UID)
+    source = code_value_of(first(ds, C.SOURCE_OF_DOSE_INFORMATION))
+    return DoseObject(
+        sop_instance_uid=sop_uid,
+        sop_class_uid=sop_class,
+        kind=kind,
+        modality=modality,
+        content_datetime=content_datetime(ds),
+        instance_number=_int(header_text(ds, "InstanceNumber")),
+        source_of_dose_information=source[1] if source else None,
+        series_description=header_text(ds, "SeriesDescription"),
+        protocol_name=header_text(ds, "ProtocolName"),
+        body_part=header_text(ds, "BodyPartExamined"),
+        study=study,
+        device=device,
+        ct_events=ct_events,
+        projection_events=projection_events,
+        accumulated=accumulated,
+        issues=m.issues,
+        note=note,
+    )
+
+
+def _int(text: str | None) -> int | None:
+    try:
+        return int(text) if text is not None else None
+    except ValueError:
+        return None
+
+
+def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser) -> DoseObject:
+    modality = (header_text(ds, "Modality") or IMAGE_CLASSES[sop_class]).upper()
+    if modality not in ("CT", "CR", "DX", "MG", "XA", "RF", "PX", "IO"):
+        modality = IMAGE_CLASSES[sop_class]
+    present = [a for a in _IMAGE_DOSE_ATTRIBUTES if header_text(ds, a) is not None]
+    if not present:
+        raise NotADoseObjectError(
+            f"{sop_uid}: {_class_name(sop_class)} without dose attributes in its header",
+            reason="image_without_dose_attributes", sop_instance_uid=sop_uid)
+    m = Measurer()
+    study = study_info(ds, pseudonymise, m)
+    device, _ = device_info(ds, modality, from_tree=False)
+    ct, proj = [], []
+    if modality == "CT":
+        ct = [parse_ct_image_event(ds, sop_uid, m)]
+    else:
+        proj = [parse_projection_image_event(ds, sop_uid, modality, m)]
+    return DoseObject(
+        sop_instance_uid=sop_uid, sop_class_uid=sop_class, kind=ObjectKind.IMAGE_HEADER,
+        modality=modality, content_datetime=content_datetime(ds),
+        instance_number=_int(header_text(ds, "InstanceNumber")),
+        source_of_dose_information="Copied From Image Attributes",
+        series_description=header_text(ds, "SeriesDescription"),
+        protocol_name=header_text(ds, "ProtocolName"),
+        body_part=header_text(ds, "BodyPartExamined"),
+        study=study, device=device, ct_events=ct, projection_events=proj, issues=m.issues)
+
+
+_PARSERS: dict[str, Callable[[Dataset, str, str, Pseudonymiser], DoseObject]] = {
+    **{uid: _parse_sr for uid in DOSE_SR_CLASSES},
+    **{uid: _parse_image for uid in IMAGE_CLASSES},
+}
+
+
+def parse_dose_object(ds: Dataset, pseudonymise: Pseudonymiser) -> DoseObject:
+    """Parse one dataset into a DoseObject.
+
+    Raises
+    ------
+    NotADoseObjectError
+        Valid DICOM of a SOP class that carries no X-ray dose we count (status not_dose).
+    MalformedReportError
+        A dose object whose structure cannot be read (quarantined with the reason).
+    """
+    sop_class = header_text(ds, "SOPClassUID")
+    sop_uid = header_text(ds, "SOPInstanceUID")
+    if sop_class is None or sop_uid is None:
+        raise MalformedReportError("dataset has no SOP Class UID or SOP Instance UID",
+                                   reason="no_sop_identity")
+    if sop_class in _NOT_COUNTED:
+        raise NotADoseObjectError(f"{sop_uid}: {_NOT_COUNTED[sop_class]}",
+                                  reason="not_counted_dose_class", sop_instance_uid=sop_uid)
+    parser = _PARSERS.get(sop_class)
+    if parser is None:
+        raise NotADoseObjectError(f"{sop_uid}: {_class_name(sop_class)} carries no dose information",
+                                  reason="not_a_dose_class", sop_instance_uid=sop_uid)
+    return parser(ds, sop_uid, sop_class, pseudonymise)

@@ -1,0 +1,45 @@
+"""Open the DuckDB warehouse: settings in one place, one clear error when it cannot be opened."""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Iterator
+from pathlib import Path
+
+import duckdb
+
+from ..errors import WarehouseError
+
+__all__ = ["connection"]
+
+
+@contextlib.contextmanager
+def connection(db_path: Path | str, read_only: bool = False) -> Iterator[duckdb.DuckDBPyConnection]:
+    """A DuckDB connection to the warehouse file; WarehouseError if it cannot be opened.
+
+    DuckDB lets one process write a database file at a time; a second writer (or a reader
+    while a writer holds it) gets "warehouse busy".
+    """
+    path = Path(db_path)
+    if read_only and not path.exists():
+        raise WarehouseError(f"warehouse {path} does not exist")
+    if not read_only:
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise WarehouseError(f"cannot create the folder of warehouse {path}: {exc.strerror}") from exc
+    try:
+        con = duckdb.connect(str(path), read_only=read_only)
+    except duckdb.IOException as exc:
+        text = str(exc)
+        if "lock" in text.lower():
+            raise WarehouseError(f"warehouse {path} is busy: another Kerma Ledger process is "
+                                 "using it; try again when it has finished") from exc
+        raise WarehouseError(f"cannot open warehouse {path}: {text.splitlines()[0]}") from exc
+    except duckdb.Error as exc:
+        raise WarehouseError(f"cannot open warehouse {path}: {str(exc).splitlines()[0]}") from exc
+    try:
+        con.execute("set threads to 2")
+        yield con
+    finally:
+        con.close()

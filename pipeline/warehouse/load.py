@@ -1,0 +1,57 @@
+"""Write batches into DuckDB: register Arrow tables, run queries/load/*.sql, one transaction."""
+
+from __future__ import annotations
+
+import duckdb
+import pyarrow as pa
+
+from queries import apply_all, sql
+
+__all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_site_map"]
+
+LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
+              "accumulated", "value_issue")
+
+
+def ensure_schema(con: duckdb.DuckDBPyConnection) -> list[str]:
+    """Create the tables and views if missing (idempotent)."""
+    return apply_all(con)
+
+
+def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) -> dict[str, int]:
+    """Insert every table of one batch, then record total mismatches, in ONE transaction.
+
+    A crash mid-batch leaves nothing of the batch behind, so a rerun redoes it cleanly.
+    """
+    counts: dict[str, int] = {}
+    con.execute("begin transaction")
+    try:
+        for name in LOAD_ORDER:
+            table = tables[name]
+            con.register(f"incoming_{name}", table)
+        try:
+            for name in LOAD_ORDER:
+                con.execute(sql(f"insert_{name}"))
+                counts[name] = tables[name].num_rows
+            con.execute(sql("insert_total_mismatch_issues"))
+        finally:
+            for name in LOAD_ORDER:
+                con.unregister(f"incoming_{name}")
+        con.execute("commit")
+    except BaseException:
+        con.execute("rollback")
+        raise
+    return counts
+
+
+def replace_site_map(con: duckdb.DuckDBPyConnection, sites: dict[str, str]) -> None:
+    table = pa.table({"match_value": list(sites), "site": list(sites.values())},
+                     schema=pa.schema([("match_value", pa.string()), ("site", pa.string())]))
+    con.register("incoming_site_map", table)
+    try:
+        con.execute("begin transaction")
+        con.execute(sql("delete_site_map"))
+        con.execute(sql("insert_site_map"))
+        con.execute("commit")
+    finally:
+        con.unregister("incoming_site_map")

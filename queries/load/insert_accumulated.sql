@@ -1,0 +1,2 @@
+-- load: append the batch's rows; rows whose key is already present are kept as they were
+insert or ignore into raw_accumulated by name select * from incoming_accumulated

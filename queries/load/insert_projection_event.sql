@@ -1,0 +1,2 @@
+-- load: append the batch's rows; rows whose key is already present are kept as they were
+insert or ignore into raw_projection_event by name select * from incoming_projection_event

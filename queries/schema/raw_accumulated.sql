@@ -1,0 +1,26 @@
+-- grain: one row per report and plane (TID 10002 per plane; TID 10012 as plane ct)
+create table if not exists raw_accumulated (
+    sop_instance_uid varchar,
+    plane varchar,
+    dap_total_gy_cm2 double,
+    dose_rp_total_mgy double,
+    fluoro_dap_total_gy_cm2 double,
+    fluoro_dose_rp_total_mgy double,
+    fluoro_time_total_s double,
+    acquisition_dap_total_gy_cm2 double,
+    acquisition_dose_rp_total_mgy double,
+    acquisition_time_total_s double,
+    radiographic_frames double,
+    reference_point_definition varchar,
+    calibration_factor double,
+    calibration_uncertainty_pct double,
+    calibration_datetime timestamp,
+    agd_left_mgy double,
+    agd_right_mgy double,
+    dlp_total_mgy_cm double,
+    events_reported double,
+    study_key varchar,
+    device_key varchar,
+    run_id varchar,
+    primary key (sop_instance_uid, plane)
+);
