@@ -61,25 +61,43 @@ def demo(
     out: Path = typer.Option(DEFAULT_DEMO_DIR, "--out", help="Folder for everything the demo writes."),
     studies: int = typer.Option(2000, min=1, help="Number of studies in the demo corpus."),
     seed: int = typer.Option(7, help="Random seed of the demo corpus."),
+    workers: int = typer.Option(2, min=1, help="Processes for generating and parsing."),
 ) -> None:
-    """Run the main job on the embedded demo scenario."""
+    """Run the main job on the embedded demo scenario: generate, then ingest."""
+    import secrets
+
     from synthetic_studies.write import write_corpus
 
     corpus = out / "corpus"
+    warehouse = out / "kerma.duckdb"
+    key_file = out / "pseudonym.key"
     console.rule("Kerma Ledger demo")
-    console.print("Step 1 of 1: generating the synthetic corpus of the invented "
+    console.print("Step 1 of 2: generating the synthetic corpus of the invented "
                   "Tarnwick Regional Imaging Network (no real patients, sites or devices).")
     started = time.perf_counter()
-    summary = write_corpus(corpus, seed=seed, months=3, n_studies=studies)
+    summary = write_corpus(corpus, seed=seed, months=3, n_studies=studies, workers=workers)
     console.print(_corpus_table(summary))
     console.print(
         f"Wrote {summary.n_files} DICOM files ({summary.n_defect_files} with deliberate "
         f"defects) and the ground-truth manifest to {corpus} in "
         f"{time.perf_counter() - started:.1f} s.")
+
+    console.print(f"Step 2 of 2: ingesting {corpus} into the warehouse {warehouse}.")
+    if not key_file.exists():
+        key_file.write_text(secrets.token_hex(32) + "\n", encoding="ascii")
+        key_file.chmod(0o600)
+        console.print(f"Created a demo pseudonymisation key in {key_file} (kept outside the "
+                      "warehouse; a real site keeps its key in its own secret store).")
+    started = time.perf_counter()
+    result = run_ingest([corpus], warehouse, key_file, workers, None)
+    console.print(_ingest_table(result))
+    console.print(f"Ingest finished in {time.perf_counter() - started:.1f} s.")
     console.print(
-        "[yellow]Not yet done by this version:[/yellow] ingest into a DuckDB warehouse, the "
-        "reference-level audit and the dashboards. Those steps are still to be built; this "
-        "demo stops after generating the corpus.")
+        "[yellow]Not yet done by this version:[/yellow] the reference-level audit and the "
+        "dashboards. Query the warehouse meanwhile, e.g.\n"
+        f"  .venv/bin/kerma sql --warehouse {warehouse} "
+        "\"select modality, count(*) as studies, median(dap_total_gy_cm2) as median_dap_gy_cm2, "
+        "median(dlp_total_mgy_cm) as median_dlp_mgy_cm from study_dose group by 1 order by 1\"")
 
 
 def _fail(message: str) -> None:
@@ -147,6 +165,36 @@ def ingest_command(
     summary = run_ingest(paths, warehouse, key_file, workers, config)
     console.print(_ingest_table(summary))
     console.print(f"run {summary.run_id} finished in {time.perf_counter() - started:.1f} s")
+
+
+@app.command("sql")
+def sql_command(
+    query: str = typer.Argument(..., help="One SQL statement (read-only)."),
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    limit: int = typer.Option(50, help="Rows to print at most."),
+) -> None:
+    """Ask the warehouse an ad hoc question (read-only connection)."""
+    import duckdb
+
+    from .errors import WarehouseError
+    from .warehouse.connection import connection
+
+    try:
+        with connection(warehouse, read_only=True) as con:
+            try:
+                cursor = con.execute(query)
+            except duckdb.Error as exc:
+                _fail(str(exc).splitlines()[0])
+            columns = [d[0] for d in cursor.description or []]
+            rows = cursor.fetchmany(limit + 1)
+    except WarehouseError as exc:
+        _fail(str(exc))
+    table = Table(*columns)
+    for row in rows[:limit]:
+        table.add_row(*("" if v is None else f"{v:.6g}" if isinstance(v, float) else str(v) for v in row))
+    console.print(table)
+    if len(rows) > limit:
+        console.print(f"(first {limit} rows shown)")
 
 
 def main() -> None:  # pragma: no cover - console-script entry point

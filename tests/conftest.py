@@ -34,3 +34,14 @@ def files_manifest(corpus) -> pd.DataFrame:
 @pytest.fixture(scope="session")
 def studies_manifest(corpus) -> pd.DataFrame:
     return pd.read_parquet(corpus / "studies.parquet")
+
+
+@pytest.fixture(scope="session")
+def warehouse(corpus, tmp_path_factory):
+    """The session corpus ingested (2 worker processes) into a fresh DuckDB file."""
+    from pipeline.ingest import ingest
+    from tests.helpers import KEY
+
+    db = tmp_path_factory.mktemp("warehouse") / "kerma.duckdb"
+    summary = ingest([corpus], db, KEY, workers=2)
+    return db, summary

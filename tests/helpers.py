@@ -12,3 +12,46 @@ def require_tool(name: str) -> str:
         pytest.fail(f"external tool {name!r} not found: install Debian packages dcmtk and "
                     f"dicom3tools (.ci/run does)", pytrace=False)
     return path
+
+
+def round_trip(ds, **save_kwargs):
+    """Write `ds` to memory and read it back, as a real file would arrive."""
+    import io
+
+    import pydicom
+    buffer = io.BytesIO()
+    ds.save_as(buffer, enforce_file_format=True, **save_kwargs)
+    return pydicom.dcmread(io.BytesIO(buffer.getvalue()))
+
+
+def encode(ds, **save_kwargs) -> bytes:
+    import io
+    buffer = io.BytesIO()
+    ds.save_as(buffer, enforce_file_format=True, **save_kwargs)
+    return buffer.getvalue()
+
+
+def demo_dataset(device: str, report_number: int = 1, *, seed: int = 7, exam: str | None = None,
+                 cumulative: bool = False):
+    """(spec, dataset) of the first demo study on `device` (optionally of `exam`)."""
+    from synthetic_studies.generator import make_dataset
+    from synthetic_studies.sampling import make_study
+    from synthetic_studies.scenario import load_scenario
+
+    scenario = load_scenario()
+    for index in range(5000):
+        spec = make_study(scenario, seed, index, 5000, 3)
+        if spec.device != device or (exam and spec.exam != exam):
+            continue
+        if cumulative and len(spec.reports) < 2:
+            continue
+        return spec, make_dataset(scenario, spec, spec.reports[report_number - 1])
+    raise LookupError(f"no demo study on {device} {exam or ''}")
+
+
+KEY = b"test-key-0123456789abcdef"
+
+
+def pseudonymiser():
+    from pipeline.pseudonym import make_pseudonymiser
+    return make_pseudonymiser(KEY)

@@ -24,7 +24,7 @@ from .ct import parse_ct_accumulated, parse_ct_events
 from .headers import parse_ct_image_event, parse_projection_image_event
 from .projection import parse_projection_accumulated, parse_projection_events, projection_modality
 
-__all__ = ["DOSE_SR_CLASSES", "IMAGE_CLASSES", "parse_dose_object"]
+__all__ = ["DOSE_SR_CLASSES", "IMAGE_CLASSES", "MAX_ITEMS", "parse_dose_object"]
 
 XRAY_RDSR = "1.2.840.10008.5.1.4.1.1.88.67"
 ENHANCED_XRAY_RDSR = "1.2.840.10008.5.1.4.1.1.88.76"
@@ -50,7 +50,7 @@ _NOT_COUNTED = {
                                      "reports are counted instead, never both",
     "1.2.840.10008.5.1.4.1.1.88.68": "Radiopharmaceutical Radiation Dose SR: not an X-ray dose",
 }
-_MAX_ITEMS = 500_000
+MAX_ITEMS = 500_000  # a long interventional report has ~100k; more is hostile
 _IMAGE_DOSE_ATTRIBUTES = ("ImageAndFluoroscopyAreaDoseProduct", "EntranceDoseInmGy",
                           "EntranceDose", "OrganDose", "CTDIvol")
 
@@ -71,7 +71,8 @@ def _count_items(ds: Dataset, limit: int) -> int:
     return n
 
 
-def _parse_sr(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser) -> DoseObject:
+def _parse_sr(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser,
+              max_items: int = MAX_ITEMS) -> DoseObject:
     if concept_key(ds) != ("DCM", C.XRAY_RADIATION_DOSE_REPORT.value):
         root = ds.get("ConceptNameCodeSequence")
         found = f"({root[0].get('CodeValue')}, {root[0].get('CodingSchemeDesignator')})" if root else "none"
@@ -88,8 +89,8 @@ def _parse_sr(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonym
         raise MalformedReportError(
             f"{sop_uid}: content tree nested deeper than {MAX_DEPTH} levels",
             reason="content_tree_too_deep", sop_instance_uid=sop_uid) from None
-    if _count_items(ds, _MAX_ITEMS) > _MAX_ITEMS:
-        raise MalformedReportError(f"{sop_uid}: content tree has more than {_MAX_ITEMS} items",
+    if _count_items(ds, max_items) > max_items:
+        raise MalformedReportError(f"{sop_uid}: content tree has more than {max_items} items",
                                    reason="content_tree_too_large", sop_instance_uid=sop_uid)
 
     template = None
@@ -165,7 +166,8 @@ def _int(text: str | None) -> int | None:
         return None
 
 
-def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser) -> DoseObject:
+def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser,
+                 max_items: int = MAX_ITEMS) -> DoseObject:
     modality = (header_text(ds, "Modality") or IMAGE_CLASSES[sop_class]).upper()
     if modality not in ("CT", "CR", "DX", "MG", "XA", "RF", "PX", "IO"):
         modality = IMAGE_CLASSES[sop_class]
@@ -193,13 +195,14 @@ def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudo
         study=study, device=device, ct_events=ct, projection_events=proj, issues=m.issues)
 
 
-_PARSERS: dict[str, Callable[[Dataset, str, str, Pseudonymiser], DoseObject]] = {
+_PARSERS: dict[str, Callable[..., DoseObject]] = {
     **{uid: _parse_sr for uid in DOSE_SR_CLASSES},
     **{uid: _parse_image for uid in IMAGE_CLASSES},
 }
 
 
-def parse_dose_object(ds: Dataset, pseudonymise: Pseudonymiser) -> DoseObject:
+def parse_dose_object(ds: Dataset, pseudonymise: Pseudonymiser, *,
+                      max_items: int = MAX_ITEMS) -> DoseObject:
     """Parse one dataset into a DoseObject.
 
     Raises
@@ -221,4 +224,4 @@ def parse_dose_object(ds: Dataset, pseudonymise: Pseudonymiser) -> DoseObject:
     if parser is None:
         raise NotADoseObjectError(f"{sop_uid}: {_class_name(sop_class)} carries no dose information",
                                   reason="not_a_dose_class", sop_instance_uid=sop_uid)
-    return parser(ds, sop_uid, sop_class, pseudonymise)
+    return parser(ds, sop_uid, sop_class, pseudonymise, max_items)
