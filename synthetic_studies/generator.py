@@ -6,6 +6,10 @@
   root TID 10001 (TID 10002 per plane with TID 10004/10005/10007, TID 10003 per event).
 * Units that send no dose report: CR Image Storage objects carrying the dose attributes of
   the X-Ray Acquisition Dose module in their headers, with a tiny pixel matrix.
+* Units that send their images beside the RDSR (``header_images``): CT Image Storage
+  (CTDIvol in the CT Image module) and Digital Mammography X-Ray Image Storage - For
+  Presentation (Organ Dose in the X-Ray Acquisition Dose module) headers, tiny pixel
+  matrices, each with the Irradiation Event UID of the RDSR event it shows.
 * A Basic Text SR that is not a dose report (for the corpus's "not a dose object" files).
 """
 
@@ -39,18 +43,24 @@ from .sr import (
 __all__ = [
     "BASIC_TEXT_SR",
     "CR_IMAGE",
+    "CT_IMAGE",
     "IMPLEMENTATION_CLASS_UID",
+    "MG_IMAGE",
     "XRAY_RADIATION_DOSE_SR",
     "make_basic_text_sr",
     "make_cr_image",
+    "make_ct_image",
     "make_ct_rdsr",
     "make_dataset",
+    "make_mg_image",
     "make_projection_rdsr",
 ]
 
 XRAY_RADIATION_DOSE_SR = UID("1.2.840.10008.5.1.4.1.1.88.67")
 BASIC_TEXT_SR = UID("1.2.840.10008.5.1.4.1.1.88.11")
 CR_IMAGE = UID("1.2.840.10008.5.1.4.1.1.1")
+CT_IMAGE = UID("1.2.840.10008.5.1.4.1.1.2")
+MG_IMAGE = UID("1.2.840.10008.5.1.4.1.1.1.2")  # Digital Mammography X-Ray - For Presentation
 IMPLEMENTATION_CLASS_UID = UID(uid("kerma-ledger", "implementation-class", 1))
 IMPLEMENTATION_VERSION = "KERMALEDGER01"
 
@@ -470,6 +480,214 @@ def make_cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     return ds
 
 
+# --- image headers beside an RDSR (units with `header_images`) -------------------------------
+
+# Body Part Examined (0018,0015) for a CT target region, by SCT code (PS3.16 Annex L,
+# "Correspondence of Anatomic Region Codes and Body Part Examined Defined Terms").
+# Annex L has no term for the paranasal sinuses alone: they are in the head.
+_BODY_PART = {
+    "69536005": "HEAD",
+    "2095001": "HEAD",
+    "816094009": "CHEST",
+    "818982008": "ABDOMENPELVIS",
+    "416775004": "CHESTABDPELVIS",
+    "122494005": "CSPINE",
+}
+_SCAN_OPTIONS = {"spiral": "HELICAL", "sequenced": "AXIAL", "stationary": "AXIAL"}
+# Demo reconstruction geometry (no source): field of view and slice thickness, mm.
+_RECON_DIAMETER_MM = {"head": 240.0, "body": 400.0}
+_DATA_COLLECTION_DIAMETER_MM = {"head": 320.0, "body": 500.0}
+_BREAST = ("76752008", "SCT", "Breast")
+# Patient Orientation (0020,0020) of a mammogram, (row direction, column direction)
+# (PS3.3 C.7.6.1.1.1), for the usual back-to-back hanging (from memory): right breast on
+# the viewer's left, chest walls toward the midline. The oblique column direction (FL/FR)
+# is simplified to F.
+_MG_ORIENTATION = {("L", "CC"): ["A", "R"], ("R", "CC"): ["P", "L"],
+                   ("L", "MLO"): ["A", "F"], ("R", "MLO"): ["P", "F"]}
+CONTRAST_AGENT = "Iodinated contrast agent"  # generic description, no product name
+
+
+def _tiny_pixels(ds: Dataset, values) -> None:
+    """8x8 MONOCHROME2, 16 bits allocated, 12 stored, unsigned (PS3.3 C.7.6.3 Image Pixel)."""
+    import numpy as np
+
+    array = np.asarray(values, dtype="<u2")
+    if array.shape != (8, 8) or int(array.max()) >= 1 << 12:
+        raise ValueError("need an 8x8 matrix of 12-bit values")
+    ds.SamplesPerPixel = 1
+    ds.PhotometricInterpretation = "MONOCHROME2"
+    ds.Rows = 8
+    ds.Columns = 8
+    ds.BitsAllocated = 16
+    ds.BitsStored = 12
+    ds.HighBit = 11
+    ds.PixelRepresentation = 0
+    ds.PixelData = array.tobytes()
+
+
+def _water_disc() -> list[list[int]]:
+    """A water disc in air: stored 1024 = 0 HU, 0 = -1024 HU with the rescale written."""
+    return [[1024 if (r - 3.5) ** 2 + (c - 3.5) ** 2 <= 10.0 else 0 for c in range(8)]
+            for r in range(8)]
+
+
+def _per_image_exposure_ms(e: CtEvent) -> float:
+    """X-ray exposure time of one reconstructed image, ms (PS3.3 C.8.2.1: ExposureTime ms).
+
+    Spiral: one rotation spread over the table feed, Revolution Time / Spiral Pitch Factor;
+    sequenced and stationary: one rotation. (The RDSR's Exposure Time, TID 10013, is the
+    total for the whole acquisition instead.)
+    """
+    if e.kind == "spiral":
+        return e.rotation_time_s / e.pitch_factor * 1000.0
+    return e.rotation_time_s * 1000.0
+
+
+def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """CT Image Storage (PS3.3 A.3) header for one CT acquisition, beside the study's RDSR.
+
+    One representative image of acquisition number ``report.event_number`` (never a
+    localizer). Its Irradiation Event UID (0008,3010) is the RDSR event's, so an ingest
+    that reads both counts the acquisition once. Units (PS3.3 C.8.2.1 CT Image module):
+    CTDIvol (0018,9345) mGy; KVP (0018,0060) kV; X-Ray Tube Current (0018,1151) mA;
+    Exposure Time (0018,1150) ms and Exposure (0018,1152) mAs and Exposure in uAs
+    (0018,1153) uAs for this image; Revolution Time (0018,9305) s; Single / Total
+    Collimation Width (0018,9306 / 9307) mm; Table Feed per Rotation (0018,9310) mm;
+    Table Speed (0018,9309) mm/s. No Acquisition Type (0018,9302): it belongs to the
+    Enhanced CT Image IOD (PS3.3 C.8.15.3.2), not the CT Image IOD; Scan Options (0018,0022)
+    carries HELICAL / AXIAL instead.
+    """
+    e = spec.ct_events[report.event_number - 1]
+    if e.kind == "localizer":
+        raise ValueError("header images are written for non-localizer acquisitions only")
+    exam = scenario.exams[spec.exam]
+    ds = _base(scenario, spec, report, CT_IMAGE, "CT", report.event_number)
+    ds.ImageType = ["ORIGINAL", "PRIMARY", "AXIAL"]
+    ds.AcquisitionDate = _da(e.started.date())
+    ds.AcquisitionTime = _tm(e.started)
+    ds.AcquisitionNumber = report.event_number
+    ds.IrradiationEventUID = e.event_uid
+    ds.SeriesDescription = e.protocol
+    ds.ProtocolName = e.protocol
+    ds.BodyPartExamined = _BODY_PART[e.target_region[0]]
+    ds.AnatomicRegionSequence = Sequence([code_sequence_item(e.target_region)])
+    ds.PatientPosition = "HFS"
+    # Frame of Reference (PS3.3 C.7.4.1) and Image Plane (PS3.3 C.7.6.2), mm
+    ds.FrameOfReferenceUID = report.frame_of_reference_uid
+    ds.PositionReferenceIndicator = ""
+    recon = _RECON_DIAMETER_MM[e.phantom]
+    spacing = recon / 8
+    ds.SliceThickness = format_ds(e.total_collimation_mm if e.kind == "stationary"
+                                  else (5.0 if e.phantom == "head" else 2.5))
+    ds.ImagePositionPatient = [format_ds(-recon / 2 + spacing / 2)] * 2 + ["0"]
+    ds.ImageOrientationPatient = ["1", "0", "0", "0", "1", "0"]
+    ds.SliceLocation = "0"
+    ds.PixelSpacing = [format_ds(spacing)] * 2
+    if exam.contrast:  # Contrast/Bolus module (PS3.3 C.7.6.4): required if contrast used
+        ds.ContrastBolusAgent = CONTRAST_AGENT
+        ds.ContrastBolusRoute = "IV"
+    # CT Image module (PS3.3 C.8.2.1)
+    ds.ScanOptions = _SCAN_OPTIONS[e.kind]
+    ds.KVP = format_ds(e.kvp)
+    ds.DataCollectionDiameter = format_ds(_DATA_COLLECTION_DIAMETER_MM[e.phantom])
+    ds.ReconstructionDiameter = format_ds(recon)
+    ds.GantryDetectorTilt = "0"
+    ds.RotationDirection = "CW"
+    t_ms = _per_image_exposure_ms(e)
+    ds.ExposureTime = str(int(round(t_ms)))
+    ds.XRayTubeCurrent = str(int(round(e.tube_current_ma)))
+    ds.Exposure = str(int(round(e.tube_current_ma * t_ms / 1000.0)))  # mA.s
+    ds.ExposureInuAs = str(int(round(e.tube_current_ma * t_ms)))       # mA.ms = uA.s
+    ds.RevolutionTime = e.rotation_time_s
+    ds.SingleCollimationWidth = e.single_collimation_mm
+    ds.TotalCollimationWidth = e.total_collimation_mm
+    if e.kind == "spiral":
+        feed = e.pitch_factor * e.total_collimation_mm  # pitch = feed / total collimation
+        ds.TableFeedPerRotation = feed
+        ds.TableSpeed = feed / e.rotation_time_s
+        ds.SpiralPitchFactor = e.pitch_factor
+    if e.ctdivol_mgy is not None:
+        ds.CTDIvol = e.ctdivol_mgy
+        ds.CTDIPhantomTypeCodeSequence = Sequence([code_sequence_item(_PHANTOM[e.phantom])])
+    ds.RescaleIntercept = "-1024"
+    ds.RescaleSlope = "1"
+    ds.RescaleType = "HU"
+    ds.WindowCenter = "40"
+    ds.WindowWidth = "80" if e.phantom == "head" else "400"
+    _tiny_pixels(ds, _water_disc())
+    return ds
+
+
+def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """Digital Mammography X-Ray Image Storage - For Presentation (PS3.3 A.27) for one view.
+
+    Shares the RDSR event's Irradiation Event UID (0008,3010). Units: Organ Dose
+    (0040,0316) is in dGy (PS3.3 C.8.7.8), the average glandular dose of this view, so
+    dGy = AGD mGy / 100 (1 dGy = 100 mGy); Entrance Dose in mGy (0040,8302) mGy; Body Part
+    Thickness (0018,11A0) mm, the compressed breast thickness, and Compression Force
+    (0018,11A2) N (PS3.3 C.8.11.5 DX Positioning); Half Value Layer (0040,0314) mm of
+    aluminium; Filter Thickness Minimum / Maximum (0018,7052 / 7054) mm; KVP kV, Exposure Time ms, X-Ray Tube
+    Current mA, Exposure mAs, Exposure in uAs (PS3.3 C.8.7.8).
+    """
+    e = spec.projection_events[report.event_number - 1]
+    ds = _base(scenario, spec, report, MG_IMAGE, "MG", 1)
+    ds.ImageType = ["ORIGINAL", "PRIMARY"]
+    ds.AcquisitionDate = _da(e.started.date())
+    ds.AcquisitionTime = _tm(e.started)
+    ds.AcquisitionNumber = report.event_number
+    ds.IrradiationEventUID = e.event_uid
+    ds.SeriesDescription = spec.study_description
+    ds.ProtocolName = e.protocol
+    ds.BodyPartExamined = "BREAST"
+    # DX Series (PS3.3 C.8.11.1), DX Anatomy Imaged (C.8.11.2), Mammography Image (C.8.11.7)
+    ds.PresentationIntentType = "FOR PRESENTATION"
+    ds.AnatomicRegionSequence = Sequence([code_sequence_item(_BREAST)])
+    ds.ImageLaterality = e.laterality
+    ds.PatientOrientation = _MG_ORIENTATION[(e.laterality, e.view)]
+    ds.PositionerType = "MAMMOGRAPHIC"
+    ds.BreastImplantPresent = "NO"
+    ds.OrganExposed = "BREAST"
+    view = code_sequence_item(_VIEW[e.view])
+    view.ViewModifierCodeSequence = Sequence()
+    ds.ViewCodeSequence = Sequence([view])
+    ds.ViewPosition = e.view
+    # DX Positioning (PS3.3 C.8.11.5)
+    ds.DistanceSourceToDetector = format_ds(e.sid_mm)
+    ds.BodyPartThickness = format_ds(e.compressed_thickness_mm)
+    ds.CompressionForce = format_ds(e.compression_force_n)
+    # X-Ray Acquisition Dose (PS3.3 C.8.7.8) and X-Ray Generation / Filtration
+    ds.KVP = format_ds(e.kvp)
+    ds.ExposureTime = str(int(round(e.exposure_time_ms)))
+    ds.XRayTubeCurrent = str(int(round(e.tube_current_ma)))
+    ds.Exposure = str(int(round(e.exposure_uas / 1000.0)))
+    ds.ExposureInuAs = str(int(round(e.exposure_uas)))
+    ds.AnodeTargetMaterial = _MATERIAL_TERM[e.anode]
+    ds.FilterMaterial = _MATERIAL_TERM[e.filter_material]
+    ds.FilterThicknessMinimum = format_ds(e.filter_thickness_mm)
+    ds.FilterThicknessMaximum = format_ds(e.filter_thickness_mm)
+    ds.HalfValueLayer = format_ds(e.hvl_mm)
+    ds.OrganDose = format_ds(e.agd_mgy / 100.0)
+    ds.EntranceDoseInmGy = format_ds(e.entrance_exposure_mgy)
+    # DX Detector (PS3.3 C.8.11.4), mm
+    ds.DetectorType = "DIRECT"
+    ds.ImagerPixelSpacing = ["0.1", "0.1"]
+    # Acquisition Context (PS3.3 C.7.6.14): type 2, empty
+    ds.AcquisitionContextSequence = Sequence()
+    # DX Image (PS3.3 C.8.11.3) and VOI LUT (C.11.2): a For Presentation image
+    ds.BurnedInAnnotation = "NO"
+    ds.PixelIntensityRelationship = "LOG"
+    ds.PixelIntensityRelationshipSign = 1
+    ds.RescaleIntercept = "0"
+    ds.RescaleSlope = "1"
+    ds.RescaleType = "US"
+    ds.LossyImageCompression = "00"
+    ds.PresentationLUTShape = "IDENTITY"
+    ds.WindowCenter = "2048"
+    ds.WindowWidth = "4096"
+    _tiny_pixels(ds, [[(r * 8 + c) * 60 for c in range(8)] for r in range(8)])
+    return ds
+
+
 def make_basic_text_sr(scenario: Scenario, spec: StudySpec, sop_instance_uid: str) -> Dataset:
     """A valid Basic Text SR (a clinical note) filed in a dose study: not a dose object."""
     report = ReportSpec("other", 0, sop_instance_uid,
@@ -496,6 +714,8 @@ _MAKERS = {
     ("rdsr", "MG"): make_projection_rdsr,
     ("image_header", "CR"): make_cr_image,
     ("image_header", "DX"): make_cr_image,
+    ("image_header", "CT"): make_ct_image,
+    ("image_header", "MG"): make_mg_image,
 }
 
 

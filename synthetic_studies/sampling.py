@@ -335,6 +335,9 @@ def _mg_events(rng, scenario, seed, index, device, exam, start, scale) -> list[P
     anode, filt = device.target_filter or ("W", "Rh")
     study_factor = _lognormal(rng, 1.0, exam.sigma) * scale
     thickness = {side: float(np.clip(rng.normal(55.0, 12.0), 22.0, 95.0)) for side in "LR"}
+    # Compression force has its own stream so that adding it left every other draw as it was.
+    # Demo numbers only (no source): about 110 N, 50-200 N.
+    force_rng = _rng(seed, "mg-compression-force", index)
     for n, ev in enumerate(exam.events):
         side = ev["laterality"]
         th = round(thickness[side] + (4.0 if ev["view"] == "MLO" else 0.0), 0)
@@ -363,6 +366,7 @@ def _mg_events(rng, scenario, seed, index, device, exam, start, scale) -> list[P
             agd_mgy=agd,
             entrance_exposure_mgy=_sig(agd * (3.2 + th / 25.0), 3),
             compressed_thickness_mm=th,
+            compression_force_n=float(round(np.clip(force_rng.normal(110.0, 25.0), 50.0, 200.0))),
             hvl_mm=_sig(0.30 + kvp / 100.0 * (0.6 if anode == "W" else 0.45), 3),
             anode=anode,
         ))
@@ -436,13 +440,16 @@ def make_study(scenario: Scenario, seed: int, index: int, n_studies: int,
                 content_time=proj[number - 1].started,
             ))
 
+    if device.header_images:
+        reports += _header_image_reports(scenario, seed, index, ct, proj)
+
     de_description = de.description or exam.study_description
     story = special_key
     if device.changes and any(month + 1 >= c.from_month for c in device.changes):
         story = story or "after_step_change"
     if de.dose_scale != 1.0:
         story = story or "high_protocol"
-    if len(reports) > 1 and reports[0].kind == "rdsr":
+    if sum(r.kind == "rdsr" for r in reports) > 1:
         story = story or "cumulative_reports"
     return StudySpec(
         index=index,
@@ -462,6 +469,36 @@ def make_study(scenario: Scenario, seed: int, index: int, n_studies: int,
         story=story,
         notes={"last_event": last.isoformat()},
     )
+
+
+def _header_image_reports(scenario: Scenario, seed: int, index: int, ct: list[CtEvent],
+                          proj: list[ProjectionEvent]) -> list[ReportSpec]:
+    """Image headers a unit sends beside its RDSR (``header_images``), after the RDSRs.
+
+    CT: one representative image per non-localizer acquisition, each acquisition its own
+    series, all in one Frame of Reference (one patient on one table). Mammography: one image
+    per view, the views of a study in one series. No random draws: only UIDs and times.
+    """
+    ns = scenario.uid_namespace
+    out = []
+    if ct:
+        frame = uid(ns, seed, index, "frame-of-reference")
+        for number, e in enumerate(ct, start=1):
+            if e.kind == "localizer":
+                continue
+            out.append(ReportSpec(
+                kind="image_header", n_events=number,
+                sop_instance_uid=uid(ns, seed, index, "image", number),
+                series_instance_uid=uid(ns, seed, index, "series", number),
+                instance_number=1, content_time=e.started, frame_of_reference_uid=frame))
+    else:
+        series = uid(ns, seed, index, "image-series")
+        for number, e in enumerate(proj, start=1):
+            out.append(ReportSpec(
+                kind="image_header", n_events=number,
+                sop_instance_uid=uid(ns, seed, index, "image", number),
+                series_instance_uid=series, instance_number=number, content_time=e.started))
+    return out
 
 
 _POOL_SHARE = {"adult": 0.7, "child": 0.05, "breast": 0.17, "cardiac": 0.05}

@@ -19,6 +19,7 @@ __all__ = [
     "DeviceSpec",
     "DoseChange",
     "ExamSpec",
+    "HEADER_IMAGE_MODALITIES",
     "Scenario",
     "Site",
     "load_scenario",
@@ -48,6 +49,7 @@ class ExamSpec:
     fluoro_runs: tuple[int, int] | None = None
     fluoro_time_s: float | None = None
     acquisitions: tuple[int, int] | None = None
+    contrast: bool = False  # intravenous contrast given (CT: PS3.3 C.7.6.4 Contrast/Bolus)
 
 
 @dataclass(frozen=True, slots=True)
@@ -68,7 +70,13 @@ class DoseChange:
 
 @dataclass(frozen=True, slots=True)
 class DeviceSpec:
-    """One irradiating unit with its stable identity (PS3.16 TID 1004 device observer)."""
+    """One irradiating unit with its stable identity (PS3.16 TID 1004 device observer).
+
+    ``header_images``: a unit with ``reports = "rdsr"`` that also sends its images, so the
+    archive holds both the dose report and image headers carrying dose attributes for the
+    same irradiation events (shared Irradiation Event UID (0008,3010)). Only CT and MG units
+    have a header-image writer.
+    """
 
     id: str
     site: str
@@ -88,6 +96,10 @@ class DeviceSpec:
     biplane: bool = False
     head_technique: str = "spiral"
     target_filter: tuple[str, str] | None = None
+    header_images: bool = False
+
+
+HEADER_IMAGE_MODALITIES = ("CT", "MG")
 
 
 @dataclass(frozen=True, slots=True)
@@ -118,7 +130,8 @@ def load_scenario(path: Path | str | None = None) -> Scenario:
     Raises
     ------
     ValueError
-        If a device names an unknown site or exam, or a share is not positive.
+        If a device names an unknown site or exam, a share is not positive, or a device asks
+        for header images without sending an RDSR or on a modality with no image writer.
     """
     if path is None:
         text = resources.files(__package__).joinpath(DEFAULT_SCENARIO).read_text("utf-8")
@@ -140,6 +153,12 @@ def _from_mapping(raw: dict[str, Any]) -> Scenario:
                 raise ValueError(f"device {device.id!r} names unknown exam {de.exam!r}")
             if de.share <= 0:
                 raise ValueError(f"device {device.id!r} exam {de.exam!r}: share must be > 0")
+        if device.header_images and device.reports != "rdsr":
+            raise ValueError(f"device {device.id!r}: header_images needs reports = 'rdsr' "
+                             f"(an image_header unit writes its images anyway)")
+        if device.header_images and device.modality not in HEADER_IMAGE_MODALITIES:
+            raise ValueError(f"device {device.id!r}: no header-image writer for modality "
+                             f"{device.modality!r} (have {', '.join(HEADER_IMAGE_MODALITIES)})")
     return Scenario(
         name=net["name"],
         start_date=dt.date.fromisoformat(str(net["start_date"])),
@@ -168,6 +187,7 @@ def _exam(key: str, e: dict[str, Any]) -> ExamSpec:
         fluoro_runs=tuple(e["fluoro_runs"]) if "fluoro_runs" in e else None,
         fluoro_time_s=float(e["fluoro_time"]) if "fluoro_time" in e else None,
         acquisitions=tuple(e["acquisitions"]) if "acquisitions" in e else None,
+        contrast=bool(e.get("contrast", False)),
     )
 
 
@@ -191,4 +211,5 @@ def _device(d: dict[str, Any]) -> DeviceSpec:
         biplane=bool(d.get("biplane", False)),
         head_technique=d.get("head_technique", "spiral"),
         target_filter=tuple(d["target_filter"]) if "target_filter" in d else None,
+        header_images=bool(d.get("header_images", False)),
     )

@@ -92,20 +92,39 @@ class ProjectionEvent:
     agd_mgy: float | None = None
     entrance_exposure_mgy: float | None = None
     compressed_thickness_mm: float | None = None
+    compression_force_n: float | None = None  # mammography: N (PS3.3 C.8.11.5, (0018,11A2))
     hvl_mm: float | None = None
     anode: str | None = None  # W | Mo | Rh
 
 
 @dataclass(frozen=True, slots=True)
 class ReportSpec:
-    """One dose object to write for the study: an RDSR (some events) or image headers."""
+    """One dose object to write for the study: an RDSR (some events) or an image header.
+
+    ``kind = "rdsr"``: the report covers ``events[:n_events]`` (cumulative reports grow).
+    ``kind = "image_header"``: one image of event number ``n_events`` (1-based, so the
+    image shows ``events[n_events - 1]``; see :attr:`event_number`). Image headers come
+    from units that send no dose report (CR) or, beside the RDSR, from units with
+    ``header_images`` (CT, MG); those share the RDSR events' Irradiation Event UIDs.
+    ``frame_of_reference_uid``: Frame of Reference UID (0020,0052) of images whose IOD
+    has the Frame of Reference module as mandatory (CT, PS3.3 A.3); else None.
+    """
 
     kind: str  # rdsr | image_header
-    n_events: int  # the report covers events[:n_events] (cumulative reports grow)
+    n_events: int
     sop_instance_uid: str
     series_instance_uid: str
     instance_number: int
     content_time: dt.datetime
+    frame_of_reference_uid: str | None = None
+
+    @property
+    def event_number(self) -> int:
+        """1-based number of the event an image header shows."""
+        if self.kind != "image_header":
+            raise ValueError(f"a {self.kind} report covers events[:{self.n_events}], "
+                             f"not one event")
+        return self.n_events
 
 
 @dataclass(frozen=True, slots=True)

@@ -5,6 +5,8 @@ Output folder layout::
     OUT/
       TGH/tgh-ct1/2026-09/s000123/rdsr_1.dcm     one folder per study: its dose objects,
       TGH/tgh-ct1/2026-09/s000123/rdsr_1.resent.dcm  and any file defects placed beside them
+      OVH/ovh-ct1/2026-09/s000124/img_2.dcm       header images (n = event number); beside the
+                                                  RDSR for units with header_images
       ...
       files.parquet                               one row per file
       studies.parquet                             one row per study, true totals
@@ -16,13 +18,16 @@ whatever the number of worker processes.
 from __future__ import annotations
 
 import io
+import multiprocessing
 import os
 from concurrent.futures import ProcessPoolExecutor
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
 import pyarrow as pa
 import pyarrow.parquet as pq
+import pydicom.config
 import numpy as np
 
 from .defects import CONTENT_DEFECTS, FILE_DEFECTS, apply_content_defect, is_eligible
@@ -42,6 +47,7 @@ FILES_SCHEMA = pa.schema([
     ("defect", pa.string()),
     ("n_events", pa.int32()),
     ("size_bytes", pa.int64()),
+    ("irradiation_event_uid", pa.string()),
 ])
 
 STUDIES_SCHEMA = pa.schema([
@@ -72,6 +78,7 @@ STUDIES_SCHEMA = pa.schema([
     ("agd_mgy", pa.float64()),
     ("story", pa.string()),
     ("defect", pa.string()),
+    ("n_header_images", pa.int32()),
 ])
 
 
@@ -148,7 +155,8 @@ def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, mont
         rel = f"{folder}/{name}"
         _write_bytes(root, rel, data)
         files.append(_file_row(rel, ds.SOPClassUID, ds.SOPInstanceUID, sid, report.kind,
-                               defect, report.n_events, len(data)))
+                               defect, report.n_events, len(data),
+                               ds.get("IrradiationEventUID")))
         if report.kind == "rdsr" and report.instance_number == 1:
             first, first_ds = data, ds
     if "truncated" in defects:
@@ -160,8 +168,9 @@ def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, mont
     if "duplicate_copy" in defects:
         rel = f"{folder}/rdsr_1.resent.dcm"
         _write_bytes(root, rel, first)
+        first_rdsr = next(r for r in spec.reports if r.kind == "rdsr")
         files.append(_file_row(rel, first_ds.SOPClassUID, first_ds.SOPInstanceUID, sid,
-                               "rdsr", "duplicate_copy", spec.reports[0].n_events, len(first)))
+                               "rdsr", "duplicate_copy", first_rdsr.n_events, len(first)))
     if "not_dose_sr" in defects:
         note_uid = uid(scenario.uid_namespace, seed, index, "note")
         ds = make_basic_text_sr(scenario, spec, note_uid)
@@ -179,16 +188,28 @@ def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, mont
     return files, _study_row(scenario, spec, content_defect)
 
 
-def _file_row(path, sop_class, sop_instance, study, kind, defect, n_events, size) -> dict:
+def _file_row(path, sop_class, sop_instance, study, kind, defect, n_events, size,
+              event_uid=None) -> dict:
+    """One files.parquet row. ``n_events``: events an RDSR covers, or the 1-based event
+    number an image header shows; ``irradiation_event_uid``: an image's (0008,3010)."""
     return {"path": path, "sop_class_uid": None if sop_class is None else str(sop_class),
             "sop_instance_uid": None if sop_instance is None else str(sop_instance),
             "study": study, "kind": kind, "defect": defect, "n_events": n_events,
-            "size_bytes": size}
+            "size_bytes": size,
+            "irradiation_event_uid": None if event_uid is None else str(event_uid)}
 
 
 def _study_row(scenario: Scenario, spec: StudySpec, defect: str | None) -> dict:
+    """One studies.parquet row.
+
+    ``source_kind`` is "rdsr" when the study has a dose report (even if header images sit
+    beside it), else "image_header"; ``n_reports`` counts the objects of that kind (RDSRs,
+    or the header-only images); ``n_header_images`` counts all image headers.
+    """
     device = scenario.device(spec.device)
     p = spec.patient
+    kinds = [r.kind for r in spec.reports]
+    source_kind = "rdsr" if "rdsr" in kinds else "image_header"
     return {
         "study": _study_id(spec.index),
         "study_instance_uid": spec.study_uid,
@@ -206,22 +227,38 @@ def _study_row(scenario: Scenario, spec: StudySpec, defect: str | None) -> dict:
         "patient_age_years": spec.age_years,
         "patient_weight_kg": p.weight_kg,
         "patient_height_m": p.height_m,
-        "source_kind": spec.reports[0].kind,
-        "n_reports": len(spec.reports),
+        "source_kind": source_kind,
+        "n_reports": kinds.count(source_kind),
         **study_truth(spec),
         "story": spec.story,
         "defect": defect,
+        "n_header_images": kinds.count("image_header"),
     }
+
+
+@contextmanager
+def _strict_writing():
+    """Write with pydicom's RAISE validation: the generator never writes an invalid value,
+    whatever the calling process has configured (spawned workers start from defaults)."""
+    settings = pydicom.config.settings
+    before = settings.writing_validation_mode
+    settings.writing_validation_mode = pydicom.config.RAISE
+    try:
+        yield
+    finally:
+        settings.writing_validation_mode = before
 
 
 def _write_chunk(args) -> tuple[list[dict], list[dict]]:
     scenario_path, seed, indices, n_studies, months, plan, root = args
     scenario = load_scenario(scenario_path)
     files, studies = [], []
-    for index in indices:
-        f, s = _write_study(scenario, seed, index, n_studies, months, plan.get(index, []), root)
-        files += f
-        studies.append(s)
+    with _strict_writing():
+        for index in indices:
+            f, s = _write_study(scenario, seed, index, n_studies, months,
+                                plan.get(index, []), root)
+            files += f
+            studies.append(s)
     return files, studies
 
 
@@ -248,15 +285,17 @@ def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studi
              plan, root) for i in range(0, n_studies, chunk)]
     files, studies = [], []
     if workers == 1 or len(jobs) == 1:
-        results = map(_write_chunk, jobs)
+        results = list(map(_write_chunk, jobs))
     else:
-        pool = ProcessPoolExecutor(max_workers=workers)
-        results = pool.map(_write_chunk, jobs)
+        # "spawn", not the Linux default "fork": a forked child inherits the caller's native
+        # library state (e.g. an open DuckDB connection and its threads) and can crash on it.
+        # Workers need nothing from the parent but their picklable job tuple.
+        with ProcessPoolExecutor(max_workers=workers,
+                                 mp_context=multiprocessing.get_context("spawn")) as pool:
+            results = list(pool.map(_write_chunk, jobs))
     for f, s in results:
         files += f
         studies += s
-    if workers != 1 and len(jobs) != 1:
-        pool.shutdown()
     files.sort(key=lambda r: r["path"])
     pq.write_table(pa.Table.from_pylist(files, schema=FILES_SCHEMA), root / "files.parquet")
     pq.write_table(pa.Table.from_pylist(studies, schema=STUDIES_SCHEMA), root / "studies.parquet")
