@@ -17,7 +17,7 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
 )
-console = Console()
+console = Console(width=None if Console().is_terminal else 110)
 
 DEFAULT_DEMO_DIR = Path("kerma-demo")
 
@@ -72,7 +72,7 @@ def demo(
     warehouse = out / "kerma.duckdb"
     key_file = out / "pseudonym.key"
     console.rule("Kerma Ledger demo")
-    console.print("Step 1 of 2: generating the synthetic corpus of the invented "
+    console.print("Step 1 of 3: generating the synthetic corpus of the invented "
                   "Tarnwick Regional Imaging Network (no real patients, sites or devices).")
     started = time.perf_counter()
     summary = write_corpus(corpus, seed=seed, months=3, n_studies=studies, workers=workers)
@@ -82,7 +82,7 @@ def demo(
         f"defects) and the ground-truth manifest to {corpus} in "
         f"{time.perf_counter() - started:.1f} s.")
 
-    console.print(f"Step 2 of 2: ingesting {corpus} into the warehouse {warehouse}.")
+    console.print(f"Step 2 of 3: ingesting {corpus} into the warehouse {warehouse}.")
     if not key_file.exists():
         key_file.write_text(secrets.token_hex(32) + "\n", encoding="ascii")
         key_file.chmod(0o600)
@@ -92,12 +92,24 @@ def demo(
     result = run_ingest([corpus], warehouse, key_file, workers, None)
     console.print(_ingest_table(result))
     console.print(f"Ingest finished in {time.perf_counter() - started:.1f} s.")
+
+    import datetime as dt
+
+    from synthetic_studies.sampling import month_starts
+    from synthetic_studies.scenario import load_scenario
+
+    from .audit import run_audit
+
+    bounds = month_starts(load_scenario().start_date, 3)
+    first, last = bounds[0], bounds[-1] - dt.timedelta(days=1)
+    console.print(f"Step 3 of 3: auditing {first} to {last} against the verified published "
+                  "reference levels.")
+    print_audit_summary(run_audit(warehouse, date_from=first, date_to=last))
     console.print(
-        "[yellow]Not yet done by this version:[/yellow] the reference-level audit and the "
-        "dashboards. Query the warehouse meanwhile, e.g.\n"
+        "Ask your own questions, e.g.\n"
         f"  .venv/bin/kerma sql --warehouse {warehouse} "
-        "\"select modality, count(*) as studies, median(dap_total_gy_cm2) as median_dap_gy_cm2, "
-        "median(dlp_total_mgy_cm) as median_dlp_mgy_cm from study_dose group by 1 order by 1\"")
+        "\"select exam_type, quantity, site, n, median, reference_value, ratio_to_reference "
+        "from audit_medians where is_above_reference\"")
 
 
 def _fail(message: str) -> None:
@@ -195,6 +207,179 @@ def sql_command(
     console.print(table)
     if len(rows) > limit:
         console.print(f"(first {limit} rows shown)")
+
+
+exams_app = typer.Typer(help="Standard exam types and the rules that map descriptions onto them.",
+                        no_args_is_help=True)
+reference_app = typer.Typer(help="Reference-level sets (national, local, derived).", no_args_is_help=True)
+app.add_typer(exams_app, name="exams")
+app.add_typer(reference_app, name="reference")
+
+
+def _open(warehouse: Path, read_only: bool = False):
+    from .errors import WarehouseError
+    from .warehouse.connection import connection
+    try:
+        return connection(warehouse, read_only=read_only)
+    except WarehouseError as exc:  # pragma: no cover - raised on enter, below
+        _fail(str(exc))
+
+
+def _rows_table(title: str, frame, floats: str = "{:.4g}") -> Table:
+    table = Table(title=title)
+    for column in frame.columns:
+        table.add_column(str(column))
+    for row in frame.itertuples(index=False):
+        table.add_row(*("" if v is None or v != v else floats.format(v) if isinstance(v, float)
+                        else str(v) for v in row))
+    return table
+
+
+@exams_app.command("unmapped")
+def exams_unmapped(
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    config: Path | None = typer.Option(None, "--config", help="Settings file with your [[exam_rule]]s."),
+) -> None:
+    """List study descriptions no exam rule maps, most frequent first, to extend the rules."""
+    from queries import sql
+
+    from .config import DEFAULT_CONFIG
+    from .errors import WarehouseError
+    from .exams import load_exam_rules, rule_rows
+    from .warehouse.connection import connection
+    from .warehouse.load import ensure_schema, replace_exam_rules
+
+    try:
+        with connection(warehouse) as con:
+            ensure_schema(con)
+            replace_exam_rules(con, rule_rows(load_exam_rules(config or DEFAULT_CONFIG)))
+            frame = con.execute(sql("unmapped_descriptions")).df()
+    except WarehouseError as exc:
+        _fail(str(exc))
+    if frame.empty:
+        console.print("Every study maps to a standard exam type.")
+        return
+    console.print(_rows_table("Unmapped study descriptions", frame))
+    console.print("Add [[exam_rule]] entries to kerma.toml (see pipeline/exam_rules.toml for the syntax).")
+
+
+@reference_app.command("list")
+def reference_list(warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file.")) -> None:
+    """Show the reference-level sets in the warehouse and whether they are used by default."""
+    from queries import sql
+
+    from .errors import WarehouseError
+    from .reference_store import install_reference_sets
+    from .warehouse.connection import connection
+    from .warehouse.load import ensure_schema
+
+    try:
+        with connection(warehouse) as con:
+            ensure_schema(con)
+            install_reference_sets(con)
+            frame = con.execute(sql("describe_reference_sets")).df()
+    except WarehouseError as exc:
+        _fail(str(exc))
+    console.print(_rows_table("Reference-level sets", frame))
+
+
+@reference_app.command("import")
+def reference_import(
+    file: Path = typer.Argument(..., help="CSV in the shipped format (see queries/seeds/reference_levels)."),
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+) -> None:
+    """Add or replace a national or local reference-level set from a CSV file."""
+    from .errors import ConfigError, WarehouseError
+    from .reference_store import import_reference_csv
+    from .warehouse.connection import connection
+    from .warehouse.load import ensure_schema
+
+    try:
+        with connection(warehouse) as con:
+            ensure_schema(con)
+            set_id, n = import_reference_csv(con, file)
+    except (ConfigError, WarehouseError) as exc:
+        _fail(str(exc))
+    console.print(f"Imported reference set {set_id!r}: {n} values. Use it with "
+                  f"`kerma audit --reference {set_id}`.")
+
+
+@reference_app.command("derive")
+def reference_derive(
+    set_id: str = typer.Argument(..., help="Name of the new local set, e.g. local_2026q4."),
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+) -> None:
+    """Save the network's 75th percentile of room medians (ICRP 135) from the last audit as a set."""
+    from .errors import ConfigError, WarehouseError
+    from .reference_store import derive_local_set
+    from .warehouse.connection import connection
+
+    try:
+        with connection(warehouse) as con:
+            n = derive_local_set(con, set_id, f"Local reference levels derived from {warehouse.name}")
+    except (ConfigError, WarehouseError) as exc:
+        _fail(str(exc))
+    console.print(f"Saved local set {set_id!r} with {n} values (75th percentile of room medians).")
+
+
+CAUTION = ("A reference level is an investigation level, not a dose limit. Flagged exams and "
+           "units need review by a qualified medical physicist; local regulations prevail.")
+
+
+def print_audit_summary(summary) -> None:
+    console.rule(f"Audit {summary.period} ({summary.date_from} to {summary.date_to})")
+    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}")
+    console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
+                  f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
+    table = Table(title="Room medians above their reference level")
+    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio", "Set", "Sample"):
+        table.add_column(c)
+    for r in summary.exceedances:
+        table.add_row(str(r["site"]), r["exam_type"], f"{r['quantity']} ({r['unit']})", str(r["n"]),
+                      f"{r['median']:.4g}", f"{r['reference_value']:.4g}",
+                      f"{r['ratio_to_reference']:.2f}", r["reference_set"],
+                      "adequate" if r["is_sample_adequate"] else "[yellow]too small[/yellow]")
+    console.print(table if summary.exceedances else "No room median above its reference level.")
+    alerts = ", ".join(f"{k}: {v}" for k, v in summary.alerts_by_rule.items()) or "none"
+    console.print(f"Individual-exam alerts: {alerts}")
+    if summary.drift:
+        for d in summary.drift:
+            console.print(f"Drift: {d['site']} {d['exam_type']} {d['quantity']}: median "
+                          f"{d['median_before']:.4g} -> {d['median_after']:.4g} {d['unit']} from "
+                          f"{d['change_month']} (z = {d['statistic_z']:.1f}, "
+                          f"p = {d['p_value_bonferroni']:.1e})")
+    else:
+        console.print("Drift: none flagged.")
+    console.print(f"[dim]{CAUTION}[/dim]")
+
+
+@app.command("audit")
+def audit_command(
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM."),
+    date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
+    date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: every verified set)."),
+    config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
+) -> None:
+    """Medians against reference levels (ICRP 135), network values, alerts and drift for a period."""
+    import datetime as dt
+
+    from .audit import run_audit
+    from .config import DEFAULT_CONFIG
+    from .errors import ConfigError, WarehouseError
+
+    try:
+        d_from = dt.date.fromisoformat(date_from) if date_from else None
+        d_to = dt.date.fromisoformat(date_to) if date_to else None
+    except ValueError as exc:
+        _fail(f"--from/--to must be YYYY-MM-DD ({exc})")
+    try:
+        summary = run_audit(warehouse, period=period, date_from=d_from, date_to=d_to,
+                            reference_sets=reference or None, config=config or DEFAULT_CONFIG)
+    except (ConfigError, WarehouseError) as exc:
+        _fail(str(exc))
+    print_audit_summary(summary)
 
 
 def main() -> None:  # pragma: no cover - console-script entry point

@@ -25,7 +25,7 @@ from .parsing import parse_dose_object
 from .pseudonym import make_pseudonymiser
 from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_dataset
 from .warehouse.connection import connection
-from .warehouse.load import append_batch, ensure_schema, replace_site_map
+from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
 from .warehouse.tables import arrow_table
 
 __all__ = ["FileOutcome", "IngestSummary", "ingest", "process_file"]
@@ -188,7 +188,8 @@ def _read(c: Candidate) -> tuple[bytes | None, InputError | None, OSError | None
 
 
 def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
-           sites: dict[str, str] | None = None, batch_size: int = BATCH_SIZE,
+           sites: dict[str, str] | None = None, exam_rules: list[dict] | None = None,
+           batch_size: int = BATCH_SIZE,
            progress: Callable[[int], None] | None = None) -> IngestSummary:
     """Ingest every file under `paths` into the warehouse at `warehouse`.
 
@@ -205,6 +206,10 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     with connection(warehouse) as con:
         ensure_schema(con)
         replace_site_map(con, sites or {})
+        if exam_rules is None:
+            from .exams import load_exam_rules, rule_rows
+            exam_rules = rule_rows(load_exam_rules())
+        replace_exam_rules(con, exam_rules)
         con.register("incoming_run", arrow_table("run", [{
             "run_id": run_id, "started_at": started, "kerma_version": __version__,
             "inputs": "; ".join(str(p) for p in paths), "workers": workers}]))

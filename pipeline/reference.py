@@ -20,6 +20,8 @@ from pathlib import Path
 
 from queries import ROOT as _QUERIES_ROOT
 
+from .exams import EXAM_TYPES as _EXAM_TYPES
+
 __all__ = [
     "ALERT_COLUMNS",
     "EXAM_TYPES",
@@ -62,14 +64,7 @@ QUANTITY_UNITS = {
 }
 _ALERT_UNITS = {**QUANTITY_UNITS, "peak_skin_dose": "mGy"}
 
-EXAM_TYPES = frozenset({
-    "ct_head", "ct_sinuses", "ct_cervical_spine", "ct_neck", "ct_chest",
-    "ct_chest_high_resolution", "ct_pulmonary_angiography", "ct_chest_abdomen",
-    "ct_abdomen_pelvis", "ct_chest_abdomen_pelvis", "ct_neck_chest_abdomen_pelvis",
-    "ct_colonography", "ct_kub", "ct_urogram", "ct_lumbar_spine",
-    "dx_chest_pa", "dx_abdomen_ap", "dx_pelvis_ap", "dx_lumbar_spine_ap", "dx_lumbar_spine_lat",
-    "rf_barium_swallow", "xa_coronary_angiography", "xa_coronary_intervention", "mg_screening",
-})
+EXAM_TYPES = frozenset(_EXAM_TYPES)  # the taxonomy lives in pipeline.exams
 _POPULATIONS = frozenset({"adult", "paediatric"})
 _PHANTOMS = frozenset({"head_16cm", "body_32cm"})
 _DATE = re.compile(r"^\d{4}(-\d{2}(-\d{2})?)?$")     # the precision the source gives

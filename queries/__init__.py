@@ -25,10 +25,26 @@ def sql(name: str) -> str:
 
 
 def apply_all(con) -> list[str]:
-    """Create every table and view, layer by layer; returns relation names in order."""
+    """Create every table and view, layer by layer; returns relation names in creation order.
+
+    Within a layer, a view that reads another view of the same layer is created after it:
+    files are retried until every one succeeds (or no progress is possible, which re-raises).
+    """
+    import duckdb
+
     names = []
     for layer in LAYERS:
-        for path in sorted((ROOT / layer).glob("*.sql")):
-            con.execute(path.read_text(encoding="utf-8"))
-            names.append(path.stem)
+        pending = sorted((ROOT / layer).glob("*.sql"))
+        while pending:
+            failed, error = [], None
+            for path in pending:
+                try:
+                    con.execute(path.read_text(encoding="utf-8"))
+                    names.append(path.stem)
+                except (duckdb.CatalogException, duckdb.BinderException) as exc:
+                    failed.append(path)
+                    error = exc
+            if len(failed) == len(pending):
+                raise error
+            pending = failed
     return names

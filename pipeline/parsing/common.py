@@ -26,7 +26,8 @@ __all__ = [
     "study_info",
 ]
 
-_ZERO_SUSPECT = {"dap_event", "dap_total", "ctdivol", "dlp_event", "dlp_total", "agd"}
+# zero is suspicious per exposure (a CT localizer or an unused plane may truly report 0)
+_ZERO_SUSPECT = {"dap_event", "agd"}
 
 Pseudonymiser = Callable[[str, str], str]  # (namespace, identifier) -> key
 

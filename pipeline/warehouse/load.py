@@ -7,7 +7,7 @@ import pyarrow as pa
 
 from queries import apply_all, sql
 
-__all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_site_map"]
+__all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", "replace_site_map"]
 
 LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
               "accumulated", "value_issue")
@@ -55,3 +55,18 @@ def replace_site_map(con: duckdb.DuckDBPyConnection, sites: dict[str, str]) -> N
         con.execute("commit")
     finally:
         con.unregister("incoming_site_map")
+
+
+def replace_exam_rules(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None:
+    """Put the exam rules in force into raw_exam_rule (one transaction)."""
+    schema = pa.schema([("rule_id", pa.int64()), ("exam_type", pa.string()), ("field", pa.string()),
+                        ("field_priority", pa.int64()), ("modality", pa.string()),
+                        ("kind", pa.string()), ("phrase", pa.string()), ("source", pa.string())])
+    con.register("incoming_exam_rule", pa.Table.from_pylist(rows, schema=schema))
+    try:
+        con.execute("begin transaction")
+        con.execute(sql("delete_exam_rules"))
+        con.execute(sql("insert_exam_rules"))
+        con.execute("commit")
+    finally:
+        con.unregister("incoming_exam_rule")

@@ -3,7 +3,8 @@
 -- value (e.g. a NULL kept for a missing unit) the latest report's stated accumulated total is
 -- used instead. ctdivol_mgy: scanning-length-weighted mean of Mean CTDIvol over spiral and
 -- sequenced acquisitions (localizers, constant-angle and stationary acquisitions excluded):
--- sum(CTDIvol_i * L_i) / sum(L_i).
+-- sum(CTDIvol_i * L_i) / sum(L_i); ctdi_phantom is their phantom ('mixed' if they differ).
+-- exam_type: the standard exam type the rules map the study to (NULL when unmapped).
 create or replace view study_dose as
 with
 events as (
@@ -46,6 +47,8 @@ agg as (
         sum(scanning_length_mm)
             filter (where event_type in ('spiral', 'sequenced') and ctdivol_mgy is not null) as length_sum,
         max(ctdivol_mgy) as ctdivol_max_mgy,
+        count(distinct ctdi_phantom) filter (where event_type in ('spiral', 'sequenced')) as n_phantoms,
+        min(ctdi_phantom) filter (where event_type in ('spiral', 'sequenced')) as main_phantom,
         sum(agd_mgy) as agd_total_mgy,
         count(distinct sop_instance_uid) as n_reports
     from events
@@ -78,9 +81,16 @@ select
     agg.ctdi_length / nullif(agg.length_sum, 0) as ctdivol_mgy,
     case when agg.n_rdsr_events > 0 then 'rdsr' else 'image_header' end as source_kind,
     agg.ctdivol_max_mgy,
+    case when agg.n_phantoms = 1 then agg.main_phantom when agg.n_phantoms > 1 then 'mixed' end
+        as ctdi_phantom,
+    x.exam_type,
+    x.matched_field as exam_matched_field,
+    x.matched_text as exam_matched_text,
     agg.agd_total_mgy,
     agg.n_reports
 from agg
 left join latest_report as r using (study_key, device_key)
 left join stated as s using (study_key, device_key)
 left join device as d using (device_key)
+left join stg_exam_match as x
+  on x.unit_kind = 'study' and x.study_key = agg.study_key and x.device_key = agg.device_key

@@ -1,4 +1,5 @@
 -- grain: one row per report and checked quantity: the report's own events against its stated totals
+-- (a report whose events carry no usable value sums to 0 and so disagrees with a stated total)
 create or replace view report_total_check as
 with
 acc as (
@@ -11,13 +12,14 @@ acc as (
     group by sop_instance_uid
 ),
 proj as (
-    select sop_instance_uid, sum(dap_gy_cm2) as dap_sum, sum(dose_rp_mgy) as dose_rp_sum,
+    select sop_instance_uid, coalesce(sum(dap_gy_cm2), 0) as dap_sum,
+           coalesce(sum(dose_rp_mgy), 0) as dose_rp_sum,
            count(*) as n, count(dap_gy_cm2) as n_dap, count(dose_rp_mgy) as n_rp
     from raw_projection_event where source_kind = 'rdsr'
     group by sop_instance_uid
 ),
 ct as (
-    select sop_instance_uid, sum(dlp_mgy_cm) as dlp_sum
+    select sop_instance_uid, coalesce(sum(dlp_mgy_cm), 0) as dlp_sum
     from raw_ct_event where source_kind = 'rdsr'
     group by sop_instance_uid
 ),

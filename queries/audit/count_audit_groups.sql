@@ -1,0 +1,2 @@
+-- grain: one value: number of audit groups
+select count(*) from audit_medians

@@ -1,0 +1,6 @@
+-- grain: one row per reference-level set in the warehouse
+select set_id, any_value(origin) as origin, any_value(issuing_body) as issuing_body,
+       any_value(effective_date) as effective_date, count(*) as n_values,
+       bool_and(verified) as all_verified,
+       string_agg(distinct exam_type, ', ' order by exam_type) as exam_types
+from reference_level group by set_id order by set_id

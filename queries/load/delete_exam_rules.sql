@@ -1,0 +1,2 @@
+-- load: forget the previous exam rules (replaced on each run)
+delete from raw_exam_rule

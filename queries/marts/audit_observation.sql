@@ -1,0 +1,54 @@
+-- grain: one row per audited value: a study's total (CT, fluoroscopy, interventional) or one
+-- radiograph / mammographic view (radiography, mammography), with its standard exam type
+create or replace view audit_observation as
+with
+studies as (
+    select * from study_dose where exam_type is not null
+),
+study_values as (
+    select s.*, q.quantity, q.unit, q.value, null::varchar as event_uid
+    from studies as s
+    cross join lateral (
+        select * from (values
+            ('dlp', 'mGy.cm', s.dlp_total_mgy_cm),
+            ('ctdivol', 'mGy', s.ctdivol_mgy),
+            ('dap', 'Gy.cm2', s.dap_total_gy_cm2),
+            ('dose_rp', 'mGy', s.dose_rp_total_mgy),
+            ('fluoro_time', 's', s.fluoro_time_total_s)
+        ) as v(quantity, unit, value)
+    ) as q
+    where (s.modality = 'CT' and q.quantity in ('dlp', 'ctdivol'))
+       or (s.modality in ('RF', 'XA') and q.quantity in ('dap', 'dose_rp', 'fluoro_time'))
+),
+event_exam as (
+    select e.*, coalesce(m.exam_type, case when s.event_count = 1 or s.modality = 'MG'
+                                           then s.exam_type end) as event_exam_type,
+           s.patient_key, s.site, s.study_date, s.patient_age_years, s.patient_weight_kg
+    from irradiation_event as e
+    join study_dose as s using (study_key, device_key)
+    left join stg_exam_match as m
+      on m.unit_kind = 'event' and m.event_uid = e.event_uid and m.study_key = e.study_key
+    where s.modality in ('DX', 'CR', 'MG')
+),
+event_values as (
+    select e.*, q.quantity, q.unit, q.value
+    from event_exam as e
+    cross join lateral (
+        select * from (values
+            ('dap', 'Gy.cm2', e.dap_gy_cm2),
+            ('dose_rp', 'mGy', e.dose_rp_mgy),
+            ('agd', 'mGy', e.agd_mgy)
+        ) as v(quantity, unit, value)
+    ) as q
+    where (e.modality in ('DX', 'CR') and q.quantity in ('dap', 'dose_rp'))
+       or (e.modality = 'MG' and q.quantity = 'agd')
+)
+select study_key, patient_key, device_key, site, modality, exam_type, quantity, unit, value,
+       study_date, strftime(study_date, '%Y-%m') as period, patient_age_years, patient_weight_kg,
+       case when quantity = 'ctdivol' then ctdi_phantom end as phantom, event_uid
+from study_values where value is not null
+union all
+select study_key, patient_key, device_key, site, modality, event_exam_type, quantity, unit, value,
+       study_date, strftime(study_date, '%Y-%m'), patient_age_years, patient_weight_kg,
+       null, event_uid
+from event_values where value is not null and event_exam_type is not null
