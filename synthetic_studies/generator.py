@@ -413,7 +413,11 @@ def make_projection_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec
     _sr_document(ds, device)
     events = list(spec.projection_events[: report.n_events])
     is_mammo = modality == "MG"
-    rp = C.RP_15CM_FROM_ISOCENTER if modality in ("RF", "XA") else C.RP_AT_SURFACE_OF_PATIENT
+    # Interventional C-arms report Ka,r at 15 cm from the isocentre toward the source (IEC
+    # 60601-2-43); a conventional fluoroscopy room here uses "1cm above Tabletop" (CID 10025;
+    # the choice for an under-couch tube is from memory); radiography the patient surface.
+    rp = {"XA": C.RP_15CM_FROM_ISOCENTER, "RF": C.RP_1CM_ABOVE_TABLETOP}.get(
+        modality, C.RP_AT_SURFACE_OF_PATIENT)
     children = [_procedure_reported(C.MAMMOGRAPHY if is_mammo else C.PROJECTION_XRAY)]
     if not is_mammo:
         kind = C.FLUORO_GUIDED_PROJECTION_SYSTEM if modality in ("RF", "XA") \
