@@ -382,5 +382,37 @@ def audit_command(
     print_audit_summary(summary)
 
 
+@app.command("dashboard")
+def dashboard_command(
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file (audited)."),
+    period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM to report."),
+    date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
+    date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
+    out: Path = typer.Option(..., "--out", help="Folder for the static site."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id(s), as for `kerma audit`."),
+    config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
+) -> None:
+    """Write the offline dashboards (one self-contained HTML page per area) for a period."""
+    import datetime as dt
+
+    from dashboards.site import write_site
+
+    from .audit import run_audit
+    from .config import DEFAULT_CONFIG
+    from .errors import ConfigError, WarehouseError
+
+    try:
+        d_from = dt.date.fromisoformat(date_from) if date_from else None
+        d_to = dt.date.fromisoformat(date_to) if date_to else None
+        run_audit(warehouse, period=period, date_from=d_from, date_to=d_to,
+                  reference_sets=reference or None, config=config or DEFAULT_CONFIG)
+        index = write_site(warehouse, out)
+    except ValueError as exc:
+        _fail(str(exc))
+    except (ConfigError, WarehouseError) as exc:
+        _fail(str(exc))
+    console.print(f"Dashboards written: {index}")
+
+
 def main() -> None:  # pragma: no cover - console-script entry point
     app()
