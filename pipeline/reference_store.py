@@ -160,6 +160,7 @@ def derive_local_set(con: duckdb.DuckDBPyConnection, set_id: str, title: str) ->
     frame = con.execute(sql("select_network_for_local_set")).df()
     if frame.empty:
         raise ConfigError("no network values with adequate samples: run `kerma audit` first")
+    frame = frame.astype(object).where(frame.notna(), None)
     period = str(frame["period"].iloc[0])
     rows = [{"set_id": set_id, "issuing_body": "local (derived by Kerma Ledger)", "version": period,
              "effective_date": dt.date.today().isoformat(), "exam_type": r.exam_type,

@@ -45,3 +45,21 @@ def warehouse(corpus, tmp_path_factory):
     db = tmp_path_factory.mktemp("warehouse") / "kerma.duckdb"
     summary = ingest([corpus], db, KEY, workers=2)
     return db, summary
+
+
+@pytest.fixture(scope="session")
+def audited(tmp_path_factory):
+    """A demo-like network (seed 7, 3 months, 1200 studies) ingested and audited over all three
+    months: large enough for the stories (step change, high protocol) to be found."""
+    import datetime as dt
+
+    from pipeline.audit import run_audit
+    from pipeline.ingest import ingest
+    from tests.helpers import KEY
+
+    root = tmp_path_factory.mktemp("audited")
+    write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
+    db = root / "kerma.duckdb"
+    ingest([root / "corpus"], db, KEY, workers=2)
+    summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
+    return db, summary, root / "corpus"

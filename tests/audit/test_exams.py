@@ -1,0 +1,64 @@
+"""Exam-type rules: normalisation, precedence, user rules first, unmapped listing."""
+
+import pytest
+from typer.testing import CliRunner
+
+from pipeline.cli import app
+from pipeline.errors import ConfigError
+from pipeline.exams import EXAM_TYPES, load_exam_rules, normalise
+from pipeline.ingest import ingest
+from tests.helpers import KEY, demo_dataset, encode
+
+REQUIRED = {"ct_head", "ct_sinuses", "ct_cervical_spine", "ct_chest", "ct_pulmonary_angiography",
+            "ct_abdomen_pelvis", "ct_chest_abdomen_pelvis", "ct_kub", "ct_lumbar_spine",
+            "dx_chest_pa", "dx_abdomen_ap", "dx_pelvis_ap", "dx_lumbar_spine_ap",
+            "dx_lumbar_spine_lat", "rf_barium_swallow", "xa_coronary_angiography",
+            "xa_coronary_intervention", "mg_screening"}
+
+
+def test_taxonomy_has_the_required_ids():
+    assert REQUIRED <= set(EXAM_TYPES)
+
+
+def test_normalisation_is_case_and_punctuation_insensitive():
+    assert normalise("CT ABDO/PELVIS C+") == "ct abdo pelvis c"
+    assert normalise("  L-Spine_LAT ") == "l spine lat"
+
+
+def test_bad_user_rule_is_refused(tmp_path):
+    config = tmp_path / "kerma.toml"
+    config.write_text('[[exam_rule]]\nexam = "ct_brain"\nfield = "study_description"\nany = ["x"]\n')
+    with pytest.raises(ConfigError, match="unknown exam type 'ct_brain'"):
+        load_exam_rules(config)
+
+
+def _warehouse_with_odd_descriptions(tmp_path):
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    _, ds = demo_dataset("ovh-dx1", exam="dx_chest_pa")
+    ds.StudyDescription = "XR Thoracic Inlet Special"
+    for item in ds.ContentSequence:
+        for child in item.get("ContentSequence", []):
+            if child.ValueType == "TEXT" and child.ConceptNameCodeSequence[0].CodeValue == "125203":
+                child.TextValue = "Inlet view"
+    (inbox / "odd.dcm").write_bytes(encode(ds))
+    db = tmp_path / "w.duckdb"
+    ingest([inbox], db, KEY)
+    return db
+
+
+def test_unmapped_descriptions_are_listed_with_counts(tmp_path):
+    db = _warehouse_with_odd_descriptions(tmp_path)
+    result = CliRunner().invoke(app, ["exams", "unmapped", "--warehouse", str(db)])
+    assert result.exit_code == 0, result.output
+    assert "XR Thoracic Inlet Special" in result.output and "Inlet view" in result.output
+
+
+def test_a_user_rule_maps_it_and_takes_precedence(tmp_path):
+    db = _warehouse_with_odd_descriptions(tmp_path)
+    config = tmp_path / "kerma.toml"
+    config.write_text('[[exam_rule]]\nexam = "dx_chest_pa"\nmodality = ["DX", "CR"]\n'
+                      'field = "acquisition_protocol"\nany = ["inlet view"]\n')
+    result = CliRunner().invoke(app, ["exams", "unmapped", "--warehouse", str(db), "--config", str(config)])
+    assert result.exit_code == 0, result.output
+    assert "Every study maps" in result.output
