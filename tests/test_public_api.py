@@ -1,0 +1,35 @@
+"""Each module's public surface is declared and importable (STYLE A.13)."""
+
+import importlib
+
+import pytest
+
+MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models", "pipeline.ingest",
+           "pipeline.pseudonym", "pipeline.config", "pipeline.exams", "pipeline.audit",
+           "pipeline.reference_store", "pipeline.parsing", "pipeline.parsing.units",
+           "pipeline.parsing.content_tree", "pipeline.parsing.common", "pipeline.parsing.ct",
+           "pipeline.parsing.projection", "pipeline.parsing.headers", "pipeline.sources.files",
+           "pipeline.warehouse.connection", "pipeline.warehouse.tables", "pipeline.warehouse.load",
+           "pipeline.metrics", "queries", "synthetic_studies", "synthetic_studies.scenario",
+           "synthetic_studies.sampling", "synthetic_studies.generator", "synthetic_studies.write"]
+
+
+@pytest.mark.parametrize("name", MODULES)
+def test_module_declares_and_exports_all(name):
+    module = importlib.import_module(name)
+    assert hasattr(module, "__all__"), name
+    for symbol in module.__all__:
+        assert hasattr(module, symbol), f"{name}.__all__ names missing {symbol!r}"
+
+
+def test_patient_age_from_birth_date_or_age_string():
+    import datetime as dt
+
+    from pipeline.parsing.common import patient_age_years
+    on = dt.date(2026, 10, 1)
+    assert patient_age_years(None, dt.date(1976, 10, 1), on) == pytest.approx(50.0, abs=0.01)
+    assert patient_age_years("045Y", None, on) == 45.0
+    assert patient_age_years("006M", None, on) == 0.5
+    assert patient_age_years("010D", None, on) == pytest.approx(10 / 365.25, abs=1e-3)
+    assert patient_age_years("000Y", None, on) is None  # unknown or under one year: ambiguous
+    assert patient_age_years("45Y", None, on) is None   # not a valid AS value (PS3.5)
