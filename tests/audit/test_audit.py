@@ -95,17 +95,16 @@ def test_medians_percentiles_and_ci_agree_with_numpy_and_scipy(con):
                         "median_ci_low, median_ci_high, n_standard_size, median_standard_size "
                         "from audit_medians where population = 'adult' and n >= 30 "
                         "order by n desc limit 1").fetchall()[0]
-    values = np.array([r[0] for r in con.execute(
-        "select value from audit_observation where device_key = ? and exam_type = ? and quantity = ? "
-        "and (patient_age_years is null or patient_age_years >= 16)", list(group[1:4])).fetchall()])
+    rows = con.execute(
+        "select value, patient_weight_kg from audit_observation where device_key = ? and "
+        "exam_type = ? and quantity = ? and (patient_age_years is null or patient_age_years >= 16)",
+        list(group[1:4])).fetchall()
+    values = np.array([r[0] for r in rows])
+    weights = np.array([np.nan if r[1] is None else r[1] for r in rows], dtype=float)
     assert len(values) == group[4]
     assert np.allclose(group[5:8], np.percentile(values, [50, 25, 75]), rtol=1e-12)
     ci = quantile_test(values, q=np.median(values), p=0.5).confidence_interval(0.95)
     assert (group[8], group[9]) == (ci.low, ci.high)
-    weights = np.array([r[0] for r in con.execute(
-        "select patient_weight_kg from audit_observation where device_key = ? and exam_type = ? "
-        "and quantity = ? and (patient_age_years is null or patient_age_years >= 16)",
-        list(group[1:4])).fetchall()], dtype=float)
     standard = values[(weights >= 50) & (weights <= 90)]
     assert group[10] == len(standard) and group[11] == pytest.approx(np.median(standard))
 
