@@ -49,7 +49,7 @@ def warehouse(corpus, tmp_path_factory):
 
 @pytest.fixture(scope="session")
 def audited(tmp_path_factory):
-    """A demo-like network (seed 7, 3 months, 1000 studies) ingested and audited over all three
+    """A demo-like network (seed 7, 3 months, 1200 studies) ingested and audited over all three
     months: large enough for the stories (step change, high protocol) to be found."""
     import datetime as dt
 
@@ -58,7 +58,7 @@ def audited(tmp_path_factory):
     from tests.helpers import KEY
 
     root = tmp_path_factory.mktemp("audited")
-    write_corpus(root / "corpus", seed=7, months=3, n_studies=1000, workers=2)
+    write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
     db = root / "kerma.duckdb"
     ingest([root / "corpus"], db, KEY, workers=2)
     summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))

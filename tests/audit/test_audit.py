@@ -202,9 +202,10 @@ def test_derive_a_local_set_from_the_network(audited, tmp_path):
 
 def test_audit_command_prints_the_summary_and_the_caution(audited, tmp_path):
     db = _copy(audited, tmp_path)
-    result = CliRunner().invoke(app, ["audit", "--warehouse", str(db), "--period", "2026-10"])
+    result = CliRunner().invoke(app, ["audit", "--warehouse", str(db), "--from", "2026-09-01",
+                                      "--to", "2026-11-30"])
     assert result.exit_code == 0, result.output
-    assert "Audit 2026-10" in result.output
+    assert "Audit 2026-09-01..2026-11-30" in result.output
     assert "investigation level, not a dose limit" in result.output
     assert "ncrp168_srdl_dose_rp: 1" in result.output
 
