@@ -18,8 +18,10 @@ from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import duckdb
+
 from . import __version__
-from .errors import InputError
+from .errors import InputError, WarehouseError
 from .models import DoseObject, as_row
 from .parsing import parse_dose_object
 from .pseudonym import make_pseudonymiser
@@ -195,7 +197,9 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
 
     Idempotent: a file already recorded with the same path and content is skipped, and a SOP
     Instance UID already loaded is a duplicate, so rerunning over the same inputs changes
-    nothing. Raises WarehouseError (cannot open / busy) before reading any input.
+    nothing. Raises WarehouseError (cannot open / busy) before reading any input, and
+    WarehouseError (cannot write) when a batch cannot be committed, e.g. on a full disk:
+    the batches committed before it stay, and a rerun carries on from there.
     """
     run_id = f"run-{dt.datetime.now(dt.UTC):%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
     summary = IngestSummary(run_id=run_id, warehouse=Path(warehouse))
@@ -203,6 +207,31 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,)) \
         if workers > 1 else None
     started = dt.datetime.now()
+    try:
+        _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
+             pseudonymise, run_id, started, summary)
+    except _WRITE_FAILURES as exc:
+        raise WarehouseError(
+            f"cannot write to warehouse {warehouse}: {_first_cause(exc)}; the batch in flight "
+            "was not recorded (batches before it are kept); free space or fix the folder, "
+            "then rerun: files already recorded are skipped") from exc
+    return summary
+
+
+# A commit that cannot be written (disk full, I/O error, read-only file) fails as one of
+# these; the rollback that follows may fail too and hide the first error (see _first_cause).
+_WRITE_FAILURES = (duckdb.IOException, duckdb.TransactionException)
+
+
+def _first_cause(exc: BaseException) -> str:
+    """The first line of the earliest error in the chain (the commit's, not the rollback's)."""
+    while exc.__context__ is not None and isinstance(exc.__context__, duckdb.Error):
+        exc = exc.__context__
+    return str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+
+
+def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
+         pseudonymise, run_id, started, summary) -> None:
     with connection(warehouse) as con:
         ensure_schema(con)
         replace_site_map(con, sites or {})
@@ -217,40 +246,55 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
         con.unregister("incoming_run")
         loaded_sops = {r[0] for r in con.execute(_sql("select_loaded_sops")).fetchall()}
         try:
+            # With worker processes the next batch is parsed while this one is loaded: at most
+            # two batches are in flight, so memory stays flat however many files there are.
+            in_flight = None
             for chunk in _chunks(iter_candidates(list(paths)), batch_size):
-                outcomes = _process_chunk(con, chunk, pool, pseudonymise, summary)
-                for o in outcomes:
-                    if o.status == "loaded" and o.sop_instance_uid in loaded_sops:
-                        o.status, o.reason = "duplicate", "sop_instance_already_loaded"
-                        o.detail = f"SOP Instance UID {o.sop_instance_uid} is already loaded"
-                        o.obj = None
-                    elif o.status == "loaded":
-                        loaded_sops.add(o.sop_instance_uid)
-                if outcomes:
-                    append_batch(con, _batch_tables(outcomes, run_id, dt.datetime.now()))
-                for o in outcomes:
-                    summary.by_status[o.status] += 1
-                    if o.status == "quarantined":
-                        summary.quarantine_reasons[o.reason] += 1
-                    elif o.status == "not_dose":
-                        summary.not_dose_reasons[o.reason] += 1
-                    if o.obj is not None:
-                        summary.value_issues += len(o.obj.issues)
-                if progress:
-                    progress(len(chunk))
+                dispatched = _dispatch_chunk(con, chunk, pool, pseudonymise, summary)
+                if in_flight is not None:
+                    _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress)
+                in_flight = dispatched
+            if in_flight is not None:
+                _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress)
         finally:
             if pool is not None:
-                pool.shutdown()
+                pool.shutdown(cancel_futures=True)
         con.execute(_RUN_UPDATE, {
             "finished_at": dt.datetime.now(), "n_seen": summary.seen,
             "n_loaded": summary.by_status["loaded"], "n_duplicate": summary.by_status["duplicate"],
             "n_not_dose": summary.by_status["not_dose"],
             "n_quarantined": summary.by_status["quarantined"], "n_unchanged": summary.unchanged,
             "run_id": run_id})
-    return summary
 
 
-def _process_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary) -> list[FileOutcome]:
+def _load_chunk(con, dispatched, loaded_sops: set, run_id: str, summary: IngestSummary,
+                progress: Callable[[int], None] | None) -> None:
+    """Collect one dispatched batch, mark duplicates and load it in one transaction."""
+    n_files, outcomes, results = dispatched
+    outcomes = _collect(outcomes, results)
+    for o in outcomes:
+        if o.status == "loaded" and o.sop_instance_uid in loaded_sops:
+            o.status, o.reason = "duplicate", "sop_instance_already_loaded"
+            o.detail = f"SOP Instance UID {o.sop_instance_uid} is already loaded"
+            o.obj = None
+        elif o.status == "loaded":
+            loaded_sops.add(o.sop_instance_uid)
+    if outcomes:
+        append_batch(con, _batch_tables(outcomes, run_id, dt.datetime.now()))
+    for o in outcomes:
+        summary.by_status[o.status] += 1
+        if o.status == "quarantined":
+            summary.quarantine_reasons[o.reason] += 1
+        elif o.status == "not_dose":
+            summary.not_dose_reasons[o.reason] += 1
+        if o.obj is not None:
+            summary.value_issues += len(o.obj.issues)
+    if progress:
+        progress(n_files)
+
+
+def _dispatch_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary):
+    """Read one batch and start parsing it (in the pool, if any); returns what _collect needs."""
     summary.seen += len(chunk)
     known = _known(con, [c.path for c in chunk])
     todo: list[tuple[str, bytes]] = []
@@ -279,9 +323,14 @@ def _process_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary) -> 
             continue
         todo.append((c.path, data))
     if pool is not None:
-        outcomes += list(pool.map(_work, todo, chunksize=8))
+        results = pool.map(_work, todo, chunksize=8)  # submitted now, collected by _collect
     else:
-        outcomes += [process_file(p, d, pseudonymise) for p, d in todo]
+        results = [process_file(p, d, pseudonymise) for p, d in todo]
+    return len(chunk), outcomes, results
+
+
+def _collect(outcomes: list[FileOutcome], results) -> list[FileOutcome]:
+    outcomes += list(results)
     # the same SOP Instance twice within one batch: the first file wins
     seen: set[str] = set()
     for o in outcomes:

@@ -12,6 +12,7 @@ import functools
 from collections.abc import Iterator
 
 from pydicom.dataset import Dataset
+from pydicom.multival import MultiValue
 from pydicom.sr._snomed_dict import mapping as _SNOMED_MAPPING
 from pydicom.sr.coding import Code
 
@@ -53,11 +54,19 @@ def code_key(scheme: str, value: str) -> tuple[str, str]:
     return _RETIRED.get((scheme, value), (scheme, value))
 
 
+def _one(value) -> str:
+    """An element value as one string: a value with a backslash (which pydicom splits into a
+    MultiValue although the attribute has VM 1) is kept as the text the file holds."""
+    if isinstance(value, (list, tuple, MultiValue)):
+        return "\\".join(str(v) for v in value)
+    return "" if value is None else str(value)
+
+
 def _key_of_code_item(item: Dataset) -> tuple[str, str] | None:
     value = item.get("CodeValue") or item.get("LongCodeValue") or item.get("URNCodeValue")
     if value is None:
         return None
-    return code_key(item.get("CodingSchemeDesignator", ""), str(value))
+    return code_key(_one(item.get("CodingSchemeDesignator", "")), _one(value))
 
 
 _NO_KEY = ("", "")
@@ -73,12 +82,13 @@ def concept_key(item: Dataset) -> tuple[str, str] | None:
     return None if cached is _NO_KEY else cached
 
 
-def _index(item: Dataset) -> dict[tuple[str, str] | None, list[Dataset]]:
+def _index(item: Dataset) -> dict[tuple[str, str] | None, list[tuple[Dataset, object]]]:
+    """Children of `item` by concept key, each with its Value Type (cached on the item)."""
     cached = item.__dict__.get("_kl_index")
     if cached is None:
         cached = {}
         for child in children(item):
-            cached.setdefault(concept_key(child), []).append(child)
+            cached.setdefault(concept_key(child), []).append((child, child.get("ValueType")))
         object.__setattr__(item, "_kl_index", cached)
     return cached
 
@@ -101,15 +111,15 @@ def children(item: Dataset) -> list[Dataset]:
 
 def find(item: Dataset, code: Code, value_type: str | None = None) -> list[Dataset]:
     """Direct children of `item` named `code` (optionally of one value type)."""
-    found = _index(item).get(_target(code), [])
-    if value_type is None:
-        return list(found)
-    return [c for c in found if c.get("ValueType") == value_type]
+    found = _index(item).get(_target(code), ())
+    return [c for c, vt in found if value_type is None or vt == value_type]
 
 
 def first(item: Dataset, code: Code, value_type: str | None = None) -> Dataset | None:
-    found = find(item, code, value_type)
-    return found[0] if found else None
+    for c, vt in _index(item).get(_target(code), ()):
+        if value_type is None or vt == value_type:
+            return c
+    return None
 
 
 def find_all(item: Dataset, code: Code, value_type: str | None = None,
@@ -155,7 +165,7 @@ def uid_of(item: Dataset | None) -> str | None:
     if item is None:
         return None
     value = item.get("UID")
-    return str(value).strip() if value not in (None, "") else None
+    return _one(value).strip() or None if value not in (None, "") else None
 
 
 def datetime_of(item: Dataset | None) -> dt.datetime | None:
