@@ -160,10 +160,13 @@ def _parse_sr(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonym
 
 
 def _int(text: str | None) -> int | None:
+    """An IS value (PS3.5: -2^31 .. 2^31-1) as int; None if absent, not an integer or out of
+    that range (it must fit the warehouse's BIGINT)."""
     try:
-        return int(text) if text is not None else None
+        value = int(text) if text is not None else None
     except ValueError:
         return None
+    return value if value is None or -2**31 <= value < 2**31 else None
 
 
 def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser,

@@ -95,7 +95,8 @@ def parse_ct_events(root: Dataset, sop_uid: str, m: Measurer) -> list[CtEvent]:
         sources = _source_values(params, uid, m) if params is not None else []
         a = sources[0] if sources else {}
         b = sources[1] if len(sources) > 1 else {}
-        n_sources = m.value(params, C.NUMBER_OF_XRAY_SOURCES, Quantity.COUNT, event_uid=uid)
+        n_sources = m.value(params, C.NUMBER_OF_XRAY_SOURCES, Quantity.COUNT, event_uid=uid,
+                            plausible="xray_sources")
         ssde = next(iter(find_all(node, C.SIZE_SPECIFIC_DOSE_ESTIMATE, "NUM")), None)
         wed = next(iter(find_all(node, C.WATER_EQUIVALENT_DIAMETER, "NUM")), None)
         events.append(CtEvent(

@@ -66,6 +66,7 @@ PLAUSIBLE: dict[str, tuple[float, float]] = {
     "agd": (0.0, 100.0),                    # mGy per view
     "kvp": (15.0, 160.0),
     "time": (0.0, 86_400.0),                # s
+    "xray_sources": (1.0, 16.0),            # X-ray sources of one CT (stored as an integer)
 }
 
 

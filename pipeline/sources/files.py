@@ -20,10 +20,13 @@ import pydicom
 import pydicom.config
 from pydicom.dataset import Dataset
 from pydicom.errors import InvalidDicomError
+from pydicom.hooks import hooks
+from pydicom.uid import UID
 
-from ..errors import NotDicomError, UnsafeArchiveMemberError
+from ..errors import NotDicomError, UnsafeArchiveMemberError, UnsupportedTransferSyntaxError
 
-__all__ = ["Candidate", "check_complete", "iter_candidates", "lenient_pydicom", "read_dataset"]
+__all__ = ["Candidate", "check_complete", "iter_candidates", "lenient_pydicom", "read_dataset",
+           "transfer_syntax"]
 
 _ARCHIVE_SUFFIXES = (".zip", ".tar", ".tar.gz", ".tgz")
 
@@ -131,18 +134,46 @@ def iter_candidates(paths: list[Path]) -> Iterator[Candidate]:
                 yield Candidate(str(path.resolve()), _file_reader(path))
 
 
+# What pydicom raises when the bytes of one element cannot be decoded (an unknown VR, a value
+# that does not fit its VR, a sequence that ends early). pydicom decodes lazily, so these
+# surface only when the parser first reads the element, not in dcmread.
+_DECODING_ERRORS = (NotImplementedError, ValueError, struct.error, KeyError, IndexError,
+                    OverflowError, EOFError, TypeError, AttributeError)
+
+
+def _decoding_errors_quarantine(convert: Callable) -> Callable:
+    """Wrap pydicom's raw-element conversion hook: an element whose bytes cannot be decoded
+    makes the file a NotDicomError (malformed_dicom) naming the tag; nothing else is caught."""
+    def hook(raw, data, *, encoding=None, ds=None, **kwargs) -> None:
+        try:
+            convert(raw, data, encoding=encoding, ds=ds, **kwargs)
+        except NotDicomError:
+            raise
+        except _DECODING_ERRORS as exc:
+            first = str(exc).splitlines()[0][:200] if str(exc) else ""
+            raise NotDicomError(
+                f"element {raw.tag} (VR {raw.VR}) cannot be decoded "
+                f"({type(exc).__name__}: {first}); the file is damaged",
+                reason="malformed_dicom") from exc
+    return hook
+
+
 @contextlib.contextmanager
 def lenient_pydicom() -> Iterator[list[warnings.WarningMessage]]:
-    """Production reading: invalid values warn (recorded) instead of raising."""
+    """Production reading: invalid values warn (recorded) instead of raising, and an element
+    that cannot be decoded at all quarantines its file (NotDicomError, malformed_dicom)."""
     settings = pydicom.config.settings
     before = settings.reading_validation_mode
+    convert = hooks.raw_element_value
     settings.reading_validation_mode = pydicom.config.WARN
+    hooks.register_callback("raw_element_value", _decoding_errors_quarantine(convert))
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             yield caught
     finally:
         settings.reading_validation_mode = before
+        hooks.register_callback("raw_element_value", convert)
 
 
 class _Truncated(Exception):
@@ -207,14 +238,30 @@ def _scan(buf: bytes, pos: int, end: int | None, implicit: bool, little: bool,
             pos += length
 
 
+def transfer_syntax(ds: Dataset, path: str = "file") -> UID | None:
+    """The file's Transfer Syntax UID (None without file meta); UnsupportedTransferSyntaxError
+    when (0002,0010) holds something that is not a transfer syntax (a damaged or unknown UID),
+    since then nothing tells how the dataset is encoded."""
+    meta = getattr(ds, "file_meta", None)
+    ts = meta.get("TransferSyntaxUID") if meta is not None else None
+    if ts is None:
+        return None
+    if not isinstance(ts, UID) or not ts.is_transfer_syntax:
+        shown = str(ts)[:80]
+        raise UnsupportedTransferSyntaxError(
+            f"{path}: Transfer Syntax UID (0002,0010) {shown!r} is not a transfer syntax this "
+            "reader knows, so the encoding of the dataset is unknown; re-send the object in "
+            "Explicit or Implicit VR Little Endian")
+    return ts
+
+
 def check_complete(data: bytes, ds: Dataset) -> None:
     """Raise NotDicomError(reason='truncated') if the byte stream ends mid-element.
 
     pydicom stops quietly at end of file inside an undefined-length sequence, so a cut-short
     transfer would otherwise look like a smaller, valid report.
     """
-    meta = getattr(ds, "file_meta", None)
-    ts = meta.get("TransferSyntaxUID") if meta is not None else None
+    ts = transfer_syntax(ds)
     if ts is not None and ts.is_deflated:
         return  # the deflate stream is checked by zlib while pydicom inflates it
     implicit = ts.is_implicit_VR if ts is not None else True
@@ -252,5 +299,6 @@ def read_dataset(data: bytes, path: str) -> Dataset:
     if "SOPClassUID" not in ds and "SOPInstanceUID" not in ds:
         raise NotDicomError(f"{path}: no SOP Class/Instance UID: not a DICOM object",
                             reason="not_dicom")
+    transfer_syntax(ds, path)
     check_complete(data, ds)
     return ds
