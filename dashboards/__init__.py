@@ -1,3 +1,10 @@
-"""Static offline dashboards built from warehouse marts (filled in by the dashboard work)."""
+"""Static offline dashboards of the monthly dose audit, built from the warehouse marts.
 
-__all__: list[str] = []
+``theme`` (palette, labels with units), ``figures`` (pure DataFrame -> plotly Figure),
+``pages`` (pure: frames and figures -> HTML, the one place HTML is written) and ``site``
+(the shell: query the marts, write the pages, CSVs and one local plotly.min.js).
+"""
+
+from .site import write_site
+
+__all__ = ["write_site"]

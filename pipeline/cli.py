@@ -105,6 +105,9 @@ def demo(
     console.print(f"Step 3 of 3: auditing {first} to {last} against the verified published "
                   "reference levels.")
     print_audit_summary(run_audit(warehouse, date_from=first, date_to=last))
+    from dashboards.site import write_site
+
+    console.print(f"Dashboards written: {write_site(warehouse, out / 'site')}")
     console.print(
         "Ask your own questions, e.g.\n"
         f"  .venv/bin/kerma sql --warehouse {warehouse} "

@@ -1,0 +1,165 @@
+"""The dashboard shell: read the audited warehouse, build the pages, write the static site.
+
+``write_site`` is the only function here that touches disks, DuckDB or the clock. It reads
+the public views and the audit tables through the SELECTs in ``queries/dashboards/`` on a
+read-only connection, hands the frames to ``dashboards.pages.build_site`` and writes:
+
+* ``index.html`` and one self-contained page per area (no network needed to open them);
+* every table on a page as ``<name>.csv`` beside it;
+* one shared ``plotly.min.js``, the copy shipped inside the installed plotly package (never
+  a CDN).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import duckdb
+import pandas as pd
+import plotly
+from plotly.offline import get_plotlyjs
+
+from queries import sql
+
+from .pages import PLOTLY_JS, Context, SiteData, build_site
+
+__all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
+
+# Relations the audit (pipeline.audit.run_audit) writes, and the views the site also reads.
+AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags",
+                "monthly_medians", "study_estimate")
+_VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
+          "audit_observation", "reference_level")
+
+
+def _exam_types() -> pd.DataFrame:
+    from pipeline.exams import EXAM_TYPES
+    return pd.DataFrame([{"exam_type": t.id, "label": t.label, "per": t.per}
+                         for t in EXAM_TYPES.values()], columns=["exam_type", "label", "per"])
+
+
+def _concepts() -> pd.DataFrame:
+    from pydicom.sr.coding import Code
+
+    from pipeline import concepts
+    rows = {f"{c.scheme_designator}:{c.value}": c.meaning
+            for name in sorted(dir(concepts)) if isinstance(c := getattr(concepts, name), Code)}
+    return pd.DataFrame(sorted(rows.items()), columns=["concept_code", "meaning"])
+
+
+def _period_dates(label: str) -> tuple[dt.date, dt.date]:
+    """(first day, last day) of an audit period label: 'YYYY-MM' or 'YYYY-MM-DD..YYYY-MM-DD'."""
+    from pipeline.audit import period_bounds
+
+    if ".." in label:
+        first, last = label.split("..", 1)
+        return dt.date.fromisoformat(first), dt.date.fromisoformat(last)
+    first, after, _ = period_bounds(period=label)
+    return first, after - dt.timedelta(days=1)
+
+
+def _check_audited(con: duckdb.DuckDBPyConnection, warehouse: Path) -> None:
+    from pipeline.errors import WarehouseError
+
+    names = {r[0] for r in con.execute(sql("dash_relations")).fetchall()}
+    missing = [t for t in (*AUDIT_TABLES, *_VIEWS) if t not in names]
+    if missing:
+        raise WarehouseError(f"warehouse {warehouse} has not been audited (missing "
+                             f"{', '.join(missing)}): run `kerma audit` or `kerma dashboard` first")
+
+
+def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | None = None
+                   ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
+    """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
+    from pipeline.audit import AuditSettings
+
+    def q(name: str, **params: object) -> pd.DataFrame:
+        used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
+        return con.execute(sql(name), used).df()
+
+    con.register("dash_exam_type", _exam_types())
+    con.register("dash_concept", _concepts())
+    devices = q("dash_devices")
+    con.register("dash_device", devices)
+    periods = q("dash_period")
+    if periods.empty:
+        label, first, last = "no audited observations", None, None
+        bounds = {"date_from": dt.date(1, 1, 1), "date_to": dt.date(9999, 12, 31)}
+    else:
+        label = str(periods.sort_values(["n_rows", "period"], ascending=[False, True])["period"].iloc[0])
+        first, last = _period_dates(label)
+        bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
+    params = {**bounds, "adult_min_age": adult_min_age if adult_min_age is not None
+              else AuditSettings().adult_min_age_years}
+    sigma = q("dash_funnel_sigma")
+    con.register("funnel_sigma", sigma)
+    points = q("dash_funnel_points")
+    con.register("funnel_point", points)
+    data = SiteData(
+        overview=q("dash_overview", **params), devices=devices,
+        room_medians=q("dash_room_medians"), network=q("dash_network"),
+        distribution=q("dash_distribution", **params), estimates=q("dash_estimates", **params),
+        monthly=q("dash_monthly"), drift=q("dash_drift"),
+        funnel_sigma=sigma, funnel_points=points, funnel_limits=q("dash_funnel_limits"),
+        site_summary=q("dash_site_summary"),
+        alerts=q("dash_alerts"), alert_counts=q("dash_alert_counts"),
+        unmapped=q("dash_unmapped", **params), source_status=q("dash_source_status"),
+        files_not_loaded=q("dash_quarantined_files"), weight_share=q("dash_weight_share", **params),
+        value_issues=q("dash_value_issues", **params),
+        value_issue_rows=q("dash_value_issue_rows", **params),
+    )
+    for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
+        con.unregister(name)
+    return data, label, first, last, q("dash_reference_sets")
+
+
+def _write_text(path: Path, text: str) -> None:
+    data = text.encode("utf-8")
+    if not path.exists() or path.read_bytes() != data:   # leave unchanged files untouched
+        path.write_bytes(data)
+
+
+def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None = None) -> Path:
+    """Write the static dashboards of the last audit in `warehouse` into `out`; returns index.html.
+
+    Parameters
+    ----------
+    warehouse
+        An audited DuckDB warehouse (``pipeline.audit.run_audit`` has written its tables).
+    out
+        Folder for the site; created if missing. Existing files of the same names are replaced.
+    generated_at
+        Time printed in every footer; default now (UTC). Pass a fixed value for byte-identical
+        output.
+
+    Returns
+    -------
+    Path
+        ``out / "index.html"``.
+
+    Raises
+    ------
+    pipeline.errors.WarehouseError
+        The warehouse cannot be opened, or it has not been audited.
+    """
+    from pipeline import __version__
+    from pipeline.warehouse.connection import connection
+
+    warehouse, out = Path(warehouse), Path(out)
+    stamp = generated_at or dt.datetime.now(dt.UTC).replace(microsecond=0)
+    with connection(warehouse, read_only=True) as con:
+        _check_audited(con, warehouse)
+        data, label, first, last, sets = read_site_data(con)
+    context = Context(period=label, date_from=first, date_to=last, reference_sets=sets,
+                      generated_at=stamp, version=f"{__version__} (plotly {plotly.__version__})")
+    site = build_site(data, context)
+    out.mkdir(parents=True, exist_ok=True)
+    _write_text(out / PLOTLY_JS, get_plotlyjs())
+    for name, html in site.pages.items():
+        _write_text(out / name, html)
+    for name, rows in site.tables.items():
+        # 12 significant figures: exact for the data, blind to last-bit noise of float sums
+        _write_text(out / f"{name}.csv", rows.to_csv(index=False, lineterminator="\n",
+                                                     float_format="%.12g"))
+    return out / "index.html"

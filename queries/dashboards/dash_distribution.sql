@@ -1,0 +1,48 @@
+-- grain: one row per site x device x exam type x quantity x population x phantom in the period:
+-- order statistics of the audited values (quantile_cont: Hyndman & Fan definition 7), the
+-- same groups as audit_medians, whose reference value and sample verdict are joined on.
+-- Values are rounded to 1e-9 first: study totals are parallel float sums whose last bit can
+-- differ between runs, and the pages must not.
+with
+obs as (
+    select
+        * replace (round(value, 9) as value),
+        case when patient_age_years is null or patient_age_years >= $adult_min_age
+             then 'adult' else 'paediatric' end as population
+    from audit_observation
+    where study_date >= $date_from and study_date < $date_to
+),
+stats as (
+    select
+        device_key, exam_type, quantity, unit, population, phantom,
+        count(*) as n,
+        min(value) as value_min,
+        quantile_cont(value, 0.05) as p05,
+        quantile_cont(value, 0.25) as p25,
+        quantile_cont(value, 0.5) as median,
+        quantile_cont(value, 0.75) as p75,
+        quantile_cont(value, 0.95) as p95,
+        max(value) as value_max
+    from obs
+    group by all
+)
+select
+    s.device_key,
+    coalesce(d.site_label, '(site not known)') as site_label,
+    coalesce(d.room_label, s.device_key) as room_label,
+    coalesce(d.modality_family, 'Other') as modality_family,
+    coalesce(d.family_order, 5) as family_order,
+    s.exam_type,
+    coalesce(x.label, s.exam_type) as exam_label,
+    s.quantity, s.unit, s.population, s.phantom,
+    s.n, s.value_min, s.p05, s.p25, s.median, s.p75, s.p95, s.value_max,
+    a.reference_set,
+    a.reference_value,
+    coalesce(a.is_sample_adequate, false) as is_sample_adequate
+from stats as s
+left join dash_device as d on d.device_key = s.device_key
+left join dash_exam_type as x on x.exam_type = s.exam_type
+left join audit_medians as a
+  on a.device_key = s.device_key and a.exam_type = s.exam_type and a.quantity = s.quantity
+ and a.population = s.population and a.phantom is not distinct from s.phantom
+order by family_order, exam_label, s.quantity, s.phantom, s.population, site_label, room_label

@@ -1,0 +1,23 @@
+-- grain: one row per value-level issue for studies in the period (or whose study is not dated)
+with
+studies as (
+    select study_key, any_value(study_date) as study_date, any_value(device_key) as device_key
+    from study_dose group by study_key
+)
+select
+    s.study_date,
+    i.study_key,
+    coalesce(d.site_label, '(site not known)') as site_label,
+    coalesce(d.room_label, coalesce(i.device_key, s.device_key), '(unknown)') as room_label,
+    i.kind,
+    i.concept_code,
+    coalesce(c.meaning, i.concept_code) as concept,
+    i.raw_value,
+    i.raw_unit,
+    i.detail
+from value_issue as i
+left join studies as s on s.study_key = i.study_key
+left join dash_device as d on d.device_key = coalesce(i.device_key, s.device_key)
+left join dash_concept as c on c.concept_code = i.concept_code
+where s.study_date is null or (s.study_date >= $date_from and s.study_date < $date_to)
+order by s.study_date nulls last, i.kind, i.concept_code, i.study_key, i.issue_id

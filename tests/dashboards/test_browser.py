@@ -1,0 +1,109 @@
+"""Real headless Chromium (Debian `chromium`) opens every page from disk with the network off.
+
+Nothing is mocked: the pages, plotly.min.js and the browser are the real ones. A missing
+browser FAILS the test with instructions (never a skip).
+"""
+
+from __future__ import annotations
+
+import io
+
+import pytest
+from PIL import Image
+
+from dashboards.pages import PAGES
+
+from .browser import BrowserMissingError, Chromium, find_chromium
+
+PAGE_FILES = [f for f, _, _ in PAGES]
+
+
+@pytest.fixture(scope="module")
+def browser():
+    try:
+        find_chromium()
+    except BrowserMissingError as exc:
+        pytest.fail(str(exc), pytrace=False)
+    with Chromium(width=1280, height=900) as chromium:
+        yield chromium
+
+
+def _colour_stats(png: bytes) -> tuple[int, float]:
+    """(distinct colours, share of pixels unlike the top-left pixel) of a screenshot."""
+    image = Image.open(io.BytesIO(png)).convert("RGB")
+    small = image.resize((max(1, image.width // 2), max(1, image.height // 2)))
+    raw = small.tobytes()
+    pixels = [raw[i:i + 3] for i in range(0, len(raw), 3)]
+    background = pixels[0]
+    return len(set(pixels)), sum(p != background for p in pixels) / len(pixels)
+
+
+@pytest.fixture(scope="module")
+def reports(browser, site):
+    out = {}
+    for name in PAGE_FILES:
+        report = browser.open(site / name)
+        shots = {"viewport": browser.screenshot()}
+        if report.plots:
+            first = report.plots[0]
+            shots["plot"] = browser.screenshot(clip={"x": first["x"], "y": first["y"],
+                                                     "width": first["width"], "height": first["height"]})
+        out[name] = (report, shots)
+    return out
+
+
+@pytest.mark.parametrize("name", PAGE_FILES)
+def test_page_opens_offline_without_errors(reports, name):
+    report, _ = reports[name]
+    assert report.console_errors == []
+    assert report.exceptions == []
+    assert report.external_requests == []
+    assert report.failed_requests == []
+
+
+@pytest.mark.parametrize("name", PAGE_FILES)
+def test_every_plot_div_rendered_an_svg_with_data(reports, site, name):
+    report, _ = reports[name]
+    html = (site / name).read_text(encoding="utf-8")
+    expected = html.count('class="plotly-graph-div"')
+    assert len(report.plots) == expected
+    if expected:
+        assert report.plotly == "object"          # the local plotly.min.js loaded
+    for plot in report.plots:
+        assert plot["svgs"] >= 1, plot["id"]
+        assert plot["traces"] >= 1 and plot["marks"] >= 1, plot["id"]
+        assert plot["width"] > 300 and plot["height"] > 200, plot["id"]
+
+
+def test_pages_with_plots_exist(reports):
+    assert sum(len(r.plots) for r, _ in reports.values()) > 20
+    assert [n for n, (r, _) in reports.items() if not r.plots] == ["index.html"]
+
+
+@pytest.mark.parametrize("name", PAGE_FILES)
+def test_screenshot_is_not_blank(reports, name):
+    report, shots = reports[name]
+    colours, drawn = _colour_stats(shots["viewport"])
+    assert colours > 50 and drawn > 0.2, (colours, drawn)
+    if report.plots:
+        colours, drawn = _colour_stats(shots["plot"])
+        assert colours > 20 and drawn > 0.02, (report.plots[0]["id"], colours, drawn)
+
+
+def test_the_harness_sees_and_blocks_an_external_request(browser, tmp_path):
+    """Guards the guard: a page that asks the network is reported, and the request fails."""
+    page = tmp_path / "external.html"
+    page.write_text('<!DOCTYPE html><html><body><p>x</p>'
+                    '<img src="https://dashboards.invalid/pixel.png"></body></html>', encoding="utf-8")
+    report = browser.open(page)
+    assert report.external_requests == ["https://dashboards.invalid/pixel.png"]
+    assert report.failed_requests != []
+
+
+def test_the_harness_reports_console_errors(browser, tmp_path):
+    page = tmp_path / "broken.html"
+    page.write_text('<!DOCTYPE html><html><body><script>console.error("seen");'
+                    'undefinedFunction();</script></body></html>', encoding="utf-8")
+    report = browser.open(page)
+    assert report.console_errors == ["seen"]
+    assert len(report.exceptions) == 1 and "undefinedFunction" in report.exceptions[0]

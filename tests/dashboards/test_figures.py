@@ -1,0 +1,209 @@
+"""Figure builders: traces, axis titles with units, reference lines, insufficient samples marked."""
+
+from __future__ import annotations
+
+import pandas as pd
+import plotly.graph_objects as go
+import pytest
+
+from dashboards import figures
+from dashboards.theme import PALETTE, axis_title, colour_map, unit_label
+
+SITES = colour_map(["North Site", "South Site"])
+
+
+def _axis_titles(fig: go.Figure) -> list[str]:
+    layout = fig.to_plotly_json()["layout"]
+    return [axis["title"]["text"] for key, axis in sorted(layout.items())
+            if key.startswith(("xaxis", "yaxis")) and "title" in axis]
+
+
+def _room_medians() -> pd.DataFrame:
+    return pd.DataFrame({
+        "exam_label": ["CT head", "CT head", "CT chest"],
+        "phantom": [None, None, None],
+        "site_label": ["North Site", "South Site", "North Site"],
+        "room_label": ["CT-A", "CT-B", "CT-A"],
+        "n": [40, 7, 25],
+        "median": [1100.0, 800.0, 300.0],
+        "median_ci_low": [1000.0, None, 260.0],
+        "median_ci_high": [1200.0, None, 330.0],
+        "unit": ["mGy.cm"] * 3,
+        "quantity": ["dlp"] * 3,
+        "reference_value": [970.0, 970.0, None],
+        "reference_set": ["set_a", "set_a", None],
+        "network_p75": [1050.0, 1050.0, 310.0],
+        "is_sample_adequate": [True, False, True],
+    })
+
+
+def test_reference_comparison_draws_rooms_reference_and_network_values():
+    fig = figures.build_reference_comparison(_room_medians(), site_colours=SITES, title="CT: DLP")
+    by_name = {t.name: t for t in fig.data if t.name}
+    assert set(by_name) == {"North Site", "South Site", "Reference level (set_a)",
+                            "Network 75th percentile of room medians"}
+    # The reference ticks sit at the reference values of the rows that have one (not CT chest).
+    assert list(by_name["Reference level (set_a)"].x) == [970.0, 970.0]
+    assert list(by_name["Network 75th percentile of room medians"].x) == [1050.0, 1050.0, 310.0]
+    north = by_name["North Site"]
+    assert list(north.x) == [1100.0, 300.0]
+    assert list(north.error_x.array) == [100.0, 30.0] and list(north.error_x.arrayminus) == [100.0, 40.0]
+    assert "DLP (mGy·cm)" in fig.layout.xaxis.title.text
+
+
+def test_reference_comparison_marks_insufficient_samples_with_open_marker_and_label():
+    fig = figures.build_reference_comparison(_room_medians(), site_colours=SITES, title="t")
+    south = next(t for t in fig.data if t.name == "South Site")
+    assert list(south.marker.symbol) == [figures.INSUFFICIENT_SYMBOL]
+    north = next(t for t in fig.data if t.name == "North Site")
+    assert list(north.marker.symbol) == ["circle", "circle"]
+    rooms = list(south.y[1])
+    assert rooms == ["CT-B · South Site · n 7 (too few)"]
+    assert all("too few" not in r for r in north.y[1])
+
+
+def test_reference_comparison_uses_log_axis_only_for_wide_spans():
+    narrow = figures.build_reference_comparison(_room_medians().iloc[:2], site_colours=SITES, title="t")
+    assert narrow.layout.xaxis.type == "linear"
+    wide = _room_medians()
+    wide.loc[2, ["median", "median_ci_low", "median_ci_high", "network_p75"]] = [20.0, 15.0, 25.0, 22.0]
+    fig = figures.build_reference_comparison(wide, site_colours=SITES, title="t")
+    assert fig.layout.xaxis.type == "log" and fig.layout.xaxis.title.text.endswith("log scale")
+
+
+def _distribution() -> pd.DataFrame:
+    return pd.DataFrame({
+        "quantity": ["ctdivol", "ctdivol", "dlp"], "unit": ["mGy", "mGy", "mGy.cm"],
+        "phantom": ["head_16cm", "head_16cm", None], "population": ["adult", "paediatric", "adult"],
+        "site_label": ["North Site"] * 3, "room_label": ["CT-A"] * 3, "n": [40, 3, 40],
+        "p05": [30.0, 20.0, 700.0], "p25": [40.0, 25.0, 900.0], "median": [45.0, 28.0, 1000.0],
+        "p75": [50.0, 31.0, 1100.0], "p95": [60.0, 35.0, 1300.0],
+        "reference_value": [60.0, None, 970.0], "reference_set": ["set_a", None, "set_a"],
+        "is_sample_adequate": [True, False, True],
+    })
+
+
+def test_distribution_boxes_carry_the_order_statistics_and_reference_lines():
+    fig = figures.build_distribution(_distribution(), title="CT head")
+    boxes = [t for t in fig.data if isinstance(t, go.Box)]
+    assert [(b.name, list(b.q1), list(b.median), list(b.q3), list(b.lowerfence), list(b.upperfence))
+            for b in boxes] == [
+        ("adult", [40.0], [45.0], [50.0], [30.0], [60.0]),
+        ("paediatric, sample below the audit minimum", [25.0], [28.0], [31.0], [20.0], [35.0]),
+        ("adult", [900.0], [1000.0], [1100.0], [700.0], [1300.0]),
+    ]
+    # Insufficient sample: unfilled box, said in its legend name.
+    assert boxes[1].fillcolor == "rgba(255,255,255,0)" and boxes[0].fillcolor != boxes[1].fillcolor
+    lines = sorted((s.y0, s.yref) for s in fig.layout.shapes if s.type == "line")
+    assert lines == [(60.0, "y"), (970.0, "y2")]
+    texts = [a.text for a in fig.layout.annotations]
+    assert "Reference level 970 mGy·cm (adult, set_a)" in texts
+    titles = _axis_titles(fig)
+    assert "CTDIvol, 16 cm head phantom (mGy)" in titles and "DLP (mGy·cm)" in titles
+    assert titles.count("Room · site (n adult / paediatric exams)") == 2
+    assert "n 40 / 3" in boxes[0].x[0]
+
+
+def _monthly() -> pd.DataFrame:
+    months = ["2026-09", "2026-10", "2026-11"]
+    return pd.DataFrame({
+        "quantity": ["dap"] * 3, "unit": ["Gy.cm2"] * 3, "phantom": [None] * 3, "month": months,
+        "site_label": ["North Site"] * 3, "room_label": ["DR-1"] * 3, "n": [30, 31, 29],
+        "median": [0.09, 0.05, 0.048], "p25": [0.07, 0.04, 0.04], "p75": [0.1, 0.06, 0.055],
+        "reference_value": [0.1] * 3, "reference_set": ["set_b"] * 3,
+    })
+
+
+def test_trend_marks_drift_flag_at_its_month_and_draws_reference():
+    drift = pd.DataFrame({"quantity": ["dap"], "room_label": ["DR-1"], "change_month": ["2026-10"],
+                          "ratio_after_to_before": [0.53]})
+    fig = figures.build_trend(_monthly(), drift, site_colours=SITES, title="Chest PA")
+    (series,) = [t for t in fig.data if t.name == "DR-1 · North Site"]
+    assert list(series.x) == ["2026-09-15", "2026-10-15", "2026-11-15"]
+    assert list(series.y) == [0.09, 0.05, 0.048]
+    drift_lines = [s for s in fig.layout.shapes if s.x0 == "2026-10-01"]
+    assert len(drift_lines) == 1 and drift_lines[0].line.color == PALETTE[3]
+    assert any(a.text == "drift flag: DR-1 -47 % from Oct 2026" for a in fig.layout.annotations)
+    assert [s.y0 for s in fig.layout.shapes if s.y0 == s.y1] == [0.1]
+    assert _axis_titles(fig) == ["Month of study (calendar month)", "Median DAP (Gy·cm²)"]
+
+
+def test_trend_without_drift_has_no_drift_marks():
+    fig = figures.build_trend(_monthly(), pd.DataFrame(), site_colours=SITES, title="t")
+    assert not [a for a in fig.layout.annotations if "drift" in a.text]
+
+
+def _funnel():
+    points = pd.DataFrame({
+        "site_label": ["North Site", "South Site"], "room_label": ["CT-A", "CT-B"],
+        "exam_label": ["CT head", "CT chest"], "population": ["adult", "adult"], "n": [60, 8],
+        "ratio_to_reference": [1.45, 0.8], "is_sample_adequate": [True, False],
+        "funnel_zone": ["above 99.8 % limit", "within limits"], "quantity": ["dlp", "dlp"],
+        "unit": ["mGy.cm", "mGy.cm"], "median": [1400.0, 232.0], "reference_value": [970.0, 290.0],
+    })
+    limits = pd.DataFrame({"n": [1, 10, 100], "lower_998": [0.3, 0.7, 0.9], "lower_95": [0.5, 0.8, 0.93],
+                           "upper_95": [2.0, 1.25, 1.07], "upper_998": [3.0, 1.4, 1.1]})
+    return points, limits
+
+
+def test_funnel_has_limits_reference_line_and_labels_points_beyond_the_limit():
+    points, limits = _funnel()
+    fig = figures.build_funnel(points, limits, site_colours=SITES, title="DLP")
+    names = [t.name for t in fig.data]
+    assert names.count("95 % control limits") == 2 and names.count("99.8 % control limits") == 2
+    (ref,) = [t for t in fig.data if t.name == "Reference level (ratio 1)"]
+    assert list(ref.y) == [1.0, 1.0]
+    north = next(t for t in fig.data if t.name == "North Site")
+    assert list(north.text) == ["CT head · CT-A"]
+    south = next(t for t in fig.data if t.name == "South Site")
+    assert list(south.text) == [""] and list(south.marker.symbol) == [figures.INSUFFICIENT_SYMBOL]
+    assert fig.layout.xaxis.type == "log" and fig.layout.yaxis.type == "log"
+    assert _axis_titles(fig) == ["Exams in the room's audit group (count, log scale)",
+                                 "DLP: median ÷ reference (ratio, log scale)"]
+
+
+def test_count_figures_title_their_axes_with_units():
+    alerts = pd.DataFrame({"rule": ["r1", "r1", "r2"], "site_label": ["North Site", "South Site", "North Site"],
+                           "n_alerts": [3, 1, 2]})
+    fig = figures.build_alert_counts(alerts, site_colours=SITES, title="t")
+    assert [list(t.x) for t in fig.data] == [[3, 2], [1, 0]]
+    assert _axis_titles(fig) == ["Individual-exam alerts in the period (count)", "Alert rule"]
+    weight = pd.DataFrame({"site_label": ["North Site"], "modality": ["CT"], "n_studies": [10],
+                           "n_with_weight": [7], "pct_with_weight": [70.0]})
+    fig = figures.build_weight_share(weight, title="t")
+    assert list(fig.data[0].y) == [70.0] and tuple(fig.layout.yaxis.range) == (0, 100)
+    assert _axis_titles(fig) == ["Site", "Studies with patient weight recorded (%)"]
+    files = pd.DataFrame({"status": ["loaded", "quarantined"], "reason": ["", "truncated"], "n_files": [900, 2]})
+    fig = figures.build_file_status(files, title="t")
+    assert list(fig.data[0].y) == ["loaded", "quarantined: truncated"]
+    assert fig.layout.xaxis.type == "log"
+    assert _axis_titles(fig) == ["Input files (count, log scale)", "Outcome: reason"]
+
+
+@pytest.mark.parametrize("builder, kwargs", [
+    (figures.build_reference_comparison, {"site_colours": SITES, "title": "t"}),
+    (figures.build_distribution, {"title": "t"}),
+    (figures.build_weight_share, {"title": "t"}),
+])
+def test_builders_refuse_an_empty_frame(builder, kwargs):
+    with pytest.raises(ValueError, match="no rows to draw"):
+        builder(pd.DataFrame(), **kwargs)
+
+
+def test_builders_name_a_missing_column():
+    with pytest.raises(ValueError, match="missing column.*network_p75"):
+        figures.build_reference_comparison(_room_medians().drop(columns="network_p75"),
+                                           site_colours=SITES, title="t")
+
+
+def test_units_and_axis_titles():
+    assert unit_label("Gy.cm2") == "Gy·cm²" and unit_label("mGy.cm") == "mGy·cm"
+    assert unit_label(None) == "unit not stated" and unit_label("kBq") == "kBq"
+    assert axis_title("dose_rp", "mGy") == "Ka,r (mGy)"
+    assert axis_title("new_quantity", "mGy") == "new_quantity (mGy)"
+
+
+def test_figures_are_pure_same_input_same_json():
+    a = figures.build_distribution(_distribution(), title="x").to_json()
+    b = figures.build_distribution(_distribution(), title="x").to_json()
+    assert a == b

@@ -1,0 +1,238 @@
+"""The written site: pages, shared local plotly.js, CSV beside every table, determinism, privacy."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from html import escape
+import re
+import shutil
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from plotly.offline import get_plotlyjs
+
+import dashboards
+from dashboards import figures, pages, site as site_module, theme
+from dashboards.pages import CAUTIONS, PAGES
+from dashboards.site import write_site
+
+from .conftest import GENERATED_AT
+
+PAGE_FILES = [f for f, _, _ in PAGES]
+
+
+def _html(site: Path, name: str) -> str:
+    return (site / name).read_text(encoding="utf-8")
+
+
+def test_every_page_and_one_local_plotly_copy(site):
+    assert sorted(p.name for p in site.glob("*.html")) == sorted(PAGE_FILES)
+    assert [p.name for p in site.glob("*.js")] == ["plotly.min.js"]
+    assert (site / "plotly.min.js").read_text(encoding="utf-8") == get_plotlyjs()
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        scripts = re.findall(r'<script[^>]*\bsrc="([^"]+)"', html)
+        assert scripts in ([], ["plotly.min.js"]), name
+        if 'class="plotly-graph-div"' in html:
+            assert scripts == ["plotly.min.js"], f"{name} draws plots but does not load plotly.min.js"
+
+
+def test_pages_name_no_external_resource(site):
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        external = re.findall(r'<(?:script|link|img|iframe)\b[^>]*\b(?:src|href)="((?:https?:)?//[^"]*)"', html,
+                              flags=re.IGNORECASE)
+        assert external == [], f"{name} loads {external}"
+        assert "@import" not in html and "url(http" not in html
+
+
+def test_every_page_has_cautions_period_reference_sets_and_generation_time(site, marts):
+    _, label, first, last, sets = marts
+    assert label == "2026-09-01..2026-11-30" and (first, last) == (dt.date(2026, 9, 1), dt.date(2026, 11, 30))
+    assert not sets.empty
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        for caution in CAUTIONS:
+            assert html.count(escape(caution)) >= 2, f"{name} lacks the caution {caution[:40]!r}"
+        footer = html[html.index("<footer"):]
+        assert "01 Sep 2026 to 30 Nov 2026" in footer
+        for set_id in sets["set_id"]:
+            assert set_id in footer
+        assert "2026-12-01 08:30 UTC" in footer
+        # The generation time appears nowhere but the footer.
+        assert html[:html.index("<footer")].count("2026-12-01 08:30") == 0
+
+
+def test_navigation_links_every_page_and_marks_the_current_one(site):
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        nav = html[html.index('<nav class="wrap"'):html.index("</nav>")]
+        assert re.findall(r'href="([^"]+)"', nav) == PAGE_FILES
+        assert f'<a href="{name}" aria-current="page">' in nav
+
+
+def test_every_table_has_its_csv_beside_it_with_the_same_rows(site):
+    seen = 0
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        for table, n_rows in re.findall(r'<figure class="table" id="table-([a-z0-9-]+)">.*?CSV \((\d+) rows\)',
+                                        html):
+            path = site / f"{table}.csv"
+            assert path.exists(), f"{name}: table {table} has no CSV"
+            frame = pd.read_csv(path)
+            assert len(frame) == int(n_rows), table
+            seen += 1
+    assert seen >= 15
+
+
+def test_csv_values_match_the_marts(site, audited):
+    import duckdb
+    ranked = pd.read_csv(site / "reference-room-medians.csv")
+    con = duckdb.connect(str(audited), read_only=True)
+    try:
+        n_groups, n_ref = con.execute(  # check SQL in a test (STYLE D)
+            "select count(*), count(reference_value) from audit_medians").fetchone()
+    finally:
+        con.close()
+    assert len(ranked) == n_groups and ranked["reference_value"].notna().sum() == n_ref
+
+
+def test_story_head_ct_above_reference_is_flagged_everywhere(site):
+    """tgh-ct1 runs its head protocol about 1.4x the UKHSA 2022 CT head DLP level (README stories)."""
+    above = pd.read_csv(site / "overview-above-reference.csv")
+    head = above[(above["room_label"] == "TGHCT1") & (above["exam_type"] == "ct_head") & (above["quantity"] == "dlp")]
+    assert len(head) == 1
+    assert head["reference_set"].iloc[0] == "ukhsa_adult_ct_2022"
+    assert 1.2 < head["ratio_to_reference"].iloc[0] < 1.7
+    ranked = pd.read_csv(site / "sites-ranked.csv")
+    dlp = ranked[ranked["quantity"] == "dlp"]
+    assert (dlp["room_label"].iloc[0], dlp["exam_type"].iloc[0]) == ("TGHCT1", "ct_head")
+    assert list(ranked["rank"]) == list(range(1, len(ranked) + 1))
+    assert ranked["ratio_to_reference"].is_monotonic_decreasing
+    index = _html(site, "index.html")
+    assert "Exam types above their reference level" in index and ">above reference<" in index
+
+
+def test_insufficient_samples_are_marked_on_the_pages(site):
+    medians = pd.read_csv(site / "reference-room-medians.csv")
+    n_small = int((~medians["is_sample_adequate"]).sum())
+    assert n_small > 0     # the 320-study corpus has many small groups
+    html = _html(site, "reference-levels.html")
+    assert html.count(">too few<") == n_small          # the flag column of the table
+    assert "(too few)" in html                          # the room labels of the figures
+    assert "sample below the audit minimum" in _html(site, "distributions.html")
+
+
+def test_pseudonymous_keys_only(site, studies_manifest):
+    texts = [p.read_text(encoding="utf-8") for p in site.iterdir() if p.suffix in (".html", ".csv")]
+    blob = "\n".join(texts)
+    patient_ids = set(studies_manifest["patient_id"].dropna().astype(str))
+    assert len(patient_ids) > 100
+    leaked = [pid for pid in patient_ids if pid in blob]
+    assert leaked == []
+    uids = set(studies_manifest["study_instance_uid"].astype(str))
+    assert [u for u in uids if u in blob] == []
+    alerts = pd.read_csv(site / "alerts.csv")
+    assert len(alerts) > 0 and alerts["study_key"].str.fullmatch(r"[0-9a-f]{32}").all()
+    assert "path" not in pd.read_csv(site / "dq-files-not-loaded.csv").columns
+
+
+def test_two_writes_with_the_same_time_are_byte_identical(audited, site, tmp_path):
+    again = write_site(audited, tmp_path / "again", generated_at=GENERATED_AT).parent
+    first = {p.name: p.read_bytes() for p in site.iterdir()}
+    second = {p.name: p.read_bytes() for p in again.iterdir()}
+    assert sorted(first) == sorted(second)
+    assert [n for n in first if first[n] != second[n]] == []
+
+
+def test_a_later_generation_time_changes_only_the_footer(audited, site, tmp_path):
+    later = write_site(audited, tmp_path / "later",
+                       generated_at=dt.datetime(2027, 1, 2, 3, 4, tzinfo=dt.UTC)).parent
+    for name in PAGE_FILES:
+        a, b = _html(site, name), _html(later, name)
+        assert a != b and "2027-01-02 03:04 UTC" in b
+        assert a.replace("2026-12-01 08:30 UTC", "2027-01-02 03:04 UTC") == b
+
+
+def test_plot_div_ids_are_fixed_and_unique(site):
+    ids = []
+    for name in PAGE_FILES:
+        ids += re.findall(r'<div id="([^"]+)" class="plotly-graph-div"', _html(site, name))
+    assert len(ids) == len(set(ids)) > 10
+    assert all(re.fullmatch(r"fig-[a-z0-9-]+", i) for i in ids)
+
+
+def _plot_layouts(html: str) -> list[tuple[str, dict]]:
+    """(div id, layout) of every Plotly.newPlot call in a page."""
+    decoder, out = json.JSONDecoder(), []
+    for match in re.finditer(r'Plotly\.newPlot\(\s*"([^"]+)",\s*', html):
+        data, end = decoder.raw_decode(html, match.end())
+        rest = html[end:].lstrip().lstrip(",").lstrip()
+        layout, _ = decoder.raw_decode(rest)
+        out.append((match.group(1), layout))
+    return out
+
+
+def test_every_axis_of_every_plot_is_titled_with_a_unit(site):
+    """Numeric axes name quantity and unit '(...)'; category axes name what the categories are."""
+    n_numeric = n_category = 0
+    for name in PAGE_FILES:
+        for div_id, layout in _plot_layouts(_html(site, name)):
+            axes = {k: v for k, v in layout.items() if re.fullmatch(r"[xy]axis\d*", k)}
+            assert axes, div_id
+            for key, axis in axes.items():
+                title = axis.get("title", {}).get("text", "")
+                if axis.get("type") in ("category", "multicategory"):
+                    assert len(title) > 3, f"{div_id} {key} has no title"
+                    n_category += 1
+                else:
+                    assert axis.get("type") in ("linear", "log", "date"), f"{div_id} {key}: type not set"
+                    assert re.search(r"\(.+\)", title), f"{div_id} {key}: {title!r} states no unit"
+                    n_numeric += 1
+    assert n_numeric > 30 and n_category > 10
+
+
+def test_reference_lines_are_drawn_where_a_reference_exists(site):
+    layouts = dict(_plot_layouts(_html(site, "distributions.html")))
+    head = layouts["fig-dist-ct-head"]
+    refs = [a["text"] for a in head.get("annotations", []) if a.get("text", "").startswith("Reference level")]
+    assert any("790 mGy·cm" in t and "ukhsa_adult_ct_2022" in t for t in refs)
+
+
+def test_unaudited_warehouse_is_refused_with_a_clear_message(warehouse, tmp_path):
+    from pipeline.errors import WarehouseError
+    db, _ = warehouse
+    copy = tmp_path / "raw.duckdb"
+    shutil.copyfile(db, copy)
+    with pytest.raises(WarehouseError, match="has not been audited .*audit_medians.*run `kerma audit`"):
+        write_site(copy, tmp_path / "site")
+    assert not (tmp_path / "site").exists()
+
+
+def test_empty_audit_period_still_writes_every_page(audited, tmp_path):
+    from pipeline.audit import run_audit
+    copy = tmp_path / "empty.duckdb"
+    shutil.copyfile(audited, copy)
+    run_audit(copy, period="2031-01")        # no study in that month
+    out = tmp_path / "site"
+    write_site(copy, out, generated_at=GENERATED_AT)
+    assert sorted(p.name for p in out.glob("*.html")) == sorted(PAGE_FILES)
+    html = (out / "reference-levels.html").read_text(encoding="utf-8")
+    assert "No exam in the period maps to a standard exam type" in html
+    assert "No individual-exam alert fired in the period." in (out / "alerts.html").read_text(encoding="utf-8")
+
+
+def test_text_from_the_warehouse_is_escaped():
+    frame = pd.DataFrame({"study_description": ["<script>alert(1)</script> & co"]})
+    table = pages.Table("t", "cap", frame, (pages.Column("study_description", "Description"),))
+    markup = pages._render_table(table)
+    assert "<script>" not in markup and "&lt;script&gt;alert(1)&lt;/script&gt; &amp; co" in markup
+
+
+def test_public_api():
+    assert dashboards.__all__ == ["write_site"]
+    for module in (figures, pages, site_module, theme):
+        assert sorted(module.__all__) == sorted(set(module.__all__))
+        assert all(hasattr(module, name) for name in module.__all__)
