@@ -81,6 +81,22 @@ def _wants_log(values: Iterable[Any]) -> bool:
     return bool(positive) and max(positive) / min(positive) > LOG_SPAN
 
 
+def _log_ticks(values: Iterable[Any], *, fine: bool = False) -> dict[str, Any]:
+    """Explicit ticks for a log axis with their full values ('0.9', '20'), never plotly's bare
+    mantissas: a 1-2-5 sequence, or 1-1.25-1.5-2-2.5-3-4-5-6-8 when `fine` (ratio axes)."""
+    positive = [float(v) for v in values if not _missing(v) and float(v) > 0]
+    if not positive:
+        return {}
+    lo, hi = min(positive), max(positive)
+    steps = (1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6, 8) if fine else (1, 2, 5)
+    ticks = [m * 10.0 ** e for e in range(math.floor(math.log10(lo)) - 1, math.ceil(math.log10(hi)) + 1)
+             for m in steps]
+    ticks = [t for t in ticks if lo / 1.3 <= t <= hi * 1.3]
+    if fine and len(ticks) > 14:
+        ticks = [t for t in ticks if float(f"{t:.3g}") / 10 ** math.floor(math.log10(t)) in (1, 2, 5)]
+    return {"tickvals": [float(f"{t:.6g}") for t in ticks], "ticktext": [f"{t:,.6g}" for t in ticks]}
+
+
 def _require(frame: pd.DataFrame, columns: Iterable[str], builder: str) -> None:
     if frame.empty:
         raise ValueError(f"{builder}: no rows to draw")
@@ -90,12 +106,8 @@ def _require(frame: pd.DataFrame, columns: Iterable[str], builder: str) -> None:
 
 
 def _layout(fig: go.Figure, title: str, height: int) -> go.Figure:
-    """Template, title and a top margin that leaves room for the legend rows above the plot."""
-    entries = sum(1 for t in fig.data if t.showlegend is not False and t.name)
-    rows = max(1, math.ceil(entries / 4))
-    top = 60 + 22 * rows
-    fig.update_layout(template=TEMPLATE, title={"text": title}, height=height + top,
-                      margin={"t": top})
+    """Template, title and height (the legend sits right of the plot, see theme.TEMPLATE)."""
+    fig.update_layout(template=TEMPLATE, title={"text": title}, height=height + 60)
     return fig
 
 
@@ -180,7 +192,7 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     log = _wants_log(values)
     fig.update_xaxes(title={"text": "Room median with 95 % CI: " + axis_title(quantity, unit)
                                     + (", log scale" if log else "")},
-                     type="log" if log else "linear", **({"dtick": "D2"} if log else {}))
+                     type="log" if log else "linear", **(_log_ticks(values) if log else {}))
     fig.update_yaxes(title={"text": "Exam type · room · site (n: exams in the period)"},
                      type="multicategory", autorange="reversed")
     return _layout(fig, title, height=90 + 26 * len(rows))
@@ -263,7 +275,8 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         values = [*part["p05"], *part["p95"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, phantom, log)},
-                         type="log" if log else "linear", row=1, col=col)
+                         type="log" if log else "linear", **(_log_ticks(values) if log else {}),
+                         row=1, col=col)
         fig.update_xaxes(title={"text": "Room · site (n adult / paediatric exams)"}, type="category",
                          row=1, col=col)
     fig.update_layout(boxmode="group")
@@ -367,7 +380,8 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
-                         type="log" if log else "linear", row=row, col=1)
+                         type="log" if log else "linear", **(_log_ticks(values) if log else {}),
+                         row=row, col=1)
         fig.update_xaxes(title={"text": "Month of study (calendar month)"}, type="date",
                          tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
                          range=x_range, row=row, col=1)
@@ -434,9 +448,10 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
     lo = min([*ratios, *([v for v in limits["lower_998"]] if not limits.empty else []), 0.5])
     hi = max([*ratios, *([v for v in limits["upper_998"]] if not limits.empty else []), 2.0])
     fig.update_xaxes(title={"text": "Exams in the room's audit group (count, log scale)"},
-                     type="log", range=[0, math.log10(x_max * 1.05)], dtick="D2")
+                     type="log", range=[0, math.log10(x_max * 1.05)], **_log_ticks([1, x_max]))
     fig.update_yaxes(title={"text": f"{quantity_name(quantity)}: median ÷ reference (ratio, log scale)"},
-                     type="log", range=[math.log10(lo) - 0.05, math.log10(hi) + 0.05])
+                     type="log", range=[math.log10(lo) - 0.05, math.log10(hi) + 0.05],
+                     **_log_ticks([lo, hi], fine=True))
     return _layout(fig, title, height=460)
 
 
@@ -495,6 +510,7 @@ def build_file_status(frame: pd.DataFrame, *, title: str) -> go.Figure:
     ))
     log = _wants_log(frame["n_files"])
     fig.update_xaxes(title={"text": "Input files (count" + (", log scale)" if log else ")")},
-                     type="log" if log else "linear")
+                     type="log" if log else "linear",
+                     **(_log_ticks([1, *frame["n_files"]]) if log else {}))
     fig.update_yaxes(title={"text": "Outcome: reason"}, type="category", autorange="reversed")
     return _layout(fig, title, height=100 + 34 * len(labels))

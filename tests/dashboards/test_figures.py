@@ -207,3 +207,16 @@ def test_figures_are_pure_same_input_same_json():
     a = figures.build_distribution(_distribution(), title="x").to_json()
     b = figures.build_distribution(_distribution(), title="x").to_json()
     assert a == b
+
+
+def test_log_axes_label_ticks_with_full_values():
+    points, limits = _funnel()
+    fig = figures.build_funnel(points, limits, site_colours=SITES, title="DLP")
+    y = fig.layout.yaxis
+    assert "1" in y.ticktext and "0.5" in y.ticktext and "2" in y.ticktext
+    assert all(float(t) == v for t, v in zip(y.ticktext, y.tickvals, strict=True))
+    assert list(fig.layout.xaxis.tickvals[:4]) == [1.0, 2.0, 5.0, 10.0]
+    wide = _room_medians()
+    wide.loc[2, ["median", "median_ci_low", "median_ci_high", "network_p75"]] = [20.0, 15.0, 25.0, 22.0]
+    x = figures.build_reference_comparison(wide, site_colours=SITES, title="t").layout.xaxis
+    assert list(x.ticktext) == ["20", "50", "100", "200", "500", "1,000"]

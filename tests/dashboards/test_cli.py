@@ -1,0 +1,43 @@
+"""`kerma dashboard`: audit the period, then write the site (the command the issue names)."""
+
+from __future__ import annotations
+
+import shutil
+
+from typer.testing import CliRunner
+
+from pipeline.cli import app
+
+
+def test_kerma_dashboard_audits_and_writes_the_site(warehouse, tmp_path):
+    db, _ = warehouse
+    copy = tmp_path / "kerma.duckdb"
+    shutil.copyfile(db, copy)
+    out = tmp_path / "site"
+    result = CliRunner().invoke(app, ["dashboard", "--warehouse", str(copy), "--from", "2026-09-01",
+                                      "--to", "2026-11-30", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert f"Dashboards written: {out / 'index.html'}" in " ".join(result.output.split())
+    assert (out / "plotly.min.js").exists() and (out / "sites.html").exists()
+    assert "01 Sep 2026 to 30 Nov 2026" in (out / "index.html").read_text(encoding="utf-8")
+
+
+def test_kerma_dashboard_single_month(warehouse, tmp_path):
+    db, _ = warehouse
+    copy = tmp_path / "kerma.duckdb"
+    shutil.copyfile(db, copy)
+    result = CliRunner().invoke(app, ["dashboard", "--warehouse", str(copy), "--period", "2026-10",
+                                      "--out", str(tmp_path / "site")])
+    assert result.exit_code == 0, result.output
+    index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
+    assert "2026-10 (01 Oct 2026 to 31 Oct 2026)" in index
+
+
+def test_kerma_dashboard_bad_period_exits_2_with_a_message(warehouse, tmp_path):
+    db, _ = warehouse
+    copy = tmp_path / "kerma.duckdb"
+    shutil.copyfile(db, copy)
+    result = CliRunner().invoke(app, ["dashboard", "--warehouse", str(copy), "--period", "Oct 2026",
+                                      "--out", str(tmp_path / "site")])
+    assert result.exit_code == 2 and "--period must be YYYY-MM" in result.output
+    assert not (tmp_path / "site").exists()
