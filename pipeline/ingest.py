@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+import multiprocessing
 import uuid
 from collections import Counter
 from collections.abc import Callable, Iterable
@@ -112,7 +113,25 @@ _WORKER_PSEUDONYMISE: Callable[[str, str], str] | None = None
 
 def _init_worker(key: bytes) -> None:
     global _WORKER_PSEUDONYMISE
+    _die_with_parent()
     _WORKER_PSEUDONYMISE = make_pseudonymiser(key)
+
+
+def _die_with_parent() -> None:
+    """End this worker when the ingest process dies (even by SIGKILL): an idle worker would
+    otherwise wait on its queue forever. A daemon thread notices the re-parenting."""
+    import os
+    import threading
+    import time
+
+    parent = os.getppid()
+
+    def watch() -> None:
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="kerma-parent-watch", daemon=True).start()
 
 
 def _work(item: tuple[str, bytes]) -> FileOutcome:
@@ -204,7 +223,10 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     run_id = f"run-{dt.datetime.now(dt.UTC):%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
     summary = IngestSummary(run_id=run_id, warehouse=Path(warehouse))
     pseudonymise = make_pseudonymiser(key)
-    pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,)) \
+    # "spawn", not the Linux default "fork": the workers start after the warehouse is open, and a
+    # forked child inherits DuckDB's threads and state mid-flight (seen to segfault in a worker).
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,),
+                               mp_context=multiprocessing.get_context("spawn")) \
         if workers > 1 else None
     started = dt.datetime.now()
     try:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import signal
 import subprocess
 import time
+from pathlib import Path
 
 import duckdb
 
@@ -25,6 +26,7 @@ def test_sigkill_between_batches_keeps_whole_batches_and_the_rerun_completes(sma
     assert proc.wait(timeout=30) == -signal.SIGKILL
     proc.stdout.close()
     proc.stderr.close()
+    _assert_no_process_left(str(db))
     con = duckdb.connect(str(db), read_only=True)
     (n,) = con.execute("select count(*) from source_object").fetchone()
     (n_runs, n_finished) = con.execute(
@@ -38,6 +40,26 @@ def test_sigkill_between_batches_keeps_whole_batches_and_the_rerun_completes(sma
     assert _unchanged(rerun.stdout) == n  # the committed files are skipped, not redone
     assert_complete(db, small_corpus)
     assert digests(small_corpus) == before
+
+
+def _processes_naming(text: str) -> list[int]:
+    found = []
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                if text.encode() in (entry / "cmdline").read_bytes():
+                    found.append(int(entry.name))
+            except OSError:
+                continue
+    return found
+
+
+def _assert_no_process_left(warehouse: str) -> None:
+    """The killed ingest's worker processes end too (they would otherwise idle forever)."""
+    deadline = time.monotonic() + 10
+    while _processes_naming(warehouse) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert _processes_naming(warehouse) == []
 
 
 def _unchanged(output: str) -> int:
