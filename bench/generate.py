@@ -1,0 +1,56 @@
+"""Corpus generation speed, and a digest to prove the output did not change (on demand).
+
+    .venv/bin/python bench/generate.py --studies 300 --workers 1 --digest
+
+Prints studies/s and files/s; with --digest, one SHA-256 over every file's relative path and
+SHA-256 (manifests included), to compare byte for byte across versions of the generator.
+"""
+
+from __future__ import annotations
+
+import argparse
+import hashlib
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+
+def corpus_digest(root: Path) -> str:
+    h = hashlib.sha256()
+    for p in sorted(root.rglob("*")):
+        if p.is_file():
+            h.update(str(p.relative_to(root)).encode() + b"\0")
+            h.update(hashlib.sha256(p.read_bytes()).digest())
+    return h.hexdigest()
+
+
+def main() -> None:
+    from synthetic_studies.write import write_corpus
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--studies", type=int, default=1000)
+    parser.add_argument("--seed", type=int, default=7)
+    parser.add_argument("--months", type=int, default=3)
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--digest", action="store_true")
+    parser.add_argument("--keep", type=Path, help="write here instead of a temporary folder")
+    args = parser.parse_args()
+    out = args.keep or Path(tempfile.mkdtemp(prefix="kerma-gen-"))
+    try:
+        started = time.perf_counter()
+        summary = write_corpus(out, seed=args.seed, months=args.months, n_studies=args.studies,
+                               workers=args.workers)
+        seconds = time.perf_counter() - started
+        print(f"{args.studies} studies, {summary.n_files} files, {summary.size_bytes / 1e6:.1f} MB "
+              f"in {seconds:.1f} s with {args.workers} worker(s): "
+              f"{args.studies / seconds:.1f} studies/s, {summary.n_files / seconds:.0f} files/s")
+        if args.digest:
+            print(f"digest {corpus_digest(out)}")
+    finally:
+        if args.keep is None:
+            shutil.rmtree(out)
+
+
+if __name__ == "__main__":
+    main()

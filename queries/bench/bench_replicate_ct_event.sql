@@ -1,0 +1,12 @@
+-- grain: one row per CT event per report and copy k; doses jittered by a per-copy factor 0.7-1.3
+insert into raw_ct_event by name
+select e.* replace (
+    e.event_uid || '~' || c.k as event_uid,
+    e.sop_instance_uid || '~' || c.k as sop_instance_uid,
+    e.study_key || '~' || c.k as study_key,
+    case when c.k % $rooms = 0 then e.device_key else e.device_key || '~' || (c.k % $rooms) end as device_key,
+    e.ctdivol_mgy * (0.7 + 0.6 * (hash(e.study_key, c.k) % 1000) / 1000.0) as ctdivol_mgy,
+    e.dlp_mgy_cm * (0.7 + 0.6 * (hash(e.study_key, c.k) % 1000) / 1000.0) as dlp_mgy_cm
+)
+from raw_ct_event as e, range(1, $copies) as c (k)
+where e.sop_instance_uid not like '%~%'
