@@ -3,7 +3,7 @@
 For a sample of n, the interval [x_(l), x_(n-l+1)] covers the population median with
 probability 1 - 2 P(B <= l - 1), B ~ Binomial(n, 1/2) (Conover, Practical Nonparametric
 Statistics, 3rd ed. 1999, section 3.2; Hollander & Wolfe). We take the largest l whose
-coverage is at least the requested level (exact for n <= 2000, normal approximation above).
+coverage is at least the requested level (exact for n <= 1000, normal approximation above).
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ __all__ = ["median_ci_ranks"]
 
 def _lower_rank(n: int, level: float) -> int | None:
     alpha = (1.0 - level) / 2.0
-    if n > 2000:
+    if n > 1000:
         z = 1.959963984540054 if abs(level - 0.95) < 1e-12 else _z(level)
         rank = math.floor(n / 2.0 - z * math.sqrt(n) / 2.0)
         return rank if rank >= 1 else None
@@ -24,7 +24,7 @@ def _lower_rank(n: int, level: float) -> int | None:
     best = None
     for l in range(1, n // 2 + 1):
         cumulative += math.comb(n, l - 1)     # P(B <= l - 1) * 2**n
-        if cumulative * 1.0 / total <= alpha:
+        if cumulative / total <= alpha:  # int / int: exact rounding, no float overflow
             best = l
         else:
             break

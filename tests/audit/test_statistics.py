@@ -9,13 +9,17 @@ from pipeline.metrics import detect_drift, median_ci_ranks
 from pipeline.metrics.drift import mann_whitney_z
 
 
-@pytest.mark.parametrize("n", [6, 7, 10, 20, 30, 51, 100, 333, 1000])
+@pytest.mark.parametrize("n", [6, 7, 10, 20, 30, 51, 100, 333, 1000, 1001, 1500, 4000])
 def test_median_ci_ranks_match_scipy_quantile_test(n):
     """scipy.stats.quantile_test gives the exact distribution-free interval (Conover 1999)."""
     x = np.arange(1, n + 1, dtype=float)
     ci = quantile_test(x, q=np.median(x), p=0.5).confidence_interval(0.95)
     row = median_ci_ranks(n)[n - 1]
-    assert (x[row["lower_rank"] - 1], x[row["upper_rank"] - 1]) == (ci.low, ci.high)
+    got = (x[row["lower_rank"] - 1], x[row["upper_rank"] - 1])
+    if n <= 1000:
+        assert got == (ci.low, ci.high)
+    else:  # normal approximation of the binomial: within one rank of the exact interval
+        assert abs(got[0] - ci.low) <= 1 and abs(got[1] - ci.high) <= 1
 
 
 def test_median_ci_undefined_for_tiny_samples():
