@@ -63,7 +63,7 @@ def demo(
     seed: int = typer.Option(7, help="Random seed of the demo corpus."),
     workers: int = typer.Option(2, min=1, help="Processes for generating and parsing."),
 ) -> None:
-    """Run the main job on the embedded demo scenario: generate, then ingest."""
+    """Run the main job on the embedded demo scenario: generate, ingest, audit, dashboards."""
     import secrets
 
     from synthetic_studies.write import write_corpus
