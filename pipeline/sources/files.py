@@ -138,7 +138,8 @@ def iter_candidates(paths: list[Path]) -> Iterator[Candidate]:
 # that does not fit its VR, a sequence that ends early). pydicom decodes lazily, so these
 # surface only when the parser first reads the element, not in dcmread.
 _DECODING_ERRORS = (NotImplementedError, ValueError, struct.error, KeyError, IndexError,
-                    OverflowError, EOFError, TypeError, AttributeError)
+                    OverflowError, EOFError, TypeError, AttributeError,
+                    OSError)  # pydicom: "No tag to read at file position ..." (reading memory)
 
 
 def _decoding_errors_quarantine(convert: Callable) -> Callable:

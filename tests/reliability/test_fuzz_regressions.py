@@ -56,3 +56,12 @@ def test_absurd_number_of_sources_and_instance_number_still_load(lenient_pydicom
     assert IssueKind.IMPLAUSIBLE_VALUE in [i.kind for i in o.obj.issues]
     tables = _batch_tables([o], "run-x", dt.datetime(2026, 1, 1))  # overflowed Arrow before
     assert tables["ct_event"].num_rows == len(o.obj.ct_events)
+
+
+def test_sequence_cut_by_an_overwrite_is_quarantined_not_a_crash():
+    """Found in CI: b'\\x00\\x01' written mid-file makes pydicom raise OSError ('No tag to read')
+    while the parser decodes a sequence lazily."""
+    from tests.reliability.test_fuzz import apply_byte_ops
+    data = encode(demo_dataset("tgh-ct1")[1])
+    o = _outcome(apply_byte_ops(data, [("overwrite", 0.4991018259303336, b"\x00\x01", 0)]))
+    assert o.status in ("loaded", "not_dose", "quarantined")
