@@ -65,9 +65,12 @@ class IngestSummary:
         return self.by_status["loaded"]
 
 
-def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str]) -> FileOutcome:
-    """Bytes of one file -> outcome (parsed object or the reason it was not loaded). No I/O."""
-    digest = hashlib.sha256(data).hexdigest()
+def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str],
+                 digest: str | None = None) -> FileOutcome:
+    """Bytes of one file -> outcome (parsed object or the reason it was not loaded). No I/O.
+
+    `digest` is the SHA-256 of `data` when the caller has already computed it."""
+    digest = digest or hashlib.sha256(data).hexdigest()
     outcome = FileOutcome(path, digest, len(data), "loaded")
     with lenient_pydicom() as caught:
         try:
@@ -134,8 +137,8 @@ def _die_with_parent() -> None:
     threading.Thread(target=watch, name="kerma-parent-watch", daemon=True).start()
 
 
-def _work(item: tuple[str, bytes]) -> FileOutcome:
-    return process_file(item[0], item[1], _WORKER_PSEUDONYMISE)
+def _work(item: tuple[str, bytes, str]) -> FileOutcome:
+    return process_file(item[0], item[1], _WORKER_PSEUDONYMISE, item[2])
 
 
 # --- rows for the warehouse ----------------------------------------------------------------------
@@ -199,13 +202,15 @@ def _chunks(items: Iterable[Candidate], size: int):
         yield chunk
 
 
-def _read(c: Candidate) -> tuple[bytes | None, InputError | None, OSError | None]:
+def _read(c: Candidate) -> tuple[bytes | None, InputError | None]:
+    """The file's bytes, or the InputError that quarantines it (an OSError becomes one)."""
     try:
-        return c.read(), None, None
+        return c.read(), None
     except InputError as exc:
-        return None, exc, None
+        return None, exc
     except OSError as exc:
-        return None, None, exc
+        return None, InputError(f"{c.path}: cannot be read: {exc.strerror or exc}",
+                                reason="unreadable_file")
 
 
 def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
@@ -319,35 +324,23 @@ def _dispatch_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary):
     """Read one batch and start parsing it (in the pool, if any); returns what _collect needs."""
     summary.seen += len(chunk)
     known = _known(con, [c.path for c in chunk])
-    todo: list[tuple[str, bytes]] = []
+    todo: list[tuple[str, bytes, str]] = []
     outcomes: list[FileOutcome] = []
     for c in chunk:
-        data, input_error, os_error = _read(c)
-        if input_error is not None:
-            digest = hashlib.sha256(c.path.encode()).hexdigest()  # no content: key on the name
-            if (c.path, digest) in known:
-                summary.unchanged += 1
-                continue
-            outcomes.append(FileOutcome(c.path, digest, 0, input_error.status,
-                                        input_error.reason, str(input_error)))
-            continue
-        if os_error is not None:
-            digest = hashlib.sha256(c.path.encode()).hexdigest()
-            if (c.path, digest) in known:
-                summary.unchanged += 1
-                continue
-            outcomes.append(FileOutcome(c.path, digest, 0, "quarantined", "unreadable_file",
-                                        f"{c.path}: cannot be read: {os_error.strerror or os_error}"))
-            continue
-        digest = hashlib.sha256(data).hexdigest()
+        data, error = _read(c)
+        # a file that could not be read has no content: key it on its name
+        digest = hashlib.sha256(c.path.encode() if data is None else data).hexdigest()
         if (c.path, digest) in known:
             summary.unchanged += 1
             continue
-        todo.append((c.path, data))
+        if error is not None:
+            outcomes.append(FileOutcome(c.path, digest, 0, error.status, error.reason, str(error)))
+            continue
+        todo.append((c.path, data, digest))
     if pool is not None:
         results = pool.map(_work, todo, chunksize=8)  # submitted now, collected by _collect
     else:
-        results = [process_file(p, d, pseudonymise) for p, d in todo]
+        results = [process_file(p, d, pseudonymise, h) for p, d, h in todo]
     return len(chunk), outcomes, results
 
 

@@ -7,7 +7,8 @@ from pydicom.dataset import Dataset
 from .. import concepts as C
 from ..models import Accumulated, IssueKind, ProjectionEvent
 from .common import Measurer, code_label
-from .content_tree import code_value_of, datetime_of, find, find_all, first, text_of, uid_of
+from .content_tree import (code_value_of, datetime_of, find, find_all, first, num_raw, text_of,
+                           uid_of)
 from .units import Quantity
 
 __all__ = ["parse_projection_accumulated", "parse_projection_events", "projection_modality"]
@@ -148,7 +149,6 @@ def _signed(node, concept, uid, m: Measurer) -> float | None:
     item = first(node, concept, "NUM")
     if item is None:
         return None
-    from .content_tree import num_raw
     text, unit, _ = num_raw(item)
     try:
         return float(text) if text is not None else None
@@ -162,7 +162,6 @@ def _angle(node, concept, uid, m: Measurer) -> float | None:
     item = first(node, concept, "NUM")
     if item is None:
         return None
-    from .content_tree import num_raw
     text, unit, _ = num_raw(item)
     if text is None:
         return None
