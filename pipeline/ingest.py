@@ -23,10 +23,10 @@ import duckdb
 
 from . import __version__
 from .errors import InputError, WarehouseError
-from .models import DoseObject, as_row
+from .models import DoseObject, IssueKind, ParseIssue, as_row
 from .parsing import parse_dose_object
 from .pseudonym import make_pseudonymiser
-from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_dataset
+from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_object
 from .warehouse.connection import connection
 from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
 from .warehouse.tables import arrow_table
@@ -74,7 +74,8 @@ def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str]
     outcome = FileOutcome(path, digest, len(data), "loaded")
     with lenient_pydicom() as caught:
         try:
-            ds = read_dataset(data, path)
+            read = read_object(data, path)
+            ds = read.dataset
             outcome.sop_class_uid = _text(ds, "SOPClassUID")
             outcome.sop_instance_uid = _text(ds, "SOPInstanceUID")
             obj = parse_dose_object(ds, pseudonymise)
@@ -87,8 +88,9 @@ def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str]
             outcome.status, outcome.reason = "quarantined", "content_tree_too_deep"
             outcome.detail = f"{path}: structure nested too deeply to read"
             return outcome
+    if read.pixel_data_truncated:
+        obj.issues.append(ParseIssue(IssueKind.PIXEL_DATA_TRUNCATED, read.pixel_data_truncated))
     if caught:
-        from .models import IssueKind, ParseIssue
         seen = set()
         for w in caught:
             text = str(w.message).splitlines()[0][:300]

@@ -31,6 +31,7 @@ class ObjectKind(str, Enum):
     RDSR_PROJECTION = "rdsr_projection"  # X-Ray Radiation Dose SR, root TID 10001
     RDSR_ENHANCED = "rdsr_enhanced"      # Enhanced X-Ray Radiation Dose SR (TID 10040 family)
     IMAGE_HEADER = "image_header"        # dose attributes of an image object's header
+    DOSE_SCREEN = "dose_screen"          # an image object's Exposure Dose Sequence (0040,030E)
 
 
 class IssueKind(str, Enum):
@@ -46,6 +47,9 @@ class IssueKind(str, Enum):
     TOTAL_MISMATCH = "total_mismatch"
     CONFLICTING_EVENT = "conflicting_event"
     PARSER_WARNING = "parser_warning"
+    PIXEL_DATA_TRUNCATED = "pixel_data_truncated"   # the file ends inside its pixel data
+    UNPARSED_DOSE_TEXT = "unparsed_dose_text"       # Comments on Radiation Dose not understood
+    BELOW_RESOLUTION = "below_resolution"           # e.g. Entrance Dose 0 dGy (integer dGy)
 
 
 @dataclass(frozen=True, slots=True)
@@ -102,7 +106,7 @@ class CtEvent:
 
     event_uid: str
     sop_instance_uid: str
-    source_kind: str  # rdsr | image_header
+    source_kind: str  # rdsr | dose_screen | image_header
     acquisition_protocol: str | None = None
     target_region: str | None = None            # code meaning, e.g. "Head"
     target_region_code: str | None = None       # "SCT:69536005"
@@ -129,6 +133,12 @@ class CtEvent:
     dose_check_alert_dlp_mgy_cm: float | None = None
     dose_check_notification_ctdivol_mgy: float | None = None
     dose_check_notification_dlp_mgy_cm: float | None = None
+    # image headers only: where the images lie, for the header-only DLP estimate
+    series_instance_uid: str | None = None
+    image_z_min_mm: float | None = None          # Image Position (Patient) z, lowest image
+    image_z_max_mm: float | None = None
+    slice_thickness_mm: float | None = None
+    n_images: int | None = None                  # images (frames) this row stands for
 
 
 @dataclass(frozen=True, slots=True)
@@ -147,8 +157,9 @@ class ProjectionEvent:
     laterality: str | None = None                # L | R | B
     image_view: str | None = None
     dap_gy_cm2: float | None = None
-    dose_rp_mgy: float | None = None
-    entrance_exposure_rp_mgy: float | None = None
+    dose_rp_mgy: float | None = None             # Dose (RP) of a dose report only (Ka,r)
+    entrance_exposure_rp_mgy: float | None = None  # Entrance Exposure at RP (DCM 111636), MG report
+    entrance_dose_mgy: float | None = None       # image header Entrance Dose (0040,8302)/(0040,0302)
     kvp: float | None = None
     tube_current_ma: float | None = None
     exposure_mas: float | None = None

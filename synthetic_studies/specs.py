@@ -164,6 +164,9 @@ def study_truth(spec: StudySpec) -> dict[str, float | int | None]:
     sequenced acquisitions (localizers, constant-angle and stationary acquisitions
     excluded): sum(CTDIvol_i * L_i) / sum(L_i).
     ``agd_mgy`` is the sum of the per-view average glandular doses of the study.
+    A study known only from image headers (no dose report) states an Entrance Dose
+    (0040,8302), a surface dose: it is ``entrance_dose_total_mgy``, never ``dose_rp_total_mgy``
+    (the reference-point air kerma of a dose report).
     """
     truth: dict[str, float | int | None] = {
         "event_count": len(spec.events),
@@ -173,6 +176,7 @@ def study_truth(spec: StudySpec) -> dict[str, float | int | None]:
         "dlp_total_mgy_cm": None,
         "ctdivol_mgy": None,
         "agd_mgy": None,
+        "entrance_dose_total_mgy": None,
     }
     if spec.ct_events:
         truth["dlp_total_mgy_cm"] = _sum(e.dlp_mgy_cm for e in spec.ct_events)
@@ -184,7 +188,10 @@ def study_truth(spec: StudySpec) -> dict[str, float | int | None]:
     else:
         events = spec.projection_events
         truth["dap_total_gy_cm2"] = _sum(e.dap_gy_cm2 for e in events)
-        truth["dose_rp_total_mgy"] = _sum(e.dose_rp_mgy for e in events)
+        if any(r.kind == "rdsr" for r in spec.reports):
+            truth["dose_rp_total_mgy"] = _sum(e.dose_rp_mgy for e in events)
+        else:
+            truth["entrance_dose_total_mgy"] = _sum(e.dose_rp_mgy for e in events)
         truth["agd_mgy"] = _sum(e.agd_mgy for e in events)
         fluoro = [e for e in events if e.event_type == "fluoroscopy"]
         if fluoro:

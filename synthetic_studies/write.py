@@ -85,6 +85,7 @@ STUDIES_SCHEMA = pa.schema([
     ("dlp_total_mgy_cm", pa.float64()),
     ("ctdivol_mgy", pa.float64()),
     ("agd_mgy", pa.float64()),
+    ("entrance_dose_total_mgy", pa.float64()),
     ("story", pa.string()),
     ("defect", pa.string()),
     ("n_header_images", pa.int32()),

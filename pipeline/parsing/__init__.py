@@ -21,7 +21,9 @@ from .common import (Measurer, Pseudonymiser, content_datetime, device_info, hea
 from .content_tree import (MAX_DEPTH, TreeTooDeepError, code_value_of, concept_key, depth,
                            first, text_of)
 from .ct import parse_ct_accumulated, parse_ct_events
-from .headers import parse_ct_image_event, parse_projection_image_event
+from .dose_screen import has_exposure_dose, looks_like_dose_screen, parse_dose_screen
+from .headers import (has_breast_markers, has_ct_dose, parse_ct_image_events,
+                      parse_projection_image_event)
 from .projection import parse_projection_accumulated, parse_projection_events, projection_modality
 
 __all__ = ["DOSE_SR_CLASSES", "IMAGE_CLASSES", "MAX_ITEMS", "parse_dose_object"]
@@ -44,15 +46,24 @@ IMAGE_CLASSES = {
     "1.2.840.10008.5.1.4.1.1.12.2": "RF",     # X-Ray Radiofluoroscopic Image
     "1.2.840.10008.5.1.4.1.1.12.2.1": "RF",   # Enhanced XRF Image
     "1.2.840.10008.5.1.4.1.1.13.1.3": "MG",   # Breast Tomosynthesis Image
+    "1.2.840.10008.5.1.4.1.1.13.1.4": "MG",   # Breast Projection X-Ray Image - For Presentation
+    "1.2.840.10008.5.1.4.1.1.13.1.5": "MG",   # Breast Projection X-Ray Image - For Processing
+    "1.2.840.10008.5.1.4.1.1.7": None,        # Secondary Capture Image (dose screens)
+    "1.2.840.10008.5.1.4.1.1.7.1": None,      # Multi-frame Single Bit SC
+    "1.2.840.10008.5.1.4.1.1.7.2": None,      # Multi-frame Grayscale Byte SC
+    "1.2.840.10008.5.1.4.1.1.7.3": None,      # Multi-frame Grayscale Word SC
+    "1.2.840.10008.5.1.4.1.1.7.4": None,      # Multi-frame True Color SC
 }
+_PROJECTION_MODALITIES = ("CR", "DX", "MG", "XA", "RF", "PX", "IO")
+_SR_PREFIX = "1.2.840.10008.5.1.4.1.1.88."
 _NOT_COUNTED = {
     "1.2.840.10008.5.1.4.1.1.88.73": "Patient Radiation Dose SR: a derived estimate; the source "
                                      "reports are counted instead, never both",
     "1.2.840.10008.5.1.4.1.1.88.68": "Radiopharmaceutical Radiation Dose SR: not an X-ray dose",
 }
 MAX_ITEMS = 500_000  # a long interventional report has ~100k; more is hostile
-_IMAGE_DOSE_ATTRIBUTES = ("ImageAndFluoroscopyAreaDoseProduct", "EntranceDoseInmGy",
-                          "EntranceDose", "OrganDose", "CTDIvol")
+_PROJECTION_DOSE_ATTRIBUTES = ("ImageAndFluoroscopyAreaDoseProduct", "EntranceDoseInmGy",
+                               "EntranceDose", "OrganDose")
 
 
 def _class_name(uid: str) -> str:
@@ -169,33 +180,68 @@ def _int(text: str | None) -> int | None:
     return value if value is None or -2**31 <= value < 2**31 else None
 
 
+def _header_modality(ds: Dataset, sop_class: str, ct_dose: bool) -> str | None:
+    """The irradiating modality of an image header, from its content first: CT dose is read
+    only where CTDIvol exists; a breast exposure under any class (a tomosynthesis object stored
+    as CT Image, a Secondary Capture) is MG; else the header's Modality, else the class's."""
+    if ct_dose:
+        return "CT"
+    if has_breast_markers(ds):
+        return "MG"
+    stated = (header_text(ds, "Modality") or "").upper()
+    if stated in _PROJECTION_MODALITIES:
+        return stated
+    by_class = IMAGE_CLASSES.get(sop_class)
+    return by_class if by_class in _PROJECTION_MODALITIES else None
+
+
 def _parse_image(ds: Dataset, sop_uid: str, sop_class: str, pseudonymise: Pseudonymiser,
                  max_items: int = MAX_ITEMS) -> DoseObject:
-    modality = (header_text(ds, "Modality") or IMAGE_CLASSES[sop_class]).upper()
-    if modality not in ("CT", "CR", "DX", "MG", "XA", "RF", "PX", "IO"):
-        modality = IMAGE_CLASSES[sop_class]
-    present = [a for a in _IMAGE_DOSE_ATTRIBUTES if header_text(ds, a) is not None]
-    if not present:
+    """An image object of any class: a dose screen (Exposure Dose Sequence), CT dose
+    (CTDIvol, classic or enhanced), or projection dose attributes in its header."""
+    screen = has_exposure_dose(ds)
+    ct_dose = screen or has_ct_dose(ds)
+    modality = _header_modality(ds, sop_class, ct_dose)
+    projection_dose = modality is not None and modality != "CT" and any(
+        header_text(ds, a) is not None for a in _PROJECTION_DOSE_ATTRIBUTES) or (
+        modality == "MG" and has_breast_markers(ds))
+    if not ct_dose and not projection_dose:
+        if looks_like_dose_screen(ds, sop_class):
+            raise NotADoseObjectError(
+                f"{sop_uid}: {_class_name(sop_class)} looks like a dose screen but holds its "
+                "numbers only as pixels (no Exposure Dose Sequence (0040,030E), no CTDIvol); "
+                "reading burned-in text is not done", reason="dose_screen_pixels_only",
+                sop_instance_uid=sop_uid)
+        if IMAGE_CLASSES.get(sop_class) == "CT":
+            raise NotADoseObjectError(
+                f"{sop_uid}: {_class_name(sop_class)} without CTDIvol (0018,9345) in its header",
+                reason="image_without_dose_attributes", sop_instance_uid=sop_uid)
         raise NotADoseObjectError(
             f"{sop_uid}: {_class_name(sop_class)} without dose attributes in its header",
-            reason="image_without_dose_attributes", sop_instance_uid=sop_uid)
+            reason="image_without_dose_attributes" if sop_class in IMAGE_CLASSES
+            else "not_a_dose_class", sop_instance_uid=sop_uid)
     m = Measurer()
     study = study_info(ds, pseudonymise, m)
     device, _ = device_info(ds, modality, from_tree=False)
-    ct, proj = [], []
-    if modality == "CT":
-        ct = [parse_ct_image_event(ds, sop_uid, m)]
+    ct, proj, accumulated = [], [], []
+    kind, source = ObjectKind.IMAGE_HEADER, "Copied From Image Attributes"
+    if screen:
+        kind, source = ObjectKind.DOSE_SCREEN, "Dose Screen Attributes"
+        ct, accumulated = parse_dose_screen(ds, sop_uid, m)
+    elif modality == "CT":
+        ct = parse_ct_image_events(ds, sop_uid, m)
     else:
         proj = [parse_projection_image_event(ds, sop_uid, modality, m)]
     return DoseObject(
-        sop_instance_uid=sop_uid, sop_class_uid=sop_class, kind=ObjectKind.IMAGE_HEADER,
+        sop_instance_uid=sop_uid, sop_class_uid=sop_class, kind=kind,
         modality=modality, content_datetime=content_datetime(ds),
         instance_number=_int(header_text(ds, "InstanceNumber")),
-        source_of_dose_information="Copied From Image Attributes",
+        source_of_dose_information=source,
         series_description=header_text(ds, "SeriesDescription"),
         protocol_name=header_text(ds, "ProtocolName"),
         body_part=header_text(ds, "BodyPartExamined"),
-        study=study, device=device, ct_events=ct, projection_events=proj, issues=m.issues)
+        study=study, device=device, ct_events=ct, projection_events=proj,
+        accumulated=accumulated, issues=m.issues)
 
 
 _PARSERS: dict[str, Callable[..., DoseObject]] = {
@@ -224,6 +270,9 @@ def parse_dose_object(ds: Dataset, pseudonymise: Pseudonymiser, *,
         raise NotADoseObjectError(f"{sop_uid}: {_NOT_COUNTED[sop_class]}",
                                   reason="not_counted_dose_class", sop_instance_uid=sop_uid)
     parser = _PARSERS.get(sop_class)
+    if parser is None and not sop_class.startswith(_SR_PREFIX) and (
+            "Rows" in ds or has_exposure_dose(ds) or has_ct_dose(ds)):
+        parser = _parse_image  # an image of any other class: read only if its header has dose
     if parser is None:
         raise NotADoseObjectError(f"{sop_uid}: {_class_name(sop_class)} carries no dose information",
                                   reason="not_a_dose_class", sop_instance_uid=sop_uid)

@@ -12,6 +12,7 @@ import struct
 import tarfile
 import warnings
 import zipfile
+import zlib
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath
@@ -20,13 +21,14 @@ import pydicom
 import pydicom.config
 from pydicom.dataset import Dataset
 from pydicom.errors import InvalidDicomError
+from pydicom.filereader import data_element_generator
 from pydicom.hooks import hooks
 from pydicom.uid import UID
 
 from ..errors import NotDicomError, UnsafeArchiveMemberError, UnsupportedTransferSyntaxError
 
-__all__ = ["Candidate", "check_complete", "iter_candidates", "lenient_pydicom", "read_dataset",
-           "transfer_syntax"]
+__all__ = ["Candidate", "ReadResult", "iter_candidates", "lenient_pydicom", "read_dataset",
+           "read_object", "transfer_syntax"]
 
 _ARCHIVE_SUFFIXES = (".zip", ".tar", ".tar.gz", ".tgz")
 
@@ -177,68 +179,6 @@ def lenient_pydicom() -> Iterator[list[warnings.WarningMessage]]:
         hooks.register_callback("raw_element_value", convert)
 
 
-class _Truncated(Exception):
-    pass
-
-
-_LONG_VRS = {b"OB", b"OD", b"OF", b"OL", b"OV", b"OW", b"SQ", b"SV", b"UC", b"UN", b"UR",
-             b"UT", b"UV"}
-
-
-def _scan(buf: bytes, pos: int, end: int | None, implicit: bool, little: bool,
-          depth: int = 0) -> int:
-    """Walk element headers from `pos`; until `end`, or until a delimiter when `end` is None."""
-    if depth > 200:
-        raise _Truncated("nesting too deep")
-    fmt = "<" if little else ">"
-    size = len(buf)
-    while True:
-        if end is not None and pos >= end:
-            if pos > end:
-                raise _Truncated("element runs past its enclosing item")
-            return pos
-        if pos + 8 > size:
-            raise _Truncated("file ends inside a data element header")
-        if struct.unpack_from("<H", buf, pos)[0] == 0x0002:
-            group, elem = struct.unpack_from("<HH", buf, pos)  # file meta: always explicit LE
-        else:
-            group, elem = struct.unpack_from(fmt + "HH", buf, pos)
-        if group == 0xFFFE:
-            (length,) = struct.unpack_from(fmt + "L", buf, pos + 4)
-            pos += 8
-            if elem in (0xE00D, 0xE0DD):
-                return pos
-            if elem == 0xE000:
-                if length == 0xFFFFFFFF:
-                    pos = _scan(buf, pos, None, implicit, little, depth + 1)
-                else:
-                    if pos + length > size:
-                        raise _Truncated("file ends inside a sequence item")
-                    pos = _scan(buf, pos, pos + length, implicit, little, depth + 1)
-                continue
-            raise _Truncated("unexpected delimiter")
-        explicit = group == 0x0002 or not implicit
-        if explicit:
-            vr = buf[pos + 4:pos + 6]
-            if vr in _LONG_VRS:
-                if pos + 12 > size:
-                    raise _Truncated("file ends inside a data element header")
-                (length,) = struct.unpack_from((fmt if group != 2 else "<") + "L", buf, pos + 8)
-                pos += 12
-            else:
-                (length,) = struct.unpack_from((fmt if group != 2 else "<") + "H", buf, pos + 6)
-                pos += 8
-        else:
-            (length,) = struct.unpack_from(fmt + "L", buf, pos + 4)
-            pos += 8
-        if length == 0xFFFFFFFF:
-            pos = _scan(buf, pos, None, implicit, little, depth + 1)  # items up to delimiter
-        else:
-            if pos + length > size:
-                raise _Truncated("file ends inside a data element value")
-            pos += length
-
-
 def transfer_syntax(ds: Dataset, path: str = "file") -> UID | None:
     """The file's Transfer Syntax UID (None without file meta); UnsupportedTransferSyntaxError
     when (0002,0010) holds something that is not a transfer syntax (a damaged or unknown UID),
@@ -256,50 +196,131 @@ def transfer_syntax(ds: Dataset, path: str = "file") -> UID | None:
     return ts
 
 
-def check_complete(data: bytes, ds: Dataset) -> None:
-    """Raise NotDicomError(reason='truncated') if the byte stream ends mid-element.
+class _BoundedStream(io.BytesIO):
+    """The file's bytes as a stream that notes where a read first came up short.
 
-    pydicom stops quietly at end of file inside an undefined-length sequence, so a cut-short
-    transfer would otherwise look like a smaller, valid report.
+    pydicom reads a value with ``read(length)`` and skips a deferred one with ``seek``; at the
+    end of the data both quietly return less, and in its lenient mode pydicom turns "end of
+    file before the delimiter" into a warning. Watching the stream pydicom itself reads from
+    tells exactly whether the file ended inside an element, without parsing the bytes twice
+    or by our own rules. Two short reads are normal: the 8-byte element header read that finds
+    the end of the data set, and the 128-byte preamble read of a file without one.
     """
-    ts = transfer_syntax(ds)
-    if ts is not None and ts.is_deflated:
-        return  # the deflate stream is checked by zlib while pydicom inflates it
-    implicit = ts.is_implicit_VR if ts is not None else True
-    little = ts.is_little_endian if ts is not None else True
-    start = 132 if data[128:132] == b"DICM" else 0
+
+    def __init__(self, data: bytes) -> None:
+        super().__init__(data)
+        self.size = len(data)
+        self.cut_at: int | None = None
+
+    def read(self, n: int | None = -1) -> bytes:
+        pos = self.tell()
+        out = super().read(n)
+        if (self.cut_at is None and n is not None and 0 < n and len(out) < n
+                and not (n == 8 and not out) and not (pos == 0 and n == 128)):
+            self.cut_at = pos + len(out)
+        return out
+
+    def seek(self, offset: int, whence: int = 0) -> int:
+        pos = super().seek(offset, whence)
+        if pos > self.size and self.cut_at is None:
+            self.cut_at = self.size
+        return pos
+
+
+# What dcmread raises on bytes that end early or are not DICOM at all.
+_READ_ERRORS = (InvalidDicomError, EOFError, struct.error, ValueError, OSError,
+                NotImplementedError, KeyError, IndexError, TypeError, AttributeError,
+                UnicodeDecodeError, OverflowError, MemoryError, LookupError, zlib.error)
+# (0002-0020): file meta, identification, patient, acquisition and study groups; a data set
+# without file meta starts with the lowest group it holds, one of these in any dose object.
+_FIRST_GROUPS = {0x0002, 0x0004, 0x0008, 0x0010, 0x0018, 0x0020}
+
+
+@dataclass(frozen=True, slots=True)
+class ReadResult:
+    """A parsed data set (pixel data not loaded) and what the read noticed."""
+
+    dataset: Dataset
+    pixel_data_truncated: str | None = None  # the detail, when only pixel data was cut short
+
+
+def _looks_like_bare_dataset(data: bytes) -> bool:
+    """A data set without preamble and file meta starts with an element tag of a low group,
+    in little or big endian (PS3.10 7.1: such streams exist; pydicom reads them with force)."""
+    if len(data) < 8:
+        return False
+    little, big = struct.unpack("<H", data[:2])[0], struct.unpack(">H", data[:2])[0]
+    return little in _FIRST_GROUPS or big in _FIRST_GROUPS
+
+
+def _check_pixel_data(stream: _BoundedStream, ds: Dataset, path: str) -> str | None:
+    """Walk what follows the header (pixel data, trailing padding) with pydicom's own element
+    reader, skipping values unread; the detail text when the file ends inside it."""
+    implicit, little = ds.original_encoding
+    if implicit is None:
+        return None
+    start = stream.tell()
     try:
-        _scan(data, start, len(data), implicit, little)
-    except (_Truncated, struct.error) as exc:
-        raise NotDicomError(f"file is truncated: {exc}", reason="truncated") from None
+        for _ in data_element_generator(stream, implicit, little, defer_size=0):
+            pass
+    except (EOFError, OSError, struct.error, ValueError) as exc:
+        return (f"{path}: pixel data from byte {start} is cut short "
+                f"({type(exc).__name__}: {str(exc).splitlines()[0][:120] if str(exc) else ''}); "
+                "the dose attributes before it are complete")
+    if stream.cut_at is not None:
+        return (f"{path}: the file ends at byte {stream.size} inside the pixel data that "
+                f"starts at byte {start}; the dose attributes before it are complete")
+    return None
 
 
-def read_dataset(data: bytes, path: str) -> Dataset:
-    """Parse DICOM bytes (with or without preamble) stopping before pixel data.
+def read_object(data: bytes, path: str) -> ReadResult:
+    """Parse DICOM bytes (Part 10 file, or a bare data set in any transfer syntax) with pydicom.
 
-    Raises NotDicomError with reason empty_file, not_dicom or truncated.
+    The header is parsed in full; pixel data is never loaded, only walked to see that it is
+    complete. Completeness is decided on the stream pydicom reads from (see _BoundedStream).
+
+    Raises
+    ------
+    NotDicomError
+        reason ``empty_file``, ``not_dicom``, ``malformed_dicom`` or ``truncated`` (the file
+        ends inside its header, i.e. inside the attributes we audit).
+    UnsupportedTransferSyntaxError
+        (0002,0010) names no transfer syntax.
     """
     if not data:
         raise NotDicomError(f"{path}: empty file", reason="empty_file")
     has_preamble = len(data) >= 132 and data[128:132] == b"DICM"
-    if not has_preamble:
-        head = data[:4]
-        group = struct.unpack("<H", head[:2])[0] if len(head) >= 2 else None
-        if group not in (0x0002, 0x0008, 0x0010, 0x0018, 0x0020):
-            raise NotDicomError(f"{path}: not a DICOM file (no preamble and no DICOM "
-                                "element at the start)", reason="not_dicom")
+    if not has_preamble and not _looks_like_bare_dataset(data):
+        raise NotDicomError(f"{path}: not a DICOM file (no preamble and no DICOM "
+                            "element at the start)", reason="not_dicom")
+    stream = _BoundedStream(data)
     try:
-        ds = pydicom.dcmread(io.BytesIO(data), stop_before_pixels=True, force=not has_preamble)
-    except (InvalidDicomError, EOFError, struct.error, ValueError, OSError,
-            NotImplementedError, KeyError, IndexError, TypeError, AttributeError,
-            UnicodeDecodeError, OverflowError, MemoryError) as exc:
-        reason = "truncated" if has_preamble and isinstance(exc, (EOFError, struct.error)) else (
-            "malformed_dicom" if has_preamble else "not_dicom")
-        raise NotDicomError(f"{path}: cannot be read as DICOM ({type(exc).__name__}: {exc})",
+        ds = pydicom.dcmread(stream, stop_before_pixels=True, force=not has_preamble)
+    except _READ_ERRORS as exc:
+        cut = stream.cut_at is not None or isinstance(exc, (EOFError, zlib.error))
+        reason = "truncated" if cut else ("malformed_dicom" if has_preamble else "not_dicom")
+        what = "ends inside its header" if cut else "cannot be read as DICOM"
+        raise NotDicomError(f"{path}: {what} ({type(exc).__name__}: "
+                            f"{str(exc).splitlines()[0][:200] if str(exc) else ''})",
                             reason=reason) from exc
+    if stream.cut_at is not None:
+        raise NotDicomError(
+            f"{path}: file is truncated: it ends at byte {stream.size}, inside a data element "
+            "of its header (the attributes before the pixel data)", reason="truncated")
     if "SOPClassUID" not in ds and "SOPInstanceUID" not in ds:
         raise NotDicomError(f"{path}: no SOP Class/Instance UID: not a DICOM object",
                             reason="not_dicom")
     transfer_syntax(ds, path)
-    check_complete(data, ds)
-    return ds
+    pixel_note = None
+    ts = transfer_syntax(ds)
+    if stream.tell() < stream.size and not (ts is not None and ts.is_deflated):
+        pixel_note = _check_pixel_data(stream, ds, path)
+    return ReadResult(ds, pixel_note)
+
+
+def read_dataset(data: bytes, path: str) -> Dataset:
+    """The data set of `data` (see read_object); raises if the pixel data is cut short too."""
+    result = read_object(data, path)
+    if result.pixel_data_truncated:
+        raise NotDicomError(result.pixel_data_truncated, reason="truncated")
+    return result.dataset

@@ -1,4 +1,8 @@
 -- grain: one row per unique irradiation event (event_uid), deduplicated across reports; public interface
+-- source_kind: rdsr (dose report), dose_screen (Exposure Dose Sequence of an image object) or
+-- image_header. dose_rp_mgy is Dose (RP), the reference-point air kerma of a dose report only;
+-- entrance_dose_mgy is the image header's Entrance Dose (0040,8302) in mGy, else 100 x (0040,0302)
+-- in dGy: a dose at the patient's entrance surface, a different quantity, never pooled with it.
 create or replace view irradiation_event as
 select
     event_uid, study_key, device_key, modality, source_kind, sop_instance_uid,
@@ -8,7 +12,8 @@ select
     ctdi_phantom, scanning_length_mm, pitch_factor,
     null::double as agd_mgy, null::double as compressed_breast_thickness_mm,
     null::double as irradiation_duration_s, null::varchar as laterality,
-    nominal_total_collimation_mm, ssde_mgy, water_equivalent_diameter_mm
+    nominal_total_collimation_mm, ssde_mgy, water_equivalent_diameter_mm,
+    null::double as entrance_dose_mgy
 from stg_ct_event
 union all by name
 select
@@ -19,5 +24,6 @@ select
     null::varchar as ctdi_phantom, null::double as scanning_length_mm, null::double as pitch_factor,
     agd_mgy, compressed_breast_thickness_mm, irradiation_duration_s, laterality,
     null::double as nominal_total_collimation_mm, null::double as ssde_mgy,
-    null::double as water_equivalent_diameter_mm
+    null::double as water_equivalent_diameter_mm,
+    entrance_dose_mgy
 from stg_projection_event

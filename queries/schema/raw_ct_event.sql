@@ -29,8 +29,19 @@ create table if not exists raw_ct_event (
     dose_check_alert_dlp_mgy_cm double,
     dose_check_notification_ctdivol_mgy double,
     dose_check_notification_dlp_mgy_cm double,
+    series_instance_uid varchar,       -- image headers: the series the row's images belong to
+    image_z_min_mm double,             -- image headers: lowest / highest image z position
+    image_z_max_mm double,
+    slice_thickness_mm double,
+    n_images bigint,                   -- images (frames) the row stands for
     study_key varchar,
     device_key varchar,
     run_id varchar,
     primary key (event_uid, sop_instance_uid)
 );
+-- columns added after the first release: a warehouse made before them gains them here
+alter table raw_ct_event add column if not exists series_instance_uid varchar;
+alter table raw_ct_event add column if not exists image_z_min_mm double;
+alter table raw_ct_event add column if not exists image_z_max_mm double;
+alter table raw_ct_event add column if not exists slice_thickness_mm double;
+alter table raw_ct_event add column if not exists n_images bigint;

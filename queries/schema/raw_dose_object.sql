@@ -4,7 +4,7 @@ create table if not exists raw_dose_object (
     sha256 varchar,
     path varchar,
     sop_class_uid varchar,
-    object_kind varchar,       -- rdsr_ct | rdsr_projection | rdsr_enhanced | image_header
+    object_kind varchar,       -- rdsr_ct | rdsr_projection | rdsr_enhanced | dose_screen | image_header
     modality varchar,          -- irradiating modality: CT DX CR RF XA MG
     study_key varchar,
     patient_key varchar,

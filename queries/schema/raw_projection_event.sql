@@ -14,6 +14,7 @@ create table if not exists raw_projection_event (
     dap_gy_cm2 double,
     dose_rp_mgy double,
     entrance_exposure_rp_mgy double,
+    entrance_dose_mgy double,          -- image header Entrance Dose (0040,8302), mGy
     kvp double,
     tube_current_ma double,
     exposure_mas double,
@@ -44,3 +45,5 @@ create table if not exists raw_projection_event (
     run_id varchar,
     primary key (event_uid, sop_instance_uid)
 );
+-- columns added after the first release: a warehouse made before them gains them here
+alter table raw_projection_event add column if not exists entrance_dose_mgy double;

@@ -296,4 +296,6 @@ def test_header_image_units(tmp_path):
     (event,) = o.obj.projection_events
     assert event.dap_gy_cm2 == pytest.approx(42.0, rel=1e-12)
     assert event.source_kind == "image_header"
-    assert math.isclose(event.dose_rp_mgy, spec.projection_events[0].dose_rp_mgy)
+    # (0040,8302) Entrance Dose in mGy is a surface dose (PS3.3 C.8.7.8), never Ka,r
+    assert math.isclose(event.entrance_dose_mgy, spec.projection_events[0].dose_rp_mgy)
+    assert event.dose_rp_mgy is None

@@ -65,7 +65,7 @@ def test_study_totals_equal_the_manifest(con, studies_manifest):
     assert (merged._merge == "both").all()
     assert len(got) == len(studies_manifest)  # one row per study: one unit per study here
     for q in ["dap_total_gy_cm2", "dose_rp_total_mgy", "fluoro_time_total_s", "dlp_total_mgy_cm",
-              "ctdivol_mgy", "event_count"]:
+              "ctdivol_mgy", "event_count", "entrance_dose_total_mgy"]:
         a, b = merged[f"{q}_true"].astype(float), merged[q].astype(float)
         assert np.allclose(a, b, rtol=1e-9, equal_nan=True), q
     assert np.allclose(merged.agd_mgy, merged.agd_total_mgy, rtol=1e-9, equal_nan=True)
@@ -107,12 +107,13 @@ def test_public_interface_columns(con):
         "study_dose": ["study_key", "patient_key", "device_key", "site", "modality", "study_date",
                        "study_description", "patient_age_years", "patient_sex", "patient_weight_kg",
                        "patient_height_m", "event_count", "dap_total_gy_cm2", "dose_rp_total_mgy",
-                       "fluoro_time_total_s", "dlp_total_mgy_cm", "ctdivol_mgy", "source_kind"],
+                       "fluoro_time_total_s", "dlp_total_mgy_cm", "ctdivol_mgy", "source_kind",
+                       "entrance_dose_total_mgy", "dlp_method"],
         "irradiation_event": ["event_uid", "study_key", "device_key", "event_type",
                               "acquisition_protocol", "target_region", "kvp", "tube_current_ma",
                               "exposure_time_s", "dap_gy_cm2", "dose_rp_mgy", "ctdivol_mgy",
                               "dlp_mgy_cm", "ctdi_phantom", "scanning_length_mm", "pitch_factor",
-                              "agd_mgy", "compressed_breast_thickness_mm"],
+                              "agd_mgy", "compressed_breast_thickness_mm", "entrance_dose_mgy"],
         "device": ["device_key", "site", "modality", "manufacturer", "model", "serial_number",
                    "station_name", "device_observer_uid"],
     }
