@@ -273,6 +273,25 @@ def _check_pixel_data(stream: _BoundedStream, ds: Dataset, path: str) -> str | N
     return None
 
 
+_SR_CLASS_PREFIX = "1.2.840.10008.5.1.4.1.1.88."
+_CONTENT_SEQUENCE = 0x0040A730
+
+
+def _check_sr_content(ds: Dataset, path: str) -> None:
+    """A structured report must end with its Content Sequence (0040,A730), type 1 in the SR
+    Document Content Module (PS3.3 C.17.3); one that stops at an element boundary before it,
+    with no later element present, was cut short rather than written that way."""
+    sop_class = str(ds.get("SOPClassUID", "") or "")
+    if not sop_class.startswith(_SR_CLASS_PREFIX) or _CONTENT_SEQUENCE in ds:
+        return
+    last = max((int(tag) for tag in ds.keys()), default=0)
+    if last < _CONTENT_SEQUENCE:
+        raise NotDicomError(
+            f"{path}: file is truncated: the structured report ends at element "
+            f"({last >> 16:04X},{last & 0xFFFF:04X}), before its Content Sequence (0040,A730)",
+            reason="truncated")
+
+
 def read_object(data: bytes, path: str) -> ReadResult:
     """Parse DICOM bytes (Part 10 file, or a bare data set in any transfer syntax) with pydicom.
 
@@ -290,6 +309,9 @@ def read_object(data: bytes, path: str) -> ReadResult:
     if not data:
         raise NotDicomError(f"{path}: empty file", reason="empty_file")
     has_preamble = len(data) >= 132 and data[128:132] == b"DICM"
+    if not has_preamble and len(data) < 132 and not data.strip(b"\x00"):
+        raise NotDicomError(f"{path}: file is truncated: {len(data)} bytes of a preamble and "
+                            "nothing after it", reason="truncated")
     if not has_preamble and not _looks_like_bare_dataset(data):
         raise NotDicomError(f"{path}: not a DICOM file (no preamble and no DICOM "
                             "element at the start)", reason="not_dicom")
@@ -308,9 +330,17 @@ def read_object(data: bytes, path: str) -> ReadResult:
             f"{path}: file is truncated: it ends at byte {stream.size}, inside a data element "
             "of its header (the attributes before the pixel data)", reason="truncated")
     if "SOPClassUID" not in ds and "SOPInstanceUID" not in ds:
+        meta = getattr(ds, "file_meta", None)
+        last = max((int(tag) for tag in ds.keys()), default=0)
+        if meta is not None and "MediaStorageSOPInstanceUID" in meta and last < 0x00080016:
+            raise NotDicomError(  # the file meta names an object the data set never reaches
+                f"{path}: file is truncated: its data set ends at element "
+                f"({last >> 16:04X},{last & 0xFFFF:04X}), before the SOP Class UID (0008,0016) "
+                "its file meta information announces", reason="truncated")
         raise NotDicomError(f"{path}: no SOP Class/Instance UID: not a DICOM object",
                             reason="not_dicom")
     transfer_syntax(ds, path)
+    _check_sr_content(ds, path)
     pixel_note = None
     ts = transfer_syntax(ds)
     if stream.tell() < stream.size and not (ts is not None and ts.is_deflated):

@@ -30,7 +30,8 @@ series as (
            max(image_z_max_mm) as z_max_mm,
            median(slice_thickness_mm) as slice_thickness_mm,
            sum(coalesce(n_images, 1)) as n_images,
-           bool_or(ct_acquisition_type in ('constant_angle', 'stationary')) as is_localizer
+           coalesce(bool_or(ct_acquisition_type in ('constant_angle', 'stationary')), false)
+               as is_localizer
     from images
     group by all
 ),
