@@ -55,6 +55,7 @@ QUANTITY_NAMES: dict[str, str] = {
     "fluoro_time": "Fluoroscopy time",
     "agd": "AGD",
     "ka_e": "Ka,e",
+    "entrance_dose": "Entrance dose",
     "effective_dose": "Effective dose (estimate)",
     "ssde": "SSDE",
 }
@@ -66,6 +67,7 @@ QUANTITY_LONG: dict[str, str] = {
     "fluoro_time": "Fluoroscopy time",
     "agd": "Average glandular dose (AGD)",
     "ka_e": "Entrance surface air kerma (Ka,e)",
+    "entrance_dose": "Entrance dose from image headers (not Ka,e unless derived as ESAK)",
     "effective_dose": "Effective dose (population-average estimate)",
     "ssde": "Size-specific dose estimate (SSDE)",
 }

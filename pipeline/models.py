@@ -160,6 +160,7 @@ class ProjectionEvent:
     dose_rp_mgy: float | None = None             # Dose (RP) of a dose report only (Ka,r)
     entrance_exposure_rp_mgy: float | None = None  # Entrance Exposure at RP (DCM 111636), MG report
     entrance_dose_mgy: float | None = None       # image header Entrance Dose (0040,8302)/(0040,0302)
+    entrance_dose_derivation: str | None = None  # (0040,8303): IAK | ESAK | ESDBS | ESDNOBS
     kvp: float | None = None
     tube_current_ma: float | None = None
     exposure_mas: float | None = None

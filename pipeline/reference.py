@@ -61,6 +61,9 @@ QUANTITY_UNITS = {
     "fluoro_time": "s",
     "agd": "mGy",             # mean (average) glandular dose
     "ka_e": "mGy",            # entrance surface air kerma, with backscatter
+    # image-header Entrance Dose whose derivation (0040,8303) is not ESAK (incident air kerma,
+    # tissue dose, or unstated): its own quantity, compared with no Ka,e or Ka,r reference
+    "entrance_dose": "mGy",
 }
 _ALERT_UNITS = {**QUANTITY_UNITS, "peak_skin_dose": "mGy"}
 

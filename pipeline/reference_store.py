@@ -32,7 +32,8 @@ CSV_COLUMNS = ["set_id", "issuing_body", "version", "effective_date", "exam_type
 CANONICAL = {"dlp": (Quantity.DLP, "mGy.cm"), "ctdivol": (Quantity.AIR_KERMA, "mGy"),
              "dap": (Quantity.DAP, "Gy.cm2"), "dose_rp": (Quantity.AIR_KERMA, "mGy"),
              "fluoro_time": (Quantity.TIME, "s"), "agd": (Quantity.AIR_KERMA, "mGy"),
-             "ka_e": (Quantity.AIR_KERMA, "mGy")}
+             "ka_e": (Quantity.AIR_KERMA, "mGy"),
+             "entrance_dose": (Quantity.AIR_KERMA, "mGy")}
 _UNIT_SPELLINGS = {"mgy cm": "mGy.cm", "mgy·cm": "mGy.cm", "mgycm": "mGy.cm", "gy cm2": "Gy.cm2",
                    "gy·cm²": "Gy.cm2", "gy cm²": "Gy.cm2", "gy.cm²": "Gy.cm2", "mgy cm2": "mGy.cm2",
                    "minutes": "min", "seconds": "s"}

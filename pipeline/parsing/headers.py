@@ -8,7 +8,9 @@ Every attribute read here, with its unit as PS3.3 defines it:
   1 dGy = 100 mGy. The dose at the patient's entrance surface (C.8.7.8): stored as
   ``entrance_dose_mgy``, never as reference-point air kerma (``dose_rp_mgy`` holds only
   Dose (RP) of a dose report). (0040,8302) is preferred; an integer 0 in (0040,0302) says
-  only "below 1 dGy" and is kept as NULL with an issue.
+  only "below 1 dGy" and is kept as NULL with an issue. (0040,8303) Entrance Dose Derivation
+  (IAK incident air kerma, ESAK entrance surface air kerma, ESDBS / ESDNOBS entrance surface
+  dose with / without backscatter) is kept beside it: only ESAK is Ka,e.
 * (0040,0316) Organ Dose: dGy (C.8.7.8); for a breast (Organ Exposed (0040,0318) BREAST, or a
   mammography or breast tomosynthesis object) it is the average glandular dose:
   ``agd_mgy`` = 100 x Organ Dose. Read at the top level or, for breast tomosynthesis, in the
@@ -182,6 +184,7 @@ def parse_projection_image_event(ds: Dataset, sop_uid: str, modality: str,
         laterality=laterality if laterality in ("L", "R", "B") else None,
         dap_gy_cm2=dap,
         entrance_dose_mgy=entrance_dose_mgy(ds, m, uid),
+        entrance_dose_derivation=header_text(ds, "EntranceDoseDerivation"),
         kvp=header_float(ds, "KVP"),
         tube_current_ma=header_float(ds, "XRayTubeCurrent"),
         exposure_mas=mas,

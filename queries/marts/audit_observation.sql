@@ -37,11 +37,12 @@ event_values as (
         select * from (values
             ('dap', 'Gy.cm2', e.dap_gy_cm2),
             ('dose_rp', 'mGy', e.dose_rp_mgy),
-            ('entrance_dose', 'mGy', e.entrance_dose_mgy),
+            (case when e.entrance_dose_derivation = 'ESAK' then 'ka_e' else 'entrance_dose' end,
+             'mGy', e.entrance_dose_mgy),
             ('agd', 'mGy', e.agd_mgy)
         ) as v(quantity, unit, value)
     ) as q
-    where (e.modality in ('DX', 'CR') and q.quantity in ('dap', 'dose_rp', 'entrance_dose'))
+    where (e.modality in ('DX', 'CR') and q.quantity in ('dap', 'dose_rp', 'entrance_dose', 'ka_e'))
        or (e.modality = 'MG' and q.quantity = 'agd')
 )
 select study_key, patient_key, device_key, site, modality, exam_type, quantity, unit, value,

@@ -2,7 +2,8 @@
 -- source_kind: rdsr (dose report), dose_screen (Exposure Dose Sequence of an image object) or
 -- image_header. dose_rp_mgy is Dose (RP), the reference-point air kerma of a dose report only;
 -- entrance_dose_mgy is the image header's Entrance Dose (0040,8302) in mGy, else 100 x (0040,0302)
--- in dGy: a dose at the patient's entrance surface, a different quantity, never pooled with it.
+-- in dGy: a dose at the patient's entrance surface, a different quantity, never pooled with it;
+-- entrance_dose_derivation is its (0040,8303): only ESAK is the entrance surface air kerma Ka,e.
 create or replace view irradiation_event as
 select
     event_uid, study_key, device_key, modality, source_kind, sop_instance_uid,
@@ -13,7 +14,7 @@ select
     null::double as agd_mgy, null::double as compressed_breast_thickness_mm,
     null::double as irradiation_duration_s, null::varchar as laterality,
     nominal_total_collimation_mm, ssde_mgy, water_equivalent_diameter_mm,
-    null::double as entrance_dose_mgy
+    null::double as entrance_dose_mgy, null::varchar as entrance_dose_derivation
 from stg_ct_event
 union all by name
 select
@@ -25,5 +26,5 @@ select
     agd_mgy, compressed_breast_thickness_mm, irradiation_duration_s, laterality,
     null::double as nominal_total_collimation_mm, null::double as ssde_mgy,
     null::double as water_equivalent_diameter_mm,
-    entrance_dose_mgy
+    entrance_dose_mgy, entrance_dose_derivation
 from stg_projection_event

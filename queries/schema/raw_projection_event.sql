@@ -15,6 +15,7 @@ create table if not exists raw_projection_event (
     dose_rp_mgy double,
     entrance_exposure_rp_mgy double,
     entrance_dose_mgy double,          -- image header Entrance Dose (0040,8302), mGy
+    entrance_dose_derivation varchar,  -- (0040,8303) IAK | ESAK | ESDBS | ESDNOBS
     kvp double,
     tube_current_ma double,
     exposure_mas double,
@@ -47,3 +48,4 @@ create table if not exists raw_projection_event (
 );
 -- columns added after the first release: a warehouse made before them gains them here
 alter table raw_projection_event add column if not exists entrance_dose_mgy double;
+alter table raw_projection_event add column if not exists entrance_dose_derivation varchar;

@@ -679,3 +679,26 @@ def test_entrance_dose_study_total_is_apart_from_ka_r(tmp_path):
     assert row.entrance_dose_total_mgy == pytest.approx(0.56)
     assert math.isnan(row.dose_rp_total_mgy) or row.dose_rp_total_mgy is None
     assert row.dlp_method is None
+
+
+@pytest.mark.parametrize("derivation, quantity", [("ESAK", "ka_e"), ("IAK", "entrance_dose"),
+                                                  (None, "entrance_dose")])
+def test_only_entrance_surface_air_kerma_is_audited_as_ka_e(derivation, quantity, tmp_path):
+    """Entrance Dose Derivation (0040,8303): ESAK is entrance surface air kerma, the Ka,e of
+    radiography reference levels; IAK (incident air kerma, no backscatter) or an unstated
+    derivation is audited as its own quantity, compared with no Ka,e reference."""
+    ds = dx_image(EntranceDoseInmGy="0.21", ImageAndFluoroscopyAreaDoseProduct="1.0")
+    ds.StudyDescription = "XR CHEST PA"
+    ds.ViewPosition = "PA"
+    if derivation:
+        ds.EntranceDoseDerivation = derivation
+    inbox = tmp_path / "inbox"
+    inbox.mkdir()
+    (inbox / "dx.dcm").write_bytes(part10(ds))
+    db = tmp_path / "k.duckdb"
+    ingest([inbox], db, KEY)
+    import duckdb
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = con.execute("select quantity, value from audit_observation "
+                           "where quantity not in ('dap') order by 1").fetchall()
+    assert rows == [(quantity, 0.21)]
