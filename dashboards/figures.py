@@ -195,7 +195,7 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                      type="log" if log else "linear", **(_log_ticks(values) if log else {}))
     fig.update_yaxes(title={"text": "Exam type · room · site (n: exams in the period)"},
                      type="multicategory", autorange="reversed")
-    return _layout(fig, title, height=90 + 26 * len(rows))
+    return _layout(fig, title, height=max(150, 90 + 26 * len(rows)))
 
 
 # --- distributions --------------------------------------------------------------------------

@@ -709,7 +709,64 @@ def make_basic_text_sr(scenario: Scenario, spec: StudySpec, sop_instance_uid: st
     return ds
 
 
+SECONDARY_CAPTURE = UID("1.2.840.10008.5.1.4.1.1.7")
+_SCREEN_ACQUISITION = {"localizer": "CONSTANT_ANGLE", "spiral": "SPIRAL",
+                       "sequenced": "SEQUENCED", "stationary": "STATIONARY"}
+_SCREEN_PHANTOM = {"head": ("113690", "IEC Head Dosimetry Phantom"),
+                   "body": ("113691", "IEC Body Dosimetry Phantom")}
+
+
+def make_ct_dose_screen(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    """A CT dose screen: a Secondary Capture Image (PS3.3 A.8.1) a scanner without dose
+    reports sends at the end of the exam, its numbers in the Radiation Dose attributes of the
+    old PS3.3 C.4.16 (retired from the standard since, still sent by older scanners; dciodvfy
+    says so), and, as on a real screen, drawn into the pixels (here a blank 8x8 image).
+
+    One Exposure Dose Sequence (0040,030E) item per acquisition: KVP (0018,0060) kV, Exposure
+    Time (0018,1150) ms, X-Ray Tube Current in uA (0018,8151), Acquisition Type (0018,9302),
+    CTDIvol (0018,9345) mGy and its phantom (0018,9346), and the event's DLP only as text in
+    Comments on Radiation Dose (0040,0310), as such screens do; the total DLP likewise at the
+    top level beside Total Number of Exposures (0040,0301). DLPs are written with Python's
+    shortest round-trip repr, so the text gives back the exact value.
+    """
+    events = spec.ct_events[:report.n_events]
+    ds = _base(scenario, spec, report, SECONDARY_CAPTURE, "CT", 999)
+    ds.ImageType = ["DERIVED", "SECONDARY", "OTHER"]
+    ds.ConversionType = "WSD"
+    ds.SeriesDescription = "Dose Report"
+    main = next((e for e in events if e.kind != "localizer"), events[0])
+    ds.ProtocolName = main.protocol
+    ds.PatientOrientation = ""
+    ds.BodyPartExamined = _BODY_PART.get(main.target_region[0], "HEAD")  # unpaired: no Laterality
+    items = []
+    for number, e in enumerate(events, start=1):
+        item = Dataset()
+        item.KVP = format_ds(e.kvp)
+        item.ExposureTime = str(int(round(e.exposure_time_s * 1000.0)))
+        item.RadiationMode = "CONTINUOUS"
+        item.XRayTubeCurrentInuA = format_ds(round(e.tube_current_ma * 1000.0, 3))
+        item.AcquisitionType = _SCREEN_ACQUISITION[e.kind]
+        text = f"Event={number}"
+        if e.ctdivol_mgy is not None:
+            item.CTDIvol = float(e.ctdivol_mgy)
+            code, meaning = _SCREEN_PHANTOM[e.phantom]
+            phantom = Dataset()
+            phantom.CodeValue, phantom.CodingSchemeDesignator, phantom.CodeMeaning = code, "DCM", meaning
+            item.CTDIPhantomTypeCodeSequence = Sequence([phantom])
+        if e.dlp_mgy_cm is not None:
+            text += f"; DLP={float(e.dlp_mgy_cm)!r} mGy*cm"
+        item.CommentsOnRadiationDose = text
+        items.append(item)
+    ds.ExposureDoseSequence = Sequence(items)
+    ds.TotalNumberOfExposures = len(events)
+    total = sum(e.dlp_mgy_cm for e in events if e.dlp_mgy_cm is not None)
+    ds.CommentsOnRadiationDose = f"TotalDLP={float(total)!r} mGy*cm"
+    _tiny_pixels(ds, [[0] * 8 for _ in range(8)])
+    return ds
+
+
 _MAKERS = {
+    ("dose_screen", "CT"): make_ct_dose_screen,
     ("rdsr", "CT"): make_ct_rdsr,
     ("rdsr", "DX"): make_projection_rdsr,
     ("rdsr", "CR"): make_projection_rdsr,

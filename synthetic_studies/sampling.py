@@ -430,6 +430,14 @@ def make_study(scenario: Scenario, seed: int, index: int, n_studies: int,
                 instance_number=number,
                 content_time=(ct or proj)[cut - 1].started + dt.timedelta(minutes=2),
             ))
+    elif device.reports == "dose_screen":
+        reports.append(ReportSpec(
+            kind="dose_screen", n_events=n_events,
+            sop_instance_uid=uid(scenario.uid_namespace, seed, index, "dose-screen", 1),
+            series_instance_uid=uid(scenario.uid_namespace, seed, index, "dose-screen-series"),
+            instance_number=1,
+            content_time=last + dt.timedelta(minutes=2),
+        ))
     else:
         for number in range(1, n_events + 1):
             reports.append(ReportSpec(

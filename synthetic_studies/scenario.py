@@ -75,7 +75,9 @@ class DeviceSpec:
     ``header_images``: a unit with ``reports = "rdsr"`` that also sends its images, so the
     archive holds both the dose report and image headers carrying dose attributes for the
     same irradiation events (shared Irradiation Event UID (0008,3010)). Only CT and MG units
-    have a header-image writer.
+    have a header-image writer. ``reports``: ``rdsr``, ``image_header`` (no report, dose in
+    each image's header) or ``dose_screen`` (a CT unit without dose reports that sends one
+    Secondary Capture dose screen per study, its numbers in an Exposure Dose Sequence).
     """
 
     id: str
@@ -156,6 +158,11 @@ def _from_mapping(raw: dict[str, Any]) -> Scenario:
         if device.header_images and device.reports != "rdsr":
             raise ValueError(f"device {device.id!r}: header_images needs reports = 'rdsr' "
                              f"(an image_header unit writes its images anyway)")
+        if device.reports not in ("rdsr", "image_header", "dose_screen"):
+            raise ValueError(f"device {device.id!r}: reports must be rdsr, image_header or "
+                             f"dose_screen, not {device.reports!r}")
+        if device.reports == "dose_screen" and device.modality != "CT":
+            raise ValueError(f"device {device.id!r}: only CT units send dose screens")
         if device.header_images and device.modality not in HEADER_IMAGE_MODALITIES:
             raise ValueError(f"device {device.id!r}: no header-image writer for modality "
                              f"{device.modality!r} (have {', '.join(HEADER_IMAGE_MODALITIES)})")

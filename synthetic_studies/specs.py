@@ -110,7 +110,7 @@ class ReportSpec:
     has the Frame of Reference module as mandatory (CT, PS3.3 A.3); else None.
     """
 
-    kind: str  # rdsr | image_header
+    kind: str  # rdsr | image_header | dose_screen
     n_events: int
     sop_instance_uid: str
     series_instance_uid: str
@@ -183,7 +183,13 @@ def study_truth(spec: StudySpec) -> dict[str, float | int | None]:
         main = [e for e in spec.ct_events
                 if e.kind in ("spiral", "sequenced") and e.ctdivol_mgy is not None]
         length = sum(e.scanning_length_mm for e in main)
-        if main and length > 0:
+        if any(r.kind == "dose_screen" for r in spec.reports):
+            # a dose screen states no scanning length: L_i = DLP_i / CTDIvol_i
+            stated = [e for e in main if e.dlp_mgy_cm and e.ctdivol_mgy > 0]
+            if stated:
+                truth["ctdivol_mgy"] = sum(e.dlp_mgy_cm for e in stated) / sum(
+                    e.dlp_mgy_cm / e.ctdivol_mgy for e in stated)
+        elif main and length > 0:
             truth["ctdivol_mgy"] = sum(e.ctdivol_mgy * e.scanning_length_mm for e in main) / length
     else:
         events = spec.projection_events

@@ -5,6 +5,7 @@ Output folder layout::
     OUT/
       TGH/tgh-ct1/2026-09/s000123/rdsr_1.dcm     one folder per study: its dose objects,
       TGH/tgh-ct1/2026-09/s000123/rdsr_1.resent.dcm  and any file defects placed beside them
+      CIC/cic-ct1/2026-09/s000125/dose_screen_1.dcm  a CT dose screen (Secondary Capture)
       OVH/ovh-ct1/2026-09/s000124/img_2.dcm       header images (n = event number); beside the
                                                   RDSR for units with header_images
       ...
@@ -331,6 +332,7 @@ def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, mont
             defect = content_defect
         data = _encode(ds)
         name = f"rdsr_{report.instance_number}.dcm" if report.kind == "rdsr" \
+            else f"dose_screen_{report.instance_number}.dcm" if report.kind == "dose_screen" \
             else f"img_{report.n_events}.dcm"
         rel = f"{folder}/{name}"
         _write_bytes(root, rel, data)
@@ -383,13 +385,15 @@ def _study_row(scenario: Scenario, spec: StudySpec, defect: str | None) -> dict:
     """One studies.parquet row.
 
     ``source_kind`` is "rdsr" when the study has a dose report (even if header images sit
-    beside it), else "image_header"; ``n_reports`` counts the objects of that kind (RDSRs,
-    or the header-only images); ``n_header_images`` counts all image headers.
+    beside it), "dose_screen" for a unit that sends a dose screen, else "image_header";
+    ``n_reports`` counts the objects of that kind (RDSRs, dose screens or the header-only
+    images); ``n_header_images`` counts all image headers.
     """
     device = scenario.device(spec.device)
     p = spec.patient
     kinds = [r.kind for r in spec.reports]
-    source_kind = "rdsr" if "rdsr" in kinds else "image_header"
+    source_kind = "rdsr" if "rdsr" in kinds else \
+        "dose_screen" if "dose_screen" in kinds else "image_header"
     return {
         "study": _study_id(spec.index),
         "study_instance_uid": spec.study_uid,

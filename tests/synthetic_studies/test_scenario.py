@@ -12,9 +12,10 @@ from synthetic_studies.scenario import load_scenario
 def test_network_has_the_required_units():
     scenario = load_scenario()
     by_modality = Counter(d.modality for d in scenario.devices)
-    assert by_modality == {"CT": 3, "DX": 3, "CR": 1, "RF": 1, "XA": 1, "MG": 2}
+    assert by_modality == {"CT": 4, "DX": 3, "CR": 1, "RF": 1, "XA": 1, "MG": 2}
     assert [d.id for d in scenario.devices if d.biplane] == ["tgh-xa1"]
     assert [d.id for d in scenario.devices if d.reports == "image_header"] == ["mph-cr1"]
+    assert [d.id for d in scenario.devices if d.reports == "dose_screen"] == ["cic-ct1"]
     assert [d.id for d in scenario.devices if d.cumulative_reports > 0] == ["mph-ct1"]
     assert [d.id for d in scenario.devices if d.header_images] == ["ovh-ct1", "ovh-mg1"]
     assert len(scenario.sites) == 4
@@ -65,7 +66,7 @@ def test_header_images_follow_the_rdsr_and_skip_localizers():
     for index in range(400):
         spec = make_study(scenario, 7, index, 400, 3)
         if spec.device not in ("ovh-ct1", "ovh-mg1"):
-            assert all(r.kind == "rdsr" for r in spec.reports) or spec.device == "mph-cr1"
+            assert all(r.kind == "rdsr" for r in spec.reports) or spec.device in ("mph-cr1", "cic-ct1")
             continue
         seen.add(spec.device)
         kinds = [r.kind for r in spec.reports]

@@ -58,10 +58,14 @@ def test_an_interventional_case_is_over_the_substantial_dose_level(studies_manif
     assert over.fluoro_time_total_s.iloc[0] > 3600
 
 
-def test_one_unit_sends_no_dose_report(studies_manifest, files_manifest):
+def test_two_units_send_no_dose_report(studies_manifest, files_manifest):
     kinds = studies_manifest.groupby("device")["source_kind"].agg(set)
     assert kinds["mph-cr1"] == {"image_header"}
-    assert all(k == {"rdsr"} for d, k in kinds.items() if d != "mph-cr1")
+    assert kinds["cic-ct1"] == {"dose_screen"}    # a CT dose screen per study instead
+    assert all(k == {"rdsr"} for d, k in kinds.items() if d not in ("mph-cr1", "cic-ct1"))
+    screens = files_manifest[files_manifest.kind == "dose_screen"]
+    assert len(screens) == (studies_manifest.device == "cic-ct1").sum()
+    assert set(screens.sop_class_uid) == {"1.2.840.10008.5.1.4.1.1.7"}  # Secondary Capture
 
 
 def test_cumulative_reports_repeat_earlier_events(corpus, files_manifest, studies_manifest):
