@@ -1,7 +1,8 @@
 """CT dose screens: the Exposure Dose Sequence of a scanner without dose reports. Pure.
 
 Some CT scanners send no dose report but an image object, often Secondary Capture, whose
-header carries the dose in the Radiation Dose attributes of PS3.3 C.4.16:
+header carries the dose in the Radiation Dose attributes of the old PS3.3 C.4.16 (retired from
+the current standard; older scanners still send them):
 
 * (0040,030E) Exposure Dose Sequence: one item per exposure (irradiation event), with
   (0018,9345) CTDIvol in mGy, (0018,0060) KVP in kV, (0018,1150) Exposure Time in ms,
