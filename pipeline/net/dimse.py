@@ -26,7 +26,8 @@ from ..parsing import DOSE_SR_CLASSES
 from .inbox import instance_path, is_valid_uid
 from .scp import SR_TRANSFER_SYNTAXES, handle_store, make_storage_ae, start_storage_scp
 
-__all__ = ["Instance", "PullSummary", "date_range", "find_dose_reports", "pull_dimse"]
+__all__ = ["Instance", "PullSummary", "close_transport", "date_range", "find_dose_reports",
+           "pull_dimse"]
 
 logger = logging.getLogger("kerma.net")
 
@@ -56,6 +57,19 @@ class PullSummary:
     @property
     def n_failed(self) -> int:
         return len(self.failures)
+
+
+def close_transport(assoc) -> None:
+    """Close an association's socket for good.
+
+    pynetdicom 3.0 skips ``close()`` when ``shutdown()`` fails, which it does once the peer
+    is gone (refused connection, peer killed), and the socket then leaks until garbage
+    collection.
+    """
+    transport = getattr(assoc.dul, "socket", None)
+    raw = getattr(transport, "socket", None)
+    if raw is not None:
+        raw.close()
 
 
 def date_range(date_from: dt.date, date_to: dt.date) -> str:
@@ -194,6 +208,7 @@ def pull_dimse(*, host: str, port: int, archive_ae: str, ae_title: str, our_port
         assoc = ae.associate(host, port, ae_title=archive_ae, ext_neg=roles, evt_handlers=handlers,
                              tls_args=(ssl_context, host) if ssl_context else None)
         if not assoc.is_established:
+            close_transport(assoc)
             raise ArchiveError(f"archive {archive_ae} at {host}:{port} refused or did not answer "
                                f"the association from {ae_title}")
         try:
@@ -216,6 +231,7 @@ def pull_dimse(*, host: str, port: int, archive_ae: str, ae_title: str, our_port
         finally:
             if assoc.is_established:
                 assoc.release()
+            close_transport(assoc)
     finally:
         if server is not None:
             server.shutdown()
