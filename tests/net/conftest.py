@@ -187,6 +187,9 @@ def archive(tmp_path_factory, net_corpus):
     server.our_port = our_port
     server.dose_reports = {r.sop_instance_uid: root / r.path for r in complete.itertuples()
                            if r.sop_class_uid in DOSE_SR}
+    headers = [pydicom.dcmread(root / p, stop_before_pixels=True) for p in complete.path]
+    server.n_studies = len({str(h.StudyInstanceUID) for h in headers})
+    server.study_date = {str(h.SOPInstanceUID): str(h.StudyDate) for h in headers}
     yield server
     server.stop()
 
