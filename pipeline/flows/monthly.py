@@ -82,8 +82,24 @@ def monthly_flow(warehouse: Path, inbox: Path, out: Path, period: str | None = N
 
 
 def run_monthly(**parameters) -> MonthlyResult:
-    """Run the monthly flow once, here (Prefect's local mode unless PREFECT_API_URL is set)."""
-    return monthly_flow(**parameters)
+    """Run the monthly flow once, here (Prefect's local mode unless PREFECT_API_URL is set).
+
+    In local mode with Dask, the temporary Prefect server is started first and its URL handed
+    to the flow's settings: Dask workers then report their task runs to it, instead of each
+    worker process starting a temporary server of its own on the same database.
+    """
+    from prefect.settings import PREFECT_API_URL
+
+    uses_dask = parameters.get("dask_workers") is not None or parameters.get("dask_address")
+    if not uses_dask or PREFECT_API_URL.value():
+        return monthly_flow(**parameters)
+    from prefect.server.api.server import SubprocessASGIServer
+    from prefect.settings import temporary_settings
+
+    server = SubprocessASGIServer()   # the same instance Prefect's local mode uses
+    server.start()
+    with temporary_settings(updates={PREFECT_API_URL: server.api_url}):
+        return monthly_flow(**parameters)
 
 
 def monthly_deployment(name: str, cron: str, parameters: dict):
