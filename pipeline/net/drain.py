@@ -19,9 +19,9 @@ logger = logging.getLogger("kerma.net")
 
 @dataclass(frozen=True, slots=True)
 class DrainSummary:
-    """One drain: the ingest run, and what moved to the archive."""
+    """One drain: the ingest run (None when the inbox was empty), and what moved to the archive."""
 
-    ingest: IngestSummary
+    ingest: IngestSummary | None
     archive: ArchiveSummary
 
 
@@ -35,11 +35,14 @@ def drain_inbox(inbox: Path, warehouse: Path, archive: Path, key: bytes, *,
     (nothing is moved then).
     """
     inbox = Path(inbox)
+    day = today or dt.date.today()
+    if not any(p.is_file() for p in inbox.rglob("*")):   # nothing arrived: no empty ingest runs
+        return DrainSummary(None, ArchiveSummary(Path(archive) / day.isoformat(), 0, 0))
     summary = ingest([inbox], warehouse, key, sites=sites)
     paths = [str(p.resolve()) for p in sorted(inbox.rglob("*")) if p.is_file()]
     with connection(warehouse, read_only=True) as con:
         recorded = recorded_files(con, paths)
-    moved = archive_recorded(inbox, archive, recorded, today or dt.date.today())
+    moved = archive_recorded(inbox, archive, recorded, day)
     logger.info("drain %s: seen=%d loaded=%d quarantined=%d archived=%d kept=%d (run %s)",
                 inbox, summary.seen, summary.by_status["loaded"],
                 summary.by_status["quarantined"], moved.n_moved, moved.n_kept, summary.run_id)

@@ -7,6 +7,7 @@ import signal
 import ssl
 import subprocess
 import threading
+import time
 from pathlib import Path
 
 import pydicom
@@ -179,3 +180,31 @@ def test_sigkill_mid_association_acknowledges_only_what_is_stored(listener, send
     restarted = listener()
     assert restarted.inbox == scp.inbox
     assert list(partial_dir(scp.inbox).glob("*.tmp")) == []
+
+
+def test_ingest_every_drains_the_inbox_into_the_warehouse_and_archives(listener, net_corpus,
+                                                                      sendable, tmp_path):
+    import datetime as dt
+
+    import duckdb
+
+    storescu = require_tool("storescu")
+    db = tmp_path / "kerma.duckdb"
+    scp = listener("--ingest-every", "1", "--warehouse", str(db))
+    store = subprocess.run([storescu, "-aet", CALLING, "-aec", scp.ae_title, "127.0.0.1",
+                            str(scp.port), *map(str, sendable)], capture_output=True, text=True,
+                           timeout=120)
+    assert store.returncode == 0, store.stderr
+    day = tmp_path / "archive" / dt.date.today().isoformat()
+    deadline = time.monotonic() + 120
+    while len(list(day.glob("*.dcm"))) < len(sendable) and time.monotonic() < deadline:
+        time.sleep(0.2)
+    scp.stop()
+    assert "archived=" in scp.log()
+    assert sorted(p.name for p in day.iterdir()) == sorted(f"{sop_uid(p)}.dcm" for p in sendable)
+    assert list(scp.inbox.iterdir()) == []
+    with duckdb.connect(str(db), read_only=True) as con:
+        recorded = dict(con.execute(
+            "select sop_instance_uid, status from source_object").fetchall())
+    assert set(recorded) == {sop_uid(p) for p in sendable}
+    assert set(recorded.values()) <= {"loaded", "duplicate"} and "loaded" in recorded.values()
