@@ -123,3 +123,40 @@ def test_schedule_is_a_prefect_deployment_on_the_cron(tmp_path):
     (schedule,) = deployment.schedules
     assert schedule.schedule.cron == "0 6 1 * *"
     assert deployment.parameters == params
+
+
+def test_kerma_run_monthly_command(inbox, tmp_path, key_file):
+    from typer.testing import CliRunner
+
+    from pipeline.cli import app
+
+    db, out = tmp_path / "kerma.duckdb", tmp_path / "site"
+    result = CliRunner().invoke(app, ["run", "monthly", "--period", PERIOD, "--warehouse", str(db),
+                                      "--inbox", str(inbox), "--out", str(out),
+                                      "--key-file", str(key_file)])
+    assert result.exit_code == 0, result.output
+    assert f"Dashboards written: {out / 'index.html'}" in " ".join(result.output.split())
+    runs = _runs(db)
+    assert [(r[2], r[3], r[4]) for r in runs] == [
+        ("monthly", PERIOD, "COMPLETED"), ("ingest", None, "COMPLETED"),
+        ("audit", PERIOD, "COMPLETED"), ("publish", PERIOD, "COMPLETED")]
+    both = CliRunner().invoke(app, ["run", "monthly", "--warehouse", str(db), "--inbox",
+                                    str(inbox), "--out", str(out), "--dask-workers", "2",
+                                    "--dask-address", "tcp://127.0.0.1:1"])
+    assert both.exit_code == 2 and "not both" in both.output
+
+
+def test_kerma_demo_runs_through_the_monthly_flow(tmp_path):
+    from typer.testing import CliRunner
+
+    from pipeline.cli import app
+
+    out = tmp_path / "demo"
+    result = CliRunner().invoke(app, ["demo", "--out", str(out), "--studies", "30",
+                                      "--workers", "1"])
+    assert result.exit_code == 0, result.output
+    assert "Monthly flow finished" in result.output
+    (monthly,) = [r for r in _runs(out / "kerma.duckdb") if r[2] == "monthly"]
+    assert monthly[3] == "2026-09-01..2026-11-30" and monthly[4] == "COMPLETED"
+    assert monthly[5] == _file_counts(out / "kerma.duckdb")["loaded"]
+    assert (out / "site" / "index.html").exists()
