@@ -19,7 +19,7 @@ from ..pseudonym import load_key, make_pseudonymiser
 from .record import recorded_run
 from .retry import is_transient
 
-__all__ = ["PARSE_CHUNK", "check_inputs", "ingest_flow", "parse_files", "load_inputs"]
+__all__ = ["PARSE_CHUNK", "check_inputs", "ingest_flow", "load_inputs", "parse_files"]
 
 PARSE_CHUNK = 64   # files per Dask task: 4 tasks per ingest batch of 256
 

@@ -11,7 +11,6 @@ import time
 from pathlib import Path
 
 import pydicom
-import pytest
 from pydicom.uid import RLELossless, generate_uid
 from pynetdicom import AE
 from pynetdicom.sop_class import Verification
@@ -20,7 +19,7 @@ from pipeline.net.dimse import close_transport
 from pipeline.net.inbox import partial_dir
 from tests.helpers import require_tool
 
-from .conftest import ENV, ROOT, sop_uid
+from .conftest import sop_uid
 
 CALLING = "MODALITY1"
 
@@ -152,8 +151,9 @@ def test_sigkill_mid_association_acknowledges_only_what_is_stored(listener, send
     killed = threading.Event()
 
     def kill_after(n: int) -> None:
-        while len(acked) < n:
-            pass
+        deadline = time.monotonic() + 60
+        while len(acked) < n and time.monotonic() < deadline:
+            time.sleep(0.001)
         os.kill(scp.proc.pid, signal.SIGKILL)
         killed.set()
 
@@ -182,8 +182,8 @@ def test_sigkill_mid_association_acknowledges_only_what_is_stored(listener, send
     assert list(partial_dir(scp.inbox).glob("*.tmp")) == []
 
 
-def test_ingest_every_drains_the_inbox_into_the_warehouse_and_archives(listener, net_corpus,
-                                                                      sendable, tmp_path):
+def test_ingest_every_drains_the_inbox_into_the_warehouse_and_archives(listener, sendable,
+                                                                      tmp_path):
     import datetime as dt
 
     import duckdb
