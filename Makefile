@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test install clean
+.PHONY: demo test install tools clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -16,10 +16,15 @@ $(STAMP): $(BIN)/python pyproject.toml
 
 install: $(STAMP)
 
-demo: $(STAMP)
+# Debian packages the tests and the demo call (dcmtk, dicom3tools, chromium, orthanc,
+# orthanc-dicomweb, poppler-utils, openssl): installed when missing (apt-get as root, else sudo).
+tools:
+	@scripts/system-tools
+
+demo: $(STAMP) tools
 	$(BIN)/kerma demo
 
-test: $(STAMP)
+test: $(STAMP) tools
 	$(BIN)/python -m pytest
 
 clean:

@@ -9,12 +9,14 @@
     │   ├── UnsafeArchiveMemberError
     │   └── MalformedReportError (carries sop_instance_uid and the concept code, if any)
     ├── ConfigError             -> stop with a one-line message (e.g. no pseudonymisation key)
-    └── WarehouseError          -> stop with a one-line message (cannot open, busy)
+    ├── WarehouseError          -> stop with a one-line message (cannot open, busy)
+    └── ArchiveError            -> stop; transient: a flow may retry (archive down, refused)
 """
 
 from __future__ import annotations
 
 __all__ = [
+    "ArchiveError",
     "ConfigError",
     "DoseAuditError",
     "InputError",
@@ -75,3 +77,7 @@ class ConfigError(DoseAuditError):
 
 class WarehouseError(DoseAuditError):
     """The warehouse cannot be opened or is busy; the command stops."""
+
+
+class ArchiveError(DoseAuditError):
+    """An archive (DIMSE or DICOMweb) cannot be reached, refused us or failed a request."""

@@ -218,7 +218,9 @@ def _read(c: Candidate) -> tuple[bytes | None, InputError | None]:
 def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
            sites: dict[str, str] | None = None, exam_rules: list[dict] | None = None,
            batch_size: int = BATCH_SIZE,
-           progress: Callable[[int], None] | None = None) -> IngestSummary:
+           progress: Callable[[int], None] | None = None,
+           parse: Callable[[list[tuple[str, bytes, str]]], Iterable[FileOutcome]] | None = None,
+           ) -> IngestSummary:
     """Ingest every file under `paths` into the warehouse at `warehouse`.
 
     Idempotent: a file already recorded with the same path and content is skipped, and a SOP
@@ -226,6 +228,10 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     nothing. Raises WarehouseError (cannot open / busy) before reading any input, and
     WarehouseError (cannot write) when a batch cannot be committed, e.g. on a full disk:
     the batches committed before it stay, and a rerun carries on from there.
+
+    `parse`, when given, parses a list of (path, bytes, SHA-256) elsewhere (e.g. tasks on a
+    Dask cluster) and returns an iterable of outcomes in the same order, consumed only when
+    the batch is loaded; `workers` is then ignored. This process stays the only writer.
     """
     run_id = f"run-{dt.datetime.now(dt.UTC):%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
     summary = IngestSummary(run_id=run_id, warehouse=Path(warehouse))
@@ -234,11 +240,11 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     # forked child inherits DuckDB's threads and state mid-flight (seen to segfault in a worker).
     pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,),
                                mp_context=multiprocessing.get_context("spawn")) \
-        if workers > 1 else None
+        if workers > 1 and parse is None else None
     started = dt.datetime.now()
     try:
         _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
-             pseudonymise, run_id, started, summary)
+             pseudonymise, run_id, started, summary, parse)
     except _WRITE_FAILURES as exc:
         raise WarehouseError(
             f"cannot write to warehouse {warehouse}: {_first_cause(exc)}; the batch in flight "
@@ -260,7 +266,7 @@ def _first_cause(exc: BaseException) -> str:
 
 
 def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
-         pseudonymise, run_id, started, summary) -> None:
+         pseudonymise, run_id, started, summary, parse=None) -> None:
     with connection(warehouse) as con:
         ensure_schema(con)
         replace_site_map(con, sites or {})
@@ -279,7 +285,7 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
             # two batches are in flight, so memory stays flat however many files there are.
             in_flight = None
             for chunk in _chunks(iter_candidates(list(paths)), batch_size):
-                dispatched = _dispatch_chunk(con, chunk, pool, pseudonymise, summary)
+                dispatched = _dispatch_chunk(con, chunk, pool, pseudonymise, summary, parse)
                 if in_flight is not None:
                     _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress)
                 in_flight = dispatched
@@ -322,7 +328,7 @@ def _load_chunk(con, dispatched, loaded_sops: set, run_id: str, summary: IngestS
         progress(n_files)
 
 
-def _dispatch_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary):
+def _dispatch_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary, parse=None):
     """Read one batch and start parsing it (in the pool, if any); returns what _collect needs."""
     summary.seen += len(chunk)
     known = _known(con, [c.path for c in chunk])
@@ -339,7 +345,9 @@ def _dispatch_chunk(con, chunk: list[Candidate], pool, pseudonymise, summary):
             outcomes.append(FileOutcome(c.path, digest, 0, error.status, error.reason, str(error)))
             continue
         todo.append((c.path, data, digest))
-    if pool is not None:
+    if parse is not None:
+        results = parse(todo)  # submitted now, collected by _collect
+    elif pool is not None:
         results = pool.map(_work, todo, chunksize=8)  # submitted now, collected by _collect
     else:
         results = [process_file(p, d, pseudonymise, h) for p, d, h in todo]

@@ -2,13 +2,22 @@
 
 from __future__ import annotations
 
+import os
+import tempfile
 from pathlib import Path
 
-import pandas as pd
-import pydicom.config
-import pytest
+# Prefect runs in its own local mode (no server) with a throw-away home: set before anything
+# imports prefect, and inherited by the `kerma` processes the tests start.
+os.environ["PREFECT_HOME"] = tempfile.mkdtemp(prefix="kerma-test-prefect-")
+os.environ.pop("PREFECT_API_URL", None)
+os.environ["PREFECT_LOGGING_LEVEL"] = "WARNING"
+os.environ["PREFECT_SERVER_ANALYTICS_ENABLED"] = "false"   # no telemetry calls from tests
 
-from synthetic_studies.write import write_corpus
+import pandas as pd  # noqa: E402
+import pydicom.config  # noqa: E402
+import pytest  # noqa: E402
+
+from synthetic_studies.write import write_corpus  # noqa: E402
 
 # Tests run strict (STYLE A.8): invalid values raise instead of warning.
 pydicom.config.settings.reading_validation_mode = pydicom.config.RAISE

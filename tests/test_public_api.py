@@ -11,7 +11,15 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.parsing.projection", "pipeline.parsing.headers", "pipeline.sources.files",
            "pipeline.warehouse.connection", "pipeline.warehouse.tables", "pipeline.warehouse.load",
            "pipeline.metrics", "queries", "synthetic_studies", "synthetic_studies.scenario",
-           "synthetic_studies.sampling", "synthetic_studies.generator", "synthetic_studies.write"]
+           "synthetic_studies.sampling", "synthetic_studies.generator", "synthetic_studies.write",
+           "pipeline.warehouse.records", "pipeline.net", "pipeline.net.inbox", "pipeline.net.scp",
+           "pipeline.net.tls", "pipeline.net.dimse", "pipeline.net.dicomweb", "pipeline.net.drain",
+           "pipeline.flows", "pipeline.flows.ingest", "pipeline.flows.audit",
+           "pipeline.flows.publish", "pipeline.flows.monthly", "pipeline.flows.record",
+           "pipeline.flows.retry", "pipeline.cli", "pipeline.cli.app", "pipeline.cli.corpus",
+           "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
+           "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
+           "pipeline.cli.pull", "pipeline.cli.run"]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -1,0 +1,96 @@
+"""``kerma audit`` and ``kerma dashboard``: the audit of a period and its static site."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import typer
+from rich.table import Table
+
+from .app import app, console, fail, parse_day
+
+__all__ = ["CAUTION", "audit_command", "dashboard_command", "print_audit_summary"]
+
+CAUTION = ("A reference level is an investigation level, not a dose limit. Flagged exams and "
+           "units need review by a qualified medical physicist; local regulations prevail.")
+
+
+def print_audit_summary(summary) -> None:
+    """Print an AuditSummary: exceedances, alerts, drift and the caution."""
+    console.rule(f"Audit {summary.period} ({summary.date_from} to {summary.date_to})")
+    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}")
+    console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
+                  f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
+    table = Table(title="Room medians above their reference level")
+    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio", "Set", "Sample"):
+        table.add_column(c)
+    for r in summary.exceedances:
+        table.add_row(str(r["site"]), r["exam_type"], f"{r['quantity']} ({r['unit']})", str(r["n"]),
+                      f"{r['median']:.4g}", f"{r['reference_value']:.4g}",
+                      f"{r['ratio_to_reference']:.2f}", r["reference_set"],
+                      "adequate" if r["is_sample_adequate"] else "[yellow]too small[/yellow]")
+    console.print(table if summary.exceedances else "No room median above its reference level.")
+    alerts = ", ".join(f"{k}: {v}" for k, v in summary.alerts_by_rule.items()) or "none"
+    console.print(f"Individual-exam alerts: {alerts}")
+    if summary.drift:
+        for d in summary.drift:
+            console.print(f"Drift: {d['site']} {d['exam_type']} {d['quantity']}: median "
+                          f"{d['median_before']:.4g} -> {d['median_after']:.4g} {d['unit']} from "
+                          f"{d['change_month']} (z = {d['statistic_z']:.1f}, "
+                          f"p = {d['p_value_bonferroni']:.1e})")
+    else:
+        console.print("Drift: none flagged.")
+    console.print(f"[dim]{CAUTION}[/dim]")
+
+
+@app.command("audit")
+def audit_command(
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM."),
+    date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
+    date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: every verified set)."),
+    config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
+) -> None:
+    """Medians against reference levels (ICRP 135), network values, alerts and drift for a period."""
+    from ..audit import run_audit
+    from ..config import DEFAULT_CONFIG
+    from ..errors import ConfigError, WarehouseError
+
+    d_from, d_to = parse_day(date_from, "--from"), parse_day(date_to, "--to")
+    try:
+        summary = run_audit(warehouse, period=period, date_from=d_from, date_to=d_to,
+                            reference_sets=reference or None, config=config or DEFAULT_CONFIG)
+    except (ConfigError, WarehouseError) as exc:
+        fail(str(exc))
+    print_audit_summary(summary)
+
+
+@app.command("dashboard")
+def dashboard_command(
+    warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file (audited)."),
+    period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM to report."),
+    date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
+    date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
+    out: Path = typer.Option(..., "--out", help="Folder for the static site."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id(s), as for `kerma audit`."),
+    config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
+) -> None:
+    """Write the offline dashboards (one self-contained HTML page per area) for a period."""
+    from dashboards.site import write_site
+
+    from ..audit import run_audit
+    from ..config import DEFAULT_CONFIG
+    from ..errors import ConfigError, WarehouseError
+
+    try:
+        d_from = parse_day(date_from, "--from")
+        d_to = parse_day(date_to, "--to")
+        run_audit(warehouse, period=period, date_from=d_from, date_to=d_to,
+                  reference_sets=reference or None, config=config or DEFAULT_CONFIG)
+        index = write_site(warehouse, out)
+    except ValueError as exc:
+        fail(str(exc))
+    except (ConfigError, WarehouseError) as exc:
+        fail(str(exc))
+    console.print(f"Dashboards written: {index}")
