@@ -18,9 +18,10 @@ PERIOD = "2026-09"
 
 @pytest.fixture(scope="module")
 def inbox(tmp_path_factory):
-    """40 demo studies of September 2026 (seed 3), with their deliberate defects."""
+    """50 demo studies of September 2026 (seed 3), with their deliberate defects: more than
+    64 files, so the Dask parse step has at least two chunks."""
     out = tmp_path_factory.mktemp("monthly") / "inbox"
-    write_corpus(out, seed=3, months=1, n_studies=40, workers=1)
+    write_corpus(out, seed=3, months=1, n_studies=50, workers=1)
     return out
 
 
