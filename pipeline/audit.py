@@ -127,51 +127,61 @@ def _register_temp(con, name: str, table: pa.Table) -> None:
         con.unregister(f"incoming_{name}")
 
 
+def _records(cursor) -> list[dict]:
+    """Rows of an executed query as dicts; NULL stays None (pandas would make it NaN, a float)."""
+    columns = [d[0] for d in cursor.description]
+    return [dict(zip(columns, row)) for row in cursor.fetchall()]
+
+
 def _months_before(day: dt.date, months: int) -> dt.date:
     index = day.year * 12 + day.month - 1 - months
     return dt.date(index // 12, index % 12 + 1, 1) if day.day == 1 else \
         dt.date(index // 12, index % 12 + 1, min(day.day, 28))
 
 
-def study_estimates(frame, settings: AuditSettings) -> list[dict]:
+def study_estimates(rows, settings: AuditSettings) -> list[dict]:
     """Per CT study: effective-dose estimate E = k x DLP (region from the exam type, k by age;
     a population-average quantity, not an individual's risk) and SSDE (reported by the device,
-    else AAPM Report 204 fit at the water-equivalent diameter, AAPM Report 220)."""
+    else AAPM Report 204 fit at the water-equivalent diameter, AAPM Report 220).
+
+    `rows` are mappings (one per CT study, columns of queries/audit/select_ct_for_estimates.sql)
+    whose missing values are None, never NaN: a study no exam rule maps has exam_type None and
+    gets no effective-dose estimate (its region is unknown), but still its SSDE.
+    """
     from .exams import EXAM_TYPES
     from .reference import UnverifiedReferenceError, effective_dose_msv, ssde_conversion_factor
 
     out = []
-    for r in frame.itertuples(index=False):
-        exam = EXAM_TYPES.get(r.exam_type) if r.exam_type else None
+    for r in rows:
+        exam = EXAM_TYPES.get(r["exam_type"]) if r["exam_type"] is not None else None
+        dlp, age = r["dlp_total_mgy_cm"], r["patient_age_years"]
         e = k = basis = source = None
-        age = r.patient_age_years if r.patient_age_years == r.patient_age_years else None
-        if exam and exam.region and r.dlp_total_mgy_cm == r.dlp_total_mgy_cm and r.dlp_total_mgy_cm is not None:
+        if exam and exam.region and dlp is not None:
             try:
-                e, basis, source = effective_dose_msv(float(r.dlp_total_mgy_cm), exam.region,
+                e, basis, source = effective_dose_msv(float(dlp), exam.region,
                                                       age if age is not None else 40.0,
                                                       basis=settings.effective_dose_basis)
-                k = e / r.dlp_total_mgy_cm if r.dlp_total_mgy_cm else None
+                k = e / dlp if dlp else None
                 if age is None:
                     source += " (age unknown: adult coefficient)"
             except (ValueError, UnverifiedReferenceError):
                 e = None
         ssde, method = None, None
-        if r.reported_ssde_mgy == r.reported_ssde_mgy and r.reported_ssde_mgy is not None:
-            ssde, method = float(r.reported_ssde_mgy), "reported by the device (TID 10013)"
-        elif (r.water_equivalent_diameter_mm == r.water_equivalent_diameter_mm
-              and r.water_equivalent_diameter_mm is not None and r.ctdi_phantom in ("head_16cm", "body_32cm")
-              and r.ctdivol_mgy == r.ctdivol_mgy and r.ctdivol_mgy is not None):
+        dw, ctdivol = r["water_equivalent_diameter_mm"], r["ctdivol_mgy"]
+        if r["reported_ssde_mgy"] is not None:
+            ssde, method = float(r["reported_ssde_mgy"]), "reported by the device (TID 10013)"
+        elif dw is not None and r["ctdi_phantom"] in ("head_16cm", "body_32cm") and ctdivol is not None:
             try:
-                f = ssde_conversion_factor(r.water_equivalent_diameter_mm / 10.0, r.ctdi_phantom,
+                f = ssde_conversion_factor(dw / 10.0, r["ctdi_phantom"],
                                            include_unverified=settings.ssde_use_unverified_fit)
-                ssde = f * r.ctdivol_mgy
-                method = (f"AAPM Report 204 fit at Dw {r.water_equivalent_diameter_mm:.0f} mm "
-                          f"(AAPM Report 220), f = {f:.3f}")
+                ssde = f * ctdivol
+                method = (f"AAPM Report 204 fit at Dw {dw:.0f} mm "
+                          f"(AAPM Report 220), f = {f:.3f}; fit corroborated by secondary sources")
             except (ValueError, UnverifiedReferenceError):
                 ssde = None
-        out.append({"study_key": r.study_key, "patient_key": r.patient_key,
-                    "device_key": r.device_key, "exam_type": r.exam_type,
-                    "study_date": r.study_date, "dlp_total_mgy_cm": r.dlp_total_mgy_cm,
+        out.append({"study_key": r["study_key"], "patient_key": r["patient_key"],
+                    "device_key": r["device_key"], "exam_type": r["exam_type"],
+                    "study_date": r["study_date"], "dlp_total_mgy_cm": dlp,
                     "effective_dose_msv": e, "k_msv_per_mgy_cm": k,
                     "effective_dose_basis": basis, "effective_dose_source": source,
                     "ssde_mgy": ssde, "ssde_method": method})
@@ -215,8 +225,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("network_reference"), {"period": label})
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
                                          "outlier_min_n": settings.outlier_min_n})
-        estimates = study_estimates(con.execute(sql("select_ct_for_estimates"), {"date_to": after}).df(),
-                                    settings)
+        estimates = study_estimates(_records(con.execute(sql("select_ct_for_estimates"),
+                                                         {"date_to": after})), settings)
         con.register("incoming_study_estimate", pa.Table.from_pylist(estimates, schema=_ESTIMATE_SCHEMA))
         try:
             con.execute(sql("create_study_estimate"))
