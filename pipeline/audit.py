@@ -23,26 +23,90 @@ from .metrics import detect_drift, median_ci_ranks
 from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
-__all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "period_bounds", "run_audit"]
+__all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
+           "period_bounds", "run_audit"]
+
+
+def _default_min_sample() -> dict[str, int]:
+    from .strata import MIN_SAMPLE
+    return {modality: n for modality, (n, _) in MIN_SAMPLE.items()}
 
 
 @dataclass(frozen=True)
 class AuditSettings:
-    """Audit parameters; every default says where it comes from."""
+    """Audit parameters; every default says where it comes from (kerma.toml ``[audit]``)."""
 
     adult_min_age_years: float = 16.0     # common practice (UK adult NDRLs), no source
     standard_weight_min_kg: float = 50.0  # ICRP Publication 135: standard-size adult 50-90 kg
     standard_weight_max_kg: float = 90.0
-    min_sample: int = 20                  # ICRP 135 guidance (~20 patients per room; from memory)
+    # per modality; pipeline/strata.py MIN_SAMPLE gives each default's source (from memory)
+    min_sample: dict[str, int] = field(default_factory=_default_min_sample)
+    min_rooms_local_drl: int = 10         # ICRP 135: a local DRL from a reasonable number of rooms (10-20)
+    mammography_thickness_band_mm: float = 10.0  # common practice, no source
+    jurisdiction: str | None = None       # ISO 3166-1 alpha-2; None: one issuing body, see jurisdiction.py
+    reference_sets: tuple[str, ...] = ()  # explicit sets, in order of precedence
+    fallback: tuple[str, ...] = ()        # countries or set ids that fill gaps, labelled
     well_below_fraction: float = 0.5      # common practice, no source: review image quality
     outlier_min_n: int = 10               # common practice, no source
     drift_alpha: float = 0.001            # Bonferroni-corrected two-sided p
     drift_min_change: float = 0.2         # 20 % change of the median (common practice, no source)
     drift_min_n_side: int = 10
-    effective_dose_basis: str = "ICRP 60"  # the k factors most DRL literature quotes
+    # ICRP Publication 103 (2007) tissue weighting factors are the current ones; "ICRP 60" on request
+    effective_dose_basis: str = "ICRP 103"
     # AAPM 204 fit coefficients are corroborated by secondary sources only (see
     # queries/seeds/ssde_coefficients.csv); used, and the method says so.
     ssde_use_unverified_fit: bool = True
+
+
+_SETTING_KEYS = {"adult_min_age_years", "standard_weight_min_kg", "standard_weight_max_kg",
+                 "min_sample", "min_rooms_local_drl", "mammography_thickness_band_mm",
+                 "jurisdiction", "reference_sets", "fallback", "well_below_fraction",
+                 "outlier_min_n", "effective_dose_basis"}
+
+
+def load_audit_settings(user_config: Path | None = None) -> AuditSettings:
+    """AuditSettings from the ``[audit]`` table of kerma.toml (defaults for what it omits).
+
+    Example::
+
+        [audit]
+        jurisdiction = "GB"            # or reference_sets = ["ukhsa_adult_ct_2022"]
+        fallback = ["AU"]              # optional: another body's sets fill gaps, labelled
+        min_rooms_local_drl = 10
+        min_sample = { CT = 30 }       # per modality; others keep their defaults
+        effective_dose_basis = "ICRP 103"
+
+    Raises
+    ------
+    ConfigError
+        Unknown key, or a value of the wrong kind, naming the file.
+    """
+    defaults = AuditSettings()
+    if user_config is None or not Path(user_config).exists():
+        return defaults
+    try:
+        raw = tomllib.loads(Path(user_config).read_text(encoding="utf-8")).get("audit", {})
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{user_config} is not valid TOML: {exc}") from exc
+    unknown = set(raw) - _SETTING_KEYS
+    if unknown:
+        raise ConfigError(f"{user_config}: unknown [audit] key(s) {', '.join(sorted(unknown))} "
+                          f"(known: {', '.join(sorted(_SETTING_KEYS))})")
+    values = dict(raw)
+    if "min_sample" in values:
+        if not isinstance(values["min_sample"], dict) or not all(
+                isinstance(v, int) and v > 0 for v in values["min_sample"].values()):
+            raise ConfigError(f"{user_config}: [audit] min_sample must map modalities to positive "
+                              f"integers, e.g. min_sample = {{ CT = 30 }}")
+        values["min_sample"] = {**defaults.min_sample,
+                                **{k.upper(): v for k, v in values["min_sample"].items()}}
+    for key in ("reference_sets", "fallback"):
+        if key in values:
+            item = values[key]
+            values[key] = (item,) if isinstance(item, str) else tuple(item)
+    if values.get("effective_dose_basis", "ICRP 103") not in ("ICRP 60", "ICRP 103"):
+        raise ConfigError(f"{user_config}: [audit] effective_dose_basis must be 'ICRP 103' or 'ICRP 60'")
+    return AuditSettings(**values)
 
 
 @dataclass
@@ -52,6 +116,11 @@ class AuditSummary:
     date_to: dt.date
     reference_sets: list[str]
     n_studies: int = 0
+    reference_body: str = ""
+    reference_basis: str = ""
+    fallback_sets: list[str] = field(default_factory=list)
+    min_sample: dict[str, int] = field(default_factory=dict)
+    min_rooms_local_drl: int = 10
     n_unmapped: int = 0
     n_groups: int = 0
     exceedances: list[dict] = field(default_factory=list)
@@ -116,6 +185,8 @@ _ESTIMATE_SCHEMA = pa.schema(
      ("effective_dose_msv", pa.float64()), ("k_msv_per_mgy_cm", pa.float64()),
      ("effective_dose_basis", pa.string()), ("effective_dose_source", pa.string()),
      ("ssde_mgy", pa.float64()), ("ssde_method", pa.string())])
+_BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
+                          ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
 
 
@@ -192,25 +263,37 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
               date_to: dt.date | None = None, reference_sets: list[str] | None = None,
               settings: AuditSettings | None = None, config: Path | None = None) -> AuditSummary:
     """Compute the audit tables for the period; returns what the summary prints."""
+    from .exams import EXAM_TYPES
+    from .jurisdiction import choose_reference_sets
     from .reference_store import install_reference_sets
+    from .strata import stratum_basis, stratum_bands
 
-    settings = settings or AuditSettings()
+    settings = settings or load_audit_settings(config)
     first, after, label = period_bounds(period, date_from, date_to)
     with connection(warehouse) as con:
         ensure_schema(con)
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
-        available = install_reference_sets(con)
-        chosen = reference_sets or [s for s in available if available[s]]
-        unknown = [s for s in chosen if s not in available]
-        if unknown:
-            raise ConfigError(f"unknown reference set(s): {', '.join(unknown)}; "
-                              f"available: {', '.join(sorted(available))}")
-        con.register("incoming_chosen", pa.table({"set_id": chosen,
-                                                  "precedence": list(range(1, len(chosen) + 1))}))
-        try:
-            con.execute(sql("create_chosen_reference_set"))
-        finally:
-            con.unregister("incoming_chosen")
+        install_reference_sets(con)
+        choice = choose_reference_sets(
+            _records(con.execute(sql("select_reference_set_meta"))), first,
+            after - dt.timedelta(days=1), explicit=reference_sets or list(settings.reference_sets),
+            jurisdiction=settings.jurisdiction, fallback=settings.fallback)
+        chosen = choice.ordered
+        _register_temp(con, "chosen_reference_set", pa.table({
+            "set_id": pa.array(chosen, pa.string()),
+            "precedence": pa.array(range(1, len(chosen) + 1), pa.int64()),
+            "is_fallback": pa.array([s in choice.fallback for s in chosen], pa.bool_())}))
+        _register_temp(con, "stratum_band", pa.Table.from_pylist(
+            stratum_bands(settings.mammography_thickness_band_mm), schema=_BAND_SCHEMA))
+        _register_temp(con, "exam_stratum_basis", pa.Table.from_pylist(
+            [{"exam_type": e.id, "basis": stratum_basis(e.id, e.modality)} for e in EXAM_TYPES.values()],
+            schema=pa.schema([("exam_type", pa.string()), ("basis", pa.string())])))
+        _register_temp(con, "min_sample_rule", pa.Table.from_pylist(
+            [{"modality": m, "min_sample": n} for m, n in settings.min_sample.items()],
+            schema=pa.schema([("modality", pa.string()), ("min_sample", pa.int64())])))
+        has_entrance = con.execute(sql("has_column"), {"relation": "irradiation_event",
+                                                       "column": "entrance_dose_mgy"}).fetchone()[0]
+        con.execute(sql("create_audit_input_with_entrance" if has_entrance else "create_audit_input"))
         con.execute(sql("reference_in_force"))
         max_n = con.execute(sql("max_group_size"), {"date_from": first, "date_to": after}).fetchall()[0][0] or 1
         _register_temp(con, "median_ci_rank", pa.Table.from_pylist(median_ci_ranks(max_n), schema=_CI_SCHEMA))
@@ -220,9 +303,10 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                   "adult_min_age": settings.adult_min_age_years,
                   "weight_min": settings.standard_weight_min_kg,
                   "weight_max": settings.standard_weight_max_kg,
-                  "min_n": settings.min_sample, "low_fraction": settings.well_below_fraction}
+                  "low_fraction": settings.well_below_fraction}
         con.execute(sql("audit_medians"), params)
-        con.execute(sql("network_reference"), {"period": label})
+        con.execute(sql("network_reference"), {"period": label,
+                                               "min_rooms": settings.min_rooms_local_drl})
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
                                          "outlier_min_n": settings.outlier_min_n})
         estimates = study_estimates(_records(con.execute(sql("select_ct_for_estimates"),
@@ -246,7 +330,11 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.execute(sql("create_drift_flags"))
         finally:
             con.unregister("incoming_drift_flags")
-        summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen)
+        summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen,
+                               reference_body=choice.body, reference_basis=choice.basis,
+                               fallback_sets=list(choice.fallback),
+                               min_sample=dict(settings.min_sample),
+                               min_rooms_local_drl=settings.min_rooms_local_drl)
         summary.n_studies, summary.n_unmapped = con.execute(
             sql("count_unmapped"), {"date_from": first, "date_to": after}).fetchall()[0]
         summary.n_groups = con.execute(sql("count_audit_groups")).fetchall()[0][0]

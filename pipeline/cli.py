@@ -311,6 +311,7 @@ def reference_import(
 def reference_derive(
     set_id: str = typer.Argument(..., help="Name of the new local set, e.g. local_2026q4."),
     warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    allow_few_rooms: bool = typer.Option(False, "--allow-few-rooms", help="Save values from fewer than min_rooms_local_drl rooms (labelled; not a local DRL per ICRP 135)."),
 ) -> None:
     """Save the network's 75th percentile of room medians (ICRP 135) from the last audit as a set."""
     from .errors import ConfigError, WarehouseError
@@ -319,7 +320,8 @@ def reference_derive(
 
     try:
         with connection(warehouse) as con:
-            n = derive_local_set(con, set_id, f"Local reference levels derived from {warehouse.name}")
+            n = derive_local_set(con, set_id, f"Local reference levels derived from {warehouse.name}",
+                                 allow_few_rooms=allow_few_rooms)
     except (ConfigError, WarehouseError) as exc:
         _fail(str(exc))
     console.print(f"Saved local set {set_id!r} with {n} values (75th percentile of room medians).")
@@ -331,7 +333,10 @@ CAUTION = ("A reference level is an investigation level, not a dose limit. Flagg
 
 def print_audit_summary(summary) -> None:
     console.rule(f"Audit {summary.period} ({summary.date_from} to {summary.date_to})")
-    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}")
+    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}"
+                  f" - issuing body: {summary.reference_body or 'none'} ({summary.reference_basis})")
+    if summary.fallback_sets:
+        console.print(f"Fallback sets (fill gaps only; each such row says so): {', '.join(summary.fallback_sets)}")
     console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
                   f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
     table = Table(title="Room medians above their reference level")
@@ -341,7 +346,8 @@ def print_audit_summary(summary) -> None:
         table.add_row(str(r["site"]), r["exam_type"], f"{r['quantity']} ({r['unit']})", str(r["n"]),
                       f"{r['median']:.4g}", f"{r['reference_value']:.4g}",
                       f"{r['ratio_to_reference']:.2f}", r["reference_set"],
-                      "adequate" if r["is_sample_adequate"] else "[yellow]too small[/yellow]")
+                      "adequate" if r["is_sample_adequate"]
+                      else f"[yellow]too few (n < {r['min_sample']})[/yellow]")
     console.print(table if summary.exceedances else "No room median above its reference level.")
     alerts = ", ".join(f"{k}: {v}" for k, v in summary.alerts_by_rule.items()) or "none"
     console.print(f"Individual-exam alerts: {alerts}")
@@ -362,7 +368,7 @@ def audit_command(
     period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM."),
     date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
     date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
-    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: every verified set)."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: [audit] in kerma.toml, else the newest verified sets of one issuing body)."),
     config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
 ) -> None:
     """Medians against reference levels (ICRP 135), network values, alerts and drift for a period."""
