@@ -318,8 +318,9 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_study_estimate")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
-        con.execute(sql("monthly_medians"), {"date_to": after})
-        history = con.execute(sql("drift_input"), {"date_to": after}).df()
+        adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
+        con.execute(sql("monthly_medians"), adult)
+        history = con.execute(sql("drift_input"), adult).df()
         drift = detect_drift(history, alpha=settings.drift_alpha,
                              min_change=settings.drift_min_change,
                              min_n_side=settings.drift_min_n_side)
