@@ -149,8 +149,24 @@ def period_bounds(period: str | None = None, date_from: dt.date | None = None,
     raise ConfigError("give --period YYYY-MM, or both --from and --to")
 
 
+_ACTIONS = ("patient_follow_up", "protocol_review", "statistical_review")
+_RULE_KEYS = {"rule", "family", "action", "quantity", "threshold", "unit", "source", "verified",
+              "seed_rule", "protocol_family", "population", "age_min_years", "age_max_years",
+              "phantom", "event_type"}
+
+
 def load_alert_rules(user_config: Path | None = None) -> list[dict]:
-    """Default alert rules (pipeline/alert_rules.toml), overridden by kerma.toml [[alert_rule]]."""
+    """Default alert rules (pipeline/alert_rules.toml), overridden by kerma.toml [[alert_rule]].
+
+    A user's rule is taken as verified unless it says ``verified = false``; a default recalled
+    from memory carries ``verified = false`` (dose_alerts.threshold_verified) and says so in
+    its source text.
+
+    Raises
+    ------
+    ConfigError
+        A user rule without a name, lacking a required key, with an unknown key or action.
+    """
     text = resources.files(__package__).joinpath("alert_rules.toml").read_text("utf-8")
     rules = {r["rule"]: dict(r) for r in tomllib.loads(text)["rule"]}
     if user_config is not None and Path(user_config).exists():
@@ -158,19 +174,36 @@ def load_alert_rules(user_config: Path | None = None) -> list[dict]:
         for r in raw.get("alert_rule", []):
             if "rule" not in r:
                 raise ConfigError(f"{user_config}: every [[alert_rule]] needs a `rule` name")
-            merged = {**rules.get(r["rule"], {}), **r}
-            missing = {"family", "quantity", "threshold", "unit", "source"} - set(merged)
+            unknown = set(r) - _RULE_KEYS
+            if unknown:
+                raise ConfigError(f"{user_config}: alert rule {r['rule']!r} has unknown key(s) "
+                                  f"{', '.join(sorted(unknown))}")
+            base = rules.get(r["rule"], {})
+            merged = {**base, "verified": True, **r} if set(r) - {"rule"} else {**base, **r}
+            missing = {"family", "action", "quantity", "threshold", "unit", "source"} - set(merged)
             if missing:
                 raise ConfigError(f"{user_config}: alert rule {r['rule']!r} lacks {', '.join(sorted(missing))}")
             rules[r["rule"]] = merged
-    return [{"rule": k, "family": v["family"], "quantity": v["quantity"],
+    for name, v in rules.items():
+        if v.get("action") not in _ACTIONS:
+            raise ConfigError(f"alert rule {name!r}: action must be one of {', '.join(_ACTIONS)}")
+    return [{"rule": k, "family": v["family"], "action": v["action"], "quantity": v["quantity"],
              "phantom": v.get("phantom"), "threshold": float(v["threshold"]), "unit": v["unit"],
-             "source": v["source"]} for k, v in rules.items()]
+             "source": v["source"], "verified": bool(v.get("verified", False)),
+             "protocol_family": v.get("protocol_family"), "population": v.get("population", "any"),
+             "age_min_years": v.get("age_min_years"), "age_max_years": v.get("age_max_years"),
+             "event_type": v.get("event_type")} for k, v in rules.items()]
 
 
-_ALERT_SCHEMA = pa.schema([("rule", pa.string()), ("family", pa.string()), ("quantity", pa.string()),
-                           ("phantom", pa.string()), ("threshold", pa.float64()),
-                           ("unit", pa.string()), ("source", pa.string())])
+_ALERT_SCHEMA = pa.schema([("rule", pa.string()), ("family", pa.string()), ("action", pa.string()),
+                           ("quantity", pa.string()), ("phantom", pa.string()),
+                           ("threshold", pa.float64()), ("unit", pa.string()),
+                           ("source", pa.string()), ("verified", pa.bool_()),
+                           ("protocol_family", pa.string()), ("population", pa.string()),
+                           ("age_min_years", pa.float64()), ("age_max_years", pa.float64()),
+                           ("event_type", pa.string())])
+_ACCUMULATED_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
+                                 ("accumulated_ctdivol_mgy", pa.float64()), ("method", pa.string())])
 _DRIFT_SCHEMA = pa.schema(
     [("period", pa.string()), ("device_key", pa.string()), ("site", pa.string()),
      ("exam_type", pa.string()), ("quantity", pa.string()), ("unit", pa.string()),
@@ -202,6 +235,26 @@ def _records(cursor) -> list[dict]:
     """Rows of an executed query as dicts; NULL stays None (pandas would make it NaN, a float)."""
     columns = [d[0] for d in cursor.description]
     return [dict(zip(columns, row)) for row in cursor.fetchall()]
+
+
+def _accumulated_ctdivol(con, first: dt.date, after: dt.date) -> list[dict]:
+    """Per CT study: CTDIvol accumulated at a table position (NEMA XR 25), from the scanning
+    ranges when the warehouse has them (TID 10014), else the labelled upper bound."""
+    from itertools import groupby
+
+    from .metrics import accumulated_ctdivol_by_position
+
+    has_positions = all(con.execute(sql("has_column"), {"relation": "irradiation_event", "column": c}
+                                    ).fetchone()[0]
+                        for c in ("top_z_scanning_length_mm", "bottom_z_scanning_length_mm"))
+    query = "select_ct_dose_check_events" + ("_with_positions" if has_positions else "")
+    rows = con.execute(sql(query), {"date_from": first, "date_to": after}).fetchall()
+    out = []
+    for (study_key, device_key), events in groupby(rows, key=lambda r: (r[0], r[1])):
+        value, method = accumulated_ctdivol_by_position((c, a, b) for _, _, c, a, b in events)
+        out.append({"study_key": study_key, "device_key": device_key,
+                    "accumulated_ctdivol_mgy": value, "method": method})
+    return out
 
 
 def _months_before(day: dt.date, months: int) -> dt.date:
@@ -286,8 +339,10 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         _register_temp(con, "stratum_band", pa.Table.from_pylist(
             stratum_bands(settings.mammography_thickness_band_mm), schema=_BAND_SCHEMA))
         _register_temp(con, "exam_stratum_basis", pa.Table.from_pylist(
-            [{"exam_type": e.id, "basis": stratum_basis(e.id, e.modality)} for e in EXAM_TYPES.values()],
-            schema=pa.schema([("exam_type", pa.string()), ("basis", pa.string())])))
+            [{"exam_type": e.id, "basis": stratum_basis(e.id, e.modality), "region": e.region}
+             for e in EXAM_TYPES.values()],
+            schema=pa.schema([("exam_type", pa.string()), ("basis", pa.string()),
+                              ("region", pa.string())])))
         _register_temp(con, "min_sample_rule", pa.Table.from_pylist(
             [{"modality": m, "min_sample": n} for m, n in settings.min_sample.items()],
             schema=pa.schema([("modality", pa.string()), ("min_sample", pa.int64())])))
@@ -307,8 +362,11 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("audit_medians"), params)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
+        _register_temp(con, "ct_accumulated", pa.Table.from_pylist(
+            _accumulated_ctdivol(con, first, after), schema=_ACCUMULATED_SCHEMA))
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
-                                         "outlier_min_n": settings.outlier_min_n})
+                                         "outlier_min_n": settings.outlier_min_n,
+                                         "adult_min_age": settings.adult_min_age_years})
         estimates = study_estimates(_records(con.execute(sql("select_ct_for_estimates"),
                                                          {"date_to": after})), settings)
         con.register("incoming_study_estimate", pa.Table.from_pylist(estimates, schema=_ESTIMATE_SCHEMA))
