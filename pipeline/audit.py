@@ -389,6 +389,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.execute(sql("create_drift_flags"))
         finally:
             con.unregister("incoming_drift_flags")
+        con.execute(sql("update_median_after_change"), {"date_from": first, "date_to": after,
+                                                        "adult_min_age": settings.adult_min_age_years})
         summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen,
                                reference_body=choice.body, reference_basis=choice.basis,
                                fallback_sets=list(choice.fallback),

@@ -141,7 +141,9 @@ select
     case when c.is_comparable then c.indication end as reference_indication,
     case when c.is_comparable then c.ref_population end as reference_population,
     c.reference_scope_note,
-    coalesce(c.is_comparable and c.is_fallback, false) as is_fallback_reference
+    coalesce(c.is_comparable and c.is_fallback, false) as is_fallback_reference,
+    null::varchar as change_month,          -- set by update_median_after_change (drift inside the period)
+    null::double as median_after_change
 from noted as c
 left join min_sample_rule as m on m.modality = c.modality
 order by c.exam_type, c.quantity, c.site, c.device_key, c.population, c.stratum
