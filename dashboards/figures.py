@@ -242,9 +242,11 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         counts = {room: {} for room in rooms}
         for s, r, pop, n in zip(part["site_label"], part["room_label"], part["population"], part["n"], strict=True):
             counts[(s, r)][pop] = int(n)
+        # adult, paediatric, unknown age (its own group), all (mammography: no age split)
+        present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
-            f"{counts[room].get(pop, 0)}" for pop in ("adult", "paediatric")) for room in rooms}
-        for population in ("adult", "paediatric"):
+            f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
+        for population in present:
             for adequate in (True, False):
                 sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)]
                 if sel.empty:
@@ -386,6 +388,9 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
                          tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
                          range=x_range, row=row, col=1)
     return _layout(fig, title, height=40 + 290 * len(panels))
+
+
+_POPULATION_ORDER = ("adult", "paediatric", "unknown_age", "all")
 
 
 # --- site comparison: funnel ----------------------------------------------------------------

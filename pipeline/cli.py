@@ -268,7 +268,7 @@ def exams_unmapped(
 
 @reference_app.command("list")
 def reference_list(warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file.")) -> None:
-    """Show the reference-level sets in the warehouse and whether they are used by default."""
+    """Show the reference-level sets in the warehouse: body, country, validity, verification."""
     from queries import sql
 
     from .errors import WarehouseError

@@ -146,7 +146,8 @@ def _write_sets(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None:
 
 
 def install_reference_sets(con: duckdb.DuckDBPyConnection) -> dict[str, bool]:
-    """(Re)install the shipped sets; returns every set in the warehouse -> usable by default."""
+    """(Re)install the shipped sets; returns every set in the warehouse -> current (all values
+    verified, not superseded). Which sets an audit uses is decided by pipeline.jurisdiction."""
     from .reference import load_reference_sets
 
     shipped = reference_rows(load_reference_sets(include_unverified=True), "shipped",

@@ -56,6 +56,22 @@ def test_step_change_is_flagged_in_the_right_month_and_nowhere_else(con):
     assert 0.5 < chest[0][4] < 0.8  # the scenario's detector change: x 0.65
 
 
+def test_a_change_inside_the_period_gives_the_median_after_it(con):
+    # the detector change of tgh-dx1 at 2026-10 lies inside the audited Sep-Nov period
+    room = _device(con, "FDR-30511")
+    change, after, median = con.execute(
+        "select change_month, median_after_change, median from audit_medians where device_key = ? "
+        "and exam_type = 'dx_chest_pa' and quantity = 'dap' and population = 'adult'", [room]).fetchone()
+    values = [r[0] for r in con.execute(
+        "select value from audit_observation where device_key = ? and exam_type = 'dx_chest_pa' "
+        "and quantity = 'dap' and patient_age_years >= 16 and period >= '2026-10' "
+        "and study_date < date '2026-12-01'", [room]).fetchall()]
+    assert change == "2026-10" and after == pytest.approx(np.median(values)) and after < median
+    others = con.execute("select count(*) from audit_medians where change_month is not null "
+                         "and device_key <> ?", [room]).fetchone()[0]
+    assert others == 0
+
+
 def test_interventional_case_triggers_the_substantial_dose_alert(con):
     rows = con.execute("select rule, value, threshold, unit, source, exam_type from dose_alerts "
                        "where rule like 'ncrp168%' order by rule").fetchall()
@@ -239,6 +255,7 @@ def test_audit_command_prints_the_summary_and_the_caution(audited, tmp_path):
     assert "Audit 2026-09-01..2026-11-30" in result.output
     assert "investigation level, not a dose limit" in result.output
     assert "ncrp168_srdl_dose_rp: 1" in result.output
+    assert "issuing body: UK Health Security Agency (UKHSA)" in result.output
 
 
 def test_unknown_reference_set_is_a_clear_error(audited, tmp_path):
