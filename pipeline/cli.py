@@ -340,12 +340,16 @@ def print_audit_summary(summary) -> None:
     console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
                   f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
     table = Table(title="Room medians above their reference level")
-    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio", "Set", "Sample"):
+    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio",
+              "Standard-size (50-90 kg) ratio", "Set", "Sample"):
         table.add_column(c)
     for r in summary.exceedances:
+        # ICRP 135: the standard-size median is the one to compare where most exams have a weight
+        std = (f"{r['ratio_standard_size_to_reference']:.2f} (n {r['n_standard_size']})"
+               if r["n_with_weight"] > r["n"] / 2 and r["n_standard_size"] else "weights too sparse")
         table.add_row(str(r["site"]), r["exam_type"], f"{r['quantity']} ({r['unit']})", str(r["n"]),
                       f"{r['median']:.4g}", f"{r['reference_value']:.4g}",
-                      f"{r['ratio_to_reference']:.2f}", r["reference_set"],
+                      f"{r['ratio_to_reference']:.2f}", std, r["reference_set"],
                       "adequate" if r["is_sample_adequate"]
                       else f"[yellow]too few (n < {r['min_sample']})[/yellow]")
     console.print(table if summary.exceedances else "No room median above its reference level.")
