@@ -192,3 +192,37 @@ def test_min_sample_can_be_configured_per_modality(radiographs, tmp_path):
     with duckdb.connect(str(db), read_only=True) as con:
         assert con.execute("select bool_and(is_sample_adequate), max(min_sample) from audit_medians"
                            ).fetchone() == (True, 1)
+
+
+def test_a_fallback_set_fills_a_gap_and_every_such_row_says_so(tmp_path):
+    # [audit] jurisdiction = "GB", fallback = ["arpansa_adult_ct_2012"]: UKHSA's head CTDIvol
+    # cannot be compared (phantom not stated), ARPANSA 2012 states the 16 cm phantom (60 mGy)
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    _, ds = demo_dataset("mph-ct1", exam="ct_head")
+    _set_age(ds, 45.0)
+    (inbox / "head.dcm").write_bytes(encode(ds))
+    db = tmp_path / "w.duckdb"
+    ingest([inbox], db, KEY)
+    config = tmp_path / "kerma.toml"
+    config.write_text('[audit]\njurisdiction = "GB"\nfallback = ["arpansa_adult_ct_2012"]\n')
+    summary = run_audit(db, **PERIOD, config=config)
+    assert summary.reference_sets == ["ukhsa_adult_ct_2022", "arpansa_adult_ct_2012"]
+    assert summary.fallback_sets == ["arpansa_adult_ct_2012"]
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = {r[0]: r[1:] for r in con.execute(
+            "select quantity, reference_set, reference_value, reference_country, "
+            "reference_scope_note from audit_medians where exam_type = 'ct_head'").fetchall()}
+    assert rows["dlp"][:3] == ("ukhsa_adult_ct_2022", 790.0, "GB") and "fallback" not in rows["dlp"][3]
+    assert rows["ctdivol"][:3] == ("arpansa_adult_ct_2012", 60.0, "AU")
+    assert "fallback: a set of Australian Radiation Protection" in rows["ctdivol"][3]
+    assert "superseded: the set was in force until 2018" in rows["ctdivol"][3]
+
+
+def test_unknown_audit_setting_is_refused(tmp_path):
+    from pipeline.audit import load_audit_settings
+    from pipeline.errors import ConfigError
+    config = tmp_path / "kerma.toml"
+    config.write_text('[audit]\njurisdicton = "GB"\n')
+    with pytest.raises(ConfigError, match="unknown \\[audit\\] key\\(s\\) jurisdicton"):
+        load_audit_settings(config)
