@@ -71,6 +71,26 @@ ct_alert as (
     join studies as s using (study_key, device_key)
     join rules as r on r.family = 'ct_dose_check_alert' and r.quantity = 'ctdivol'
 ),
+device_check as (
+    -- the scanner's own CT dose-check values (PS3.16 TID 10015, NEMA XR 25) as recorded in its
+    -- report: an acquisition above the value the device was configured with
+    select a.study_key, a.patient_key, a.device_key, a.site, a.exam_type, a.study_date,
+           'device_dose_check_' || v.kind as rule, 'device_dose_check' as family,
+           'protocol_review' as action, true as threshold_verified, 'ctdivol' as quantity,
+           max(a.ctdivol_mgy) as value, v.threshold, 'mGy' as unit,
+           'the device''s own configured CTDIvol ' || v.kind || ' value (TID 10015) in its dose report'
+               as source,
+           'largest CTDIvol of one acquisition against the value the device recorded for it' as method
+    from ct_acquisitions as a
+    join (
+        select event_uid, 'notification' as kind, max(dose_check_notification_ctdivol_mgy) as threshold
+        from raw_ct_event where dose_check_notification_ctdivol_mgy > 0 group by event_uid
+        union all
+        select event_uid, 'alert', max(dose_check_alert_ctdivol_mgy)
+        from raw_ct_event where dose_check_alert_ctdivol_mgy > 0 group by event_uid
+    ) as v on v.event_uid = a.event_uid
+    group by all
+),
 obs as (
     select o.*, ln(o.value) as log_value
     from audit_observation as o
@@ -109,6 +129,7 @@ from (
     select * from fluoro where value >= threshold
     union all by name select * from ct_events where value > threshold
     union all by name select * from ct_alert where value > threshold
+    union all by name select * from device_check where value > threshold
     union all by name select * from outliers
 )
 order by study_date, rule, study_key

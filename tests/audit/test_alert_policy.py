@@ -109,3 +109,28 @@ def test_accumulated_ctdivol_without_positions_is_an_upper_bound(alerts):
 def test_every_alert_row_says_whether_its_threshold_was_verified(alerts):
     assert alerts and all(r[6] is False and "from memory" in r[9] for r in alerts)
     assert all(r[5] for r in alerts)   # every row says how its value was computed
+
+
+def test_the_devices_own_dose_check_value_is_read_and_applied(tmp_path):
+    # PS3.16 TID 10015 CT Dose Check Details: the notification value the scanner was configured
+    # with (here 30 mGy) is recorded per acquisition; an acquisition above it is reported
+    from synthetic_studies.sr import container, num_item
+
+    _, ds = demo_dataset("tgh-ct1", exam="ct_head")
+    _age(ds, 50)
+    _set_ctdivol(ds, 45.0)
+    for item in ds.ContentSequence:
+        if item.ValueType == "CONTAINER" and item.ConceptNameCodeSequence[0].CodeValue == "113819":
+            item.ContentSequence.append(container(C.DOSE_CHECK_NOTIFICATION_DETAILS, [
+                num_item(C.CTDIVOL_NOTIFICATION_VALUE, 30.0, C.UNIT_MGY)]))
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    (inbox / "head.dcm").write_bytes(encode(ds))
+    db = tmp_path / "w.duckdb"
+    ingest([inbox], db, KEY)
+    run_audit(db, **PERIOD)
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = con.execute("select rule, family, action, value, threshold, threshold_verified "
+                           "from dose_alerts where family = 'device_dose_check'").fetchall()
+    assert rows == [("device_dose_check_notification", "device_dose_check", "protocol_review",
+                     45.0, 30.0, True)]
