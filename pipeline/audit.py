@@ -123,6 +123,8 @@ class AuditSummary:
     min_rooms_local_drl: int = 10
     n_unmapped: int = 0
     n_groups: int = 0
+    n_compared: int = 0      # groups compared with a reference level (the rest: reference_scope_note)
+    n_too_few: int = 0       # groups below the minimum sample of their modality
     exceedances: list[dict] = field(default_factory=list)
     alerts_by_rule: dict[str, int] = field(default_factory=dict)
     drift: list[dict] = field(default_factory=list)
@@ -398,7 +400,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                                min_rooms_local_drl=settings.min_rooms_local_drl)
         summary.n_studies, summary.n_unmapped = con.execute(
             sql("count_unmapped"), {"date_from": first, "date_to": after}).fetchall()[0]
-        summary.n_groups = con.execute(sql("count_audit_groups")).fetchall()[0][0]
+        summary.n_groups, summary.n_compared, summary.n_too_few = con.execute(
+            sql("count_audit_groups")).fetchall()[0]
         summary.exceedances = con.execute(sql("select_exceedances")).df().to_dict("records")
         summary.alerts_by_rule = dict(con.execute(sql("count_alerts_by_rule")).fetchall())
         summary.drift = drift.to_dict("records")

@@ -339,6 +339,11 @@ def print_audit_summary(summary) -> None:
         console.print(f"Fallback sets (fill gaps only; each such row says so): {', '.join(summary.fallback_sets)}")
     console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
                   f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
+    console.print(f"Groups compared with a reference level: {summary.n_compared} of {summary.n_groups} "
+                  f"(the others say why in audit_medians.reference_scope_note; compare them with the "
+                  f"network typical value). Too few exams (n below min_sample: "
+                  f"{', '.join(f'{m} {n}' for m, n in sorted(summary.min_sample.items()))}): "
+                  f"{summary.n_too_few} groups.")
     table = Table(title="Room medians above their reference level")
     for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio",
               "Standard-size (50-90 kg) ratio", "Set", "Sample"):
