@@ -18,7 +18,7 @@ import pyarrow as pa
 from queries import sql
 
 from .errors import ConfigError
-from .exams import load_exam_rules, rule_rows
+from .exams import load_exam_rules, load_indication_rules, rule_rows
 from .metrics import detect_drift, median_ci_ranks
 from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
@@ -348,6 +348,12 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         _register_temp(con, "min_sample_rule", pa.Table.from_pylist(
             [{"modality": m, "min_sample": n} for m, n in settings.min_sample.items()],
             schema=pa.schema([("modality", pa.string()), ("min_sample", pa.int64())])))
+        _register_temp(con, "indication_rule", pa.Table.from_pylist(
+            [{"rule_id": n, "exam_type": r.exam, "indication": r.indication, "phrase": phrase}
+             for n, r in enumerate(load_indication_rules(config), start=1) for phrase in r.any],
+            schema=pa.schema([("rule_id", pa.int64()), ("exam_type", pa.string()),
+                              ("indication", pa.string()), ("phrase", pa.string())])))
+        con.execute(sql("create_study_indication"))
         has_entrance = con.execute(sql("has_column"), {"relation": "irradiation_event",
                                                        "column": "entrance_dose_mgy"}).fetchone()[0]
         con.execute(sql("create_audit_input_with_entrance" if has_entrance else "create_audit_input"))

@@ -54,6 +54,13 @@ groups as (
     from stratified
     group by all
 ),
+indication_counts as (
+    select site, device_key, exam_type, quantity, population, stratum, phantom, indication,
+           count(*) as n_with_indication
+    from stratified
+    where indication is not null
+    group by all
+),
 with_ci as (
     select g.*, g.sorted_values[r.lower_rank] as median_ci_low,
            g.sorted_values[r.upper_rank] as median_ci_high,
@@ -65,6 +72,8 @@ candidates as (
     select c.*, r.set_id, r.value_canonical, r.phantom as reference_phantom, r.phantom_stated,
            r.issuing_body, r.country, r.indication, r.population as ref_population, r.is_fallback,
            r.valid_to, r.verified, r.citation_title,
+           case when r.indication is not null then coalesce(i.n_with_indication, 0) end
+               as n_indication_matched,
            r.set_id is not null and (c.quantity <> 'ctdivol' or
                (coalesce(r.phantom_stated, false) and r.phantom = c.phantom)) as is_comparable
     from with_ci as c
@@ -76,6 +85,11 @@ candidates as (
               and r.age_max_years is not distinct from c.stratum_high)
           or (c.stratum_basis = 'weight' and r.weight_min_kg = c.stratum_low
               and r.weight_max_kg is not distinct from c.stratum_high))
+    left join indication_counts as i
+      on i.indication = r.indication and i.device_key = c.device_key
+     and i.exam_type = c.exam_type and i.quantity = c.quantity and i.population = c.population
+     and i.site is not distinct from c.site and i.stratum is not distinct from c.stratum
+     and i.phantom is not distinct from c.phantom
     qualify row_number() over (partition by c.group_id
                                order by is_comparable desc, r.precedence nulls last) = 1
 ),
@@ -103,6 +117,8 @@ noted as (
                case when c.is_comparable and c.indication is not null then
                    'the reference is defined for the clinical indication "' || c.indication
                    || '"; this group holds every study the exam rules map to ' || c.exam_type
+                   || ' (' || c.n_indication_matched || ' of ' || c.n
+                   || ' marked with that indication by the indication rules)'
                end,
                case when c.is_comparable and c.is_fallback then
                    'fallback: a set of ' || c.issuing_body || ' (' || coalesce(c.country, '?')
@@ -139,6 +155,7 @@ select
     case when c.is_comparable then c.issuing_body end as reference_body,
     case when c.is_comparable then c.country end as reference_country,
     case when c.is_comparable then c.indication end as reference_indication,
+    case when c.is_comparable then c.n_indication_matched end as n_indication_matched,
     case when c.is_comparable then c.ref_population end as reference_population,
     c.reference_scope_note,
     coalesce(c.is_comparable and c.is_fallback, false) as is_fallback_reference,

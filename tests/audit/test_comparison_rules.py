@@ -174,6 +174,9 @@ def test_entrance_dose_column_feeds_only_the_entrance_quantity(radiographs, tmp_
                     "select *, 1000.0 + dose_rp_mgy as entrance_dose_mgy from event_copy")
         assert con.execute(sql("has_column"), {"relation": "irradiation_event",
                                                "column": "entrance_dose_mgy"}).fetchone()[0]
+        # the audit's temp table of study indications (none here)
+        con.execute("create temp table study_indication "
+                    "(study_key varchar, device_key varchar, indication varchar)")
         con.execute(sql("create_audit_input_with_entrance"))
         rows = con.execute("select a.quantity, a.value, e.dose_rp_mgy from audit_input as a "
                            "join event_copy as e on e.event_uid = a.event_uid "
@@ -226,3 +229,45 @@ def test_unknown_audit_setting_is_refused(tmp_path):
     config.write_text('[audit]\njurisdicton = "GB"\n')
     with pytest.raises(ConfigError, match="unknown \\[audit\\] key\\(s\\) jurisdicton"):
         load_audit_settings(config)
+
+
+def _studies(device: str, exam: str, n: int):
+    from synthetic_studies.generator import make_dataset
+    from synthetic_studies.sampling import make_study
+    from synthetic_studies.scenario import load_scenario
+
+    scenario, found = load_scenario(), []
+    for index in range(5000):
+        spec = make_study(scenario, 7, index, 5000, 3)
+        if spec.device == device and spec.exam == exam and spec.age_years >= 18:
+            found.append(make_dataset(scenario, spec, spec.reports[0]))
+            if len(found) == n:
+                return found
+    raise LookupError(device)
+
+
+def test_an_indication_rule_counts_the_studies_that_match_the_references_indication(tmp_path):
+    # UKHSA's adult CT head NDRL is defined for acute stroke (Table 1, "Clinical Indication");
+    # the shipped indication rule marks head CTs whose texts say "stroke"; a user rule adds more
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    studies = _studies("mph-ct1", "ct_head", 3)
+    studies[0].StudyDescription = "CT HEAD CODE STROKE"
+    studies[1].StudyDescription = "CT HEAD ?SAH"
+    for n, ds in enumerate(studies):
+        (inbox / f"head{n}.dcm").write_bytes(encode(ds))
+    db = tmp_path / "w.duckdb"
+    ingest([inbox], db, KEY)
+    run_audit(db, **PERIOD)
+    query = ("select n, reference_indication, n_indication_matched, reference_scope_note "
+             "from audit_medians where exam_type = 'ct_head' and quantity = 'dlp'")
+    with duckdb.connect(str(db), read_only=True) as con:
+        n, indication, matched, note = con.execute(query).fetchone()
+    assert (n, indication, matched) == (3, "acute stroke", 1)
+    assert "(1 of 3 marked with that indication by the indication rules)" in note
+    config = tmp_path / "kerma.toml"
+    config.write_text('[[indication_rule]]\nexam = "ct_head"\nindication = "acute stroke"\n'
+                      'any = ["sah"]\n')
+    run_audit(db, **PERIOD, config=config)
+    with duckdb.connect(str(db), read_only=True) as con:
+        assert con.execute(query).fetchone()[2] == 2
