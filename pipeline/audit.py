@@ -239,6 +239,20 @@ def _records(cursor) -> list[dict]:
     return [dict(zip(columns, row)) for row in cursor.fetchall()]
 
 
+def _audit_input_query(con) -> str:
+    """Which audit_input to build: entrance surface dose per radiograph when the ingest provides
+    irradiation_event.entrance_dose_mgy, else from study_dose.entrance_dose_total_mgy for
+    one-radiograph studies, else none (an entrance-dose reference is then never compared)."""
+    def has(relation: str, column: str) -> bool:
+        return con.execute(sql("has_column"), {"relation": relation, "column": column}).fetchone()[0]
+
+    if has("irradiation_event", "entrance_dose_mgy"):
+        return "create_audit_input_with_entrance"
+    if has("study_dose", "entrance_dose_total_mgy"):
+        return "create_audit_input_with_entrance_total"
+    return "create_audit_input"
+
+
 def _accumulated_ctdivol(con, first: dt.date, after: dt.date) -> list[dict]:
     """Per CT study: CTDIvol accumulated at a table position (NEMA XR 25), from the scanning
     ranges when the warehouse has them (TID 10014), else the labelled upper bound."""
@@ -354,9 +368,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             schema=pa.schema([("rule_id", pa.int64()), ("exam_type", pa.string()),
                               ("indication", pa.string()), ("phrase", pa.string())])))
         con.execute(sql("create_study_indication"))
-        has_entrance = con.execute(sql("has_column"), {"relation": "irradiation_event",
-                                                       "column": "entrance_dose_mgy"}).fetchone()[0]
-        con.execute(sql("create_audit_input_with_entrance" if has_entrance else "create_audit_input"))
+        con.execute(sql(_audit_input_query(con)))
         con.execute(sql("reference_in_force"))
         max_n = con.execute(sql("max_group_size"), {"date_from": first, "date_to": after}).fetchall()[0][0] or 1
         _register_temp(con, "median_ci_rank", pa.Table.from_pylist(median_ci_ranks(max_n), schema=_CI_SCHEMA))

@@ -271,3 +271,26 @@ def test_an_indication_rule_counts_the_studies_that_match_the_references_indicat
     run_audit(db, **PERIOD, config=config)
     with duckdb.connect(str(db), read_only=True) as con:
         assert con.execute(query).fetchone()[2] == 2
+
+
+def test_a_study_entrance_dose_total_is_used_only_for_one_radiograph_studies(radiographs, tmp_path):
+    # with only study_dose.entrance_dose_total_mgy (no per-event column), a one-radiograph
+    # study's total is that radiograph's entrance dose; a stand-in view supplies the column
+    import shutil
+
+    from pipeline.audit import _audit_input_query
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(radiographs, db)
+    with duckdb.connect(str(db)) as con:
+        assert _audit_input_query(con) == "create_audit_input"        # neither column yet
+        con.execute("create table study_copy as select * from study_dose")
+        con.execute("create or replace view study_dose as "
+                    "select *, 2000.0 + dose_rp_total_mgy as entrance_dose_total_mgy from study_copy")
+        assert _audit_input_query(con) == "create_audit_input_with_entrance_total"
+        con.execute("create temp table study_indication "
+                    "(study_key varchar, device_key varchar, indication varchar)")
+        con.execute(sql("create_audit_input_with_entrance_total"))
+        rows = con.execute("select a.quantity, a.value, s.dose_rp_total_mgy, s.event_count "
+                           "from audit_input as a join study_copy as s using (study_key, device_key) "
+                           "where a.quantity = 'ka_e'").fetchall()
+    assert rows and all(v == 2000.0 + rp and n == 1 for _, v, rp, n in rows)
