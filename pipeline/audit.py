@@ -331,7 +331,32 @@ def study_estimates(rows, settings: AuditSettings) -> list[dict]:
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
               date_to: dt.date | None = None, reference_sets: list[str] | None = None,
               settings: AuditSettings | None = None, config: Path | None = None) -> AuditSummary:
-    """Compute the audit tables for the period; returns what the summary prints."""
+    """Compute the audit tables for the period; returns what the summary prints.
+
+    Parameters
+    ----------
+    warehouse : Path
+        DuckDB warehouse file.
+    period, date_from, date_to
+        ``YYYY-MM``, or the first and last day (see `period_bounds`).
+    reference_sets : list of str, optional
+        Reference sets in order of precedence; overrides ``[audit]`` in `config` (see
+        pipeline/jurisdiction.py for the default: one jurisdiction, one issuing body).
+    settings : AuditSettings, optional
+        Overrides the ``[audit]`` table of `config`.
+    config : Path, optional
+        kerma.toml: ``[audit]``, ``[[exam_rule]]``, ``[[indication_rule]]``, ``[[alert_rule]]``.
+
+    Returns
+    -------
+    AuditSummary
+
+    Raises
+    ------
+    ConfigError
+        A bad period, setting or rule, an unknown reference set, or a jurisdiction with no set
+        in force in the period.
+    """
     from .exams import EXAM_TYPES
     from .jurisdiction import choose_reference_sets
     from .reference_store import install_reference_sets
