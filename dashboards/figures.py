@@ -242,9 +242,11 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         counts = {room: {} for room in rooms}
         for s, r, pop, n in zip(part["site_label"], part["room_label"], part["population"], part["n"], strict=True):
             counts[(s, r)][pop] = int(n)
+        # adult, paediatric, unknown age (its own group), all (mammography: no age split)
+        present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
-            f"{counts[room].get(pop, 0)}" for pop in ("adult", "paediatric")) for room in rooms}
-        for population in ("adult", "paediatric"):
+            f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
+        for population in present:
             for adequate in (True, False):
                 sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)]
                 if sel.empty:
@@ -388,32 +390,34 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     return _layout(fig, title, height=40 + 290 * len(panels))
 
 
+_POPULATION_ORDER = ("adult", "paediatric", "unknown_age", "all")
+
+
 # --- site comparison: funnel ----------------------------------------------------------------
 def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Mapping[str, str],
                  title: str) -> go.Figure:
-    """Ratio of each room median to its reference level against the number of exams.
+    """Ratio of each room median to the network typical value against the number of exams.
 
     Expects rows of ``dash_funnel_points.sql`` for one quantity (site_label, room_label,
-    exam_label, population, n, ratio_to_reference, is_sample_adequate, funnel_zone, unit,
-    quantity, median, reference_value) and of ``dash_funnel_limits.sql`` (n, lower_998,
-    lower_95, upper_95, upper_998). Both axes are logarithmic; the line at ratio 1 is the
-    reference level; groups above the 99.8 % limit are labelled.
+    exam_label, population, n, ratio_to_typical, reference_ratio_to_typical,
+    is_sample_adequate, funnel_zone, unit, quantity, median, typical_value, reference_value)
+    and of ``dash_funnel_limits.sql`` (n, upper_95, upper_998). Both axes are logarithmic; the
+    line at ratio 1 is the network typical value (ICRP 135); each group's reference level, where
+    one applies, is its own mark; groups above the 99.8 % limit are labelled.
     """
     _require(points, ["site_label", "room_label", "exam_label", "population", "n",
-                      "ratio_to_reference", "is_sample_adequate", "funnel_zone", "quantity",
-                      "unit", "median", "reference_value"], "build_funnel")
+                      "ratio_to_typical", "reference_ratio_to_typical", "is_sample_adequate",
+                      "funnel_zone", "quantity", "unit", "median", "typical_value",
+                      "reference_value"], "build_funnel")
     quantity, unit = str(points["quantity"].iloc[0]), points["unit"].iloc[0]
     fig = go.Figure()
     if not limits.empty:
         lim = limits.sort_values("n")
         n = [int(v) for v in lim["n"]]
-        for column, name, dash in (("upper_998", "99.8 % control limits", "dot"),
-                                   ("upper_95", "95 % control limits", "dash"),
-                                   ("lower_95", "95 % control limits", "dash"),
-                                   ("lower_998", "99.8 % control limits", "dot")):
+        for column, name, dash in (("upper_998", "99.8 % upper control limit", "dot"),
+                                   ("upper_95", "95 % upper control limit", "dash")):
             fig.add_trace(go.Scatter(
-                name=name, legendgroup=name, showlegend=column.startswith("upper"),
-                mode="lines", x=n, y=[_num(v) for v in lim[column]],
+                name=name, legendgroup=name, mode="lines", x=n, y=[_num(v) for v in lim[column]],
                 line={"color": NETWORK_COLOUR, "dash": dash, "width": 1.5},
                 hovertemplate="n %{x}: limit %{y:.3f}<extra>" + name + "</extra>",
             ))
@@ -421,9 +425,20 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
     else:
         x_max = int(points["n"].max()) * 2
     fig.add_trace(go.Scatter(
-        name="Reference level (ratio 1)", mode="lines", x=[1, x_max], y=[1.0, 1.0],
-        line={"color": REFERENCE_COLOUR, "width": 2}, hoverinfo="skip",
+        name="Network typical value (ratio 1)", mode="lines", x=[1, x_max], y=[1.0, 1.0],
+        line={"color": NETWORK_COLOUR, "width": 2}, hoverinfo="skip",
     ))
+    refs = points[[not _missing(v) for v in points["reference_ratio_to_typical"]]]
+    if not refs.empty:
+        fig.add_trace(go.Scatter(
+            name="Reference level of the group", mode="markers",
+            x=[int(v) for v in refs["n"]], y=[_num(v) for v in refs["reference_ratio_to_typical"]],
+            marker={"color": REFERENCE_COLOUR, "symbol": "line-ew-open", "size": 18,
+                    "line": {"color": REFERENCE_COLOUR, "width": 2}},
+            customdata=[[e, _fmt(r)] for e, r in zip(refs["exam_label"], refs["reference_value"], strict=True)],
+            hovertemplate="%{customdata[0]}: reference level %{customdata[1]} " + unit_label(unit)
+                          + " = %{y:.2f} x typical<extra></extra>",
+        ))
     for site in sorted(points["site_label"].unique()):
         part = points[points["site_label"] == site]
         colour = _site_colour(site_colours, site)
@@ -431,25 +446,27 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         labelled = [z == "above 99.8 % limit" for z in part["funnel_zone"]]
         fig.add_trace(go.Scatter(
             name=site, legendgroup=site, mode="markers+text",
-            x=[int(v) for v in part["n"]], y=[_num(v) for v in part["ratio_to_reference"]],
+            x=[int(v) for v in part["n"]], y=[_num(v) for v in part["ratio_to_typical"]],
             marker={"color": colour, "size": 11, "line": {"color": colour, "width": 2},
                     "symbol": ["circle" if a else INSUFFICIENT_SYMBOL for a in adequate]},
             text=[f"{e} · {r}" if lab else "" for e, r, lab in
                   zip(part["exam_label"], part["room_label"], labelled, strict=True)],
             textposition="middle left", textfont={"size": 10, "color": colour},
-            customdata=[[e, r, p, z, _fmt(m), _fmt(ref)] for e, r, p, z, m, ref in
+            customdata=[[e, r, p, z, _fmt(m), _fmt(t)] for e, r, p, z, m, t in
                         zip(part["exam_label"], part["room_label"], part["population"],
-                            part["funnel_zone"], part["median"], part["reference_value"], strict=True)],
+                            part["funnel_zone"], part["median"], part["typical_value"], strict=True)],
             hovertemplate=("%{customdata[0]} (%{customdata[2]})<br>%{customdata[1]} · " + site
-                           + "<br>median %{customdata[4]} / reference %{customdata[5]} "
+                           + "<br>median %{customdata[4]} / network typical %{customdata[5]} "
                            + unit_label(unit) + " = %{y:.2f}<br>n %{x}: %{customdata[3]}<extra></extra>"),
         ))
-    ratios = [v for v in points["ratio_to_reference"] if not _missing(v) and v > 0]
-    lo = min([*ratios, *([v for v in limits["lower_998"]] if not limits.empty else []), 0.5])
+    ratios = [v for v in [*points["ratio_to_typical"], *points["reference_ratio_to_typical"]]
+              if not _missing(v) and v > 0]
+    lo = min([*ratios, 0.5])
     hi = max([*ratios, *([v for v in limits["upper_998"]] if not limits.empty else []), 2.0])
     fig.update_xaxes(title={"text": "Exams in the room's audit group (count, log scale)"},
                      type="log", range=[0, math.log10(x_max * 1.05)], **_log_ticks([1, x_max]))
-    fig.update_yaxes(title={"text": f"{quantity_name(quantity)}: median ÷ reference (ratio, log scale)"},
+    fig.update_yaxes(title={"text": f"{quantity_name(quantity)}: median ÷ network typical value "
+                                    "(ratio, log scale)"},
                      type="log", range=[math.log10(lo) - 0.05, math.log10(hi) + 0.05],
                      **_log_ticks([lo, hi], fine=True))
     return _layout(fig, title, height=460)

@@ -372,12 +372,14 @@ def _room_flags(row: pd.Series) -> list[str]:
 
 
 _ROOM_COLUMNS = (
-    Column("exam_label", "Exam type"), Column("population", "Population"),
+    Column("exam_label", "Exam type"), Column("population", "Population"), Column("stratum", "Band"),
     Column("site_label", "Site"), Column("room_label", "Room"), Column("quantity", "Quantity", "quantity"),
-    Column("unit", "Unit", "unit"), Column("n", "n", "int"), Column("median", "Median", "num"),
+    Column("unit", "Unit", "unit"), Column("n", "n", "int"), Column("min_sample", "Minimum n", "int"),
+    Column("median", "Median", "num"),
     Column("median_ci_low", "95 % CI low", "num"), Column("median_ci_high", "95 % CI high", "num"),
     Column("reference_value", "Reference", "num"), Column("ratio_to_reference", "Ratio", "ratio"),
     Column("network_p75", "Network P75", "num"), Column("reference_set", "Set"),
+    Column("reference_scope_note", "What the comparison means"),
 )
 
 
@@ -485,8 +487,9 @@ def _reference_levels(data: SiteData, site_colours: dict[str, str]) -> Page:
             title = f"{family}: {quantity_name(q)}, {pop} patients"
             caption = (f"{len(rows)} room groups; {n_ref} with a reference value. Dot: room median; bar: "
                        "95 % confidence interval of the median (order statistics); vertical tick: reference "
-                       "level (one colour per set); grey diamond: the network's 75th percentile of room medians (its own "
-                       "ICRP 135 reference value). Open dot: fewer exams than the audit minimum.")
+                       "level (one colour per set); grey diamond: the network's 75th percentile of room medians (a local "
+                       "DRL in the sense of ICRP 135 only when it comes from at least 10 rooms). Open dot: fewer "
+                       "exams than the audit minimum.")
             blocks.append(Plot(f"fig-ref-{slug(family, q, pop)}",
                                figures.build_reference_comparison(rows, site_colours=site_colours, title=title),
                                _e(caption)))
@@ -495,14 +498,18 @@ def _reference_levels(data: SiteData, site_colours: dict[str, str]) -> Page:
                   data.room_medians, _ROOM_COLUMNS, flags=_room_flags)
     network = Table("reference-network", "Network values per exam type (ICRP 135)", data.network,
                     (Column("exam_label", "Exam type"), Column("population", "Population"),
+                     Column("stratum", "Band"),
                      Column("quantity", "Quantity", "quantity"), Column("unit", "Unit", "unit"),
                      Column("n_rooms", "Rooms (adequate)", "int"), Column("n_rooms_all", "Rooms (all)", "int"),
                      Column("n_exams", "Exams", "int"), Column("typical_value", "Typical (median of medians)", "num"),
                      Column("p75_of_room_medians", "75th percentile of medians", "num"),
+                     Column("local_drl", "Local DRL (>= 10 rooms)", "num"),
                      Column("reference_value", "Reference", "num"),
                      Column("ratio_p75_to_reference", "P75 ÷ reference", "ratio"),
-                     Column("reference_set", "Set")),
-                    note="The network's 75th percentile uses only rooms with an adequate sample.")
+                     Column("reference_set", "Set"), Column("reference_scope_note", "What the comparison means")),
+                    note="The network's 75th percentile uses only rooms with an adequate sample; it is a "
+                         "local DRL (ICRP 135) only when it comes from at least min_rooms_local_drl rooms "
+                         "(default 10). With fewer rooms, compare with the typical value.")
     if not sections:
         sections.append(Section("none", "No audited groups", (_empty(
             "No exam in the period maps to a standard exam type with a dose value."),)))
@@ -584,9 +591,10 @@ _FUNNEL_COLUMNS = (
     Column("rank", "Rank", "int"), Column("site_label", "Site"), Column("room_label", "Room"),
     Column("exam_label", "Exam type"), Column("population", "Population"),
     Column("quantity", "Quantity", "quantity"), Column("unit", "Unit", "unit"), Column("n", "n", "int"),
-    Column("median", "Median", "num"), Column("reference_value", "Reference", "num"),
-    Column("ratio_to_reference", "Ratio", "ratio"), Column("z", "z", "ratio"),
-    Column("funnel_zone", "Funnel position"), Column("reference_set", "Set"),
+    Column("median", "Median", "num"), Column("typical_value", "Network typical", "num"),
+    Column("ratio_to_typical", "Ratio to typical", "ratio"), Column("z", "z", "ratio"),
+    Column("funnel_zone", "Funnel position"), Column("reference_value", "Reference", "num"),
+    Column("ratio_to_reference", "Ratio to reference", "ratio"), Column("reference_set", "Set"),
 )
 
 
@@ -605,17 +613,20 @@ def _sites(data: SiteData, site_colours: dict[str, str]) -> Page:
         blocks.append(Plot(f"fig-funnel-{slug(q)}",
                            figures.build_funnel(part, lim, site_colours=site_colours,
                                                 title=f"{quantity_name(q)} ({unit_label(part['unit'].iloc[0])}): "
-                                                      "ratio to the reference level"),
-                           _e(f"Each point is one room and exam type. Control limits around the reference "
-                              f"level (ratio 1) at 95 % and 99.8 %, for log-normal doses with {s_text}. "
-                              "A point above the upper 99.8 % limit is above the reference level by more "
-                              "than sampling noise explains. Open marker: fewer exams than the audit minimum.")))
+                                                      "ratio to the network typical value"),
+                           _e(f"Each point is one room and exam type. Upper control limits above the "
+                              f"network typical value (ratio 1, the median of the room medians, ICRP 135) "
+                              f"at 95 % and 99.8 %, for log-normal doses with {s_text}. A point above the "
+                              "99.8 % limit is above the network's typical value by more than sampling noise "
+                              "explains; only such points are counted. The reference level of each group, "
+                              "where one applies, is its own red mark. Open marker: fewer exams than the "
+                              "audit minimum.")))
     if not blocks:
-        blocks.append(_empty("No audited group has a reference value in the chosen sets, so there is no "
-                             "funnel to draw; the network's own values are on the reference-levels page."))
+        blocks.append(_empty("No audited group has a network typical value (too few adequate samples), so "
+                             "there is no funnel to draw."))
     ranked_rows = points.assign(rank=range(1, len(points) + 1)) if not points.empty \
         else points.assign(rank=pd.Series(dtype="int64"))
-    ranked = Table("sites-ranked", "Ranked: room groups by ratio to the reference level", ranked_rows,
+    ranked = Table("sites-ranked", "Ranked: room groups by ratio to the network typical value", ranked_rows,
                    _FUNNEL_COLUMNS, flags=_room_flags)
     summary = Table("sites-summary", "Per site", data.site_summary,
                     (Column("site_label", "Site"), Column("n_rooms", "Rooms", "int"),
@@ -623,12 +634,12 @@ def _sites(data: SiteData, site_colours: dict[str, str]) -> Page:
                      Column("n_above_reference", "Above reference", "int"),
                      Column("n_above_998", "Above 99.8 % limit", "int"),
                      Column("n_above_95", "Above 95 % limit only", "int"),
-                     Column("n_below_95", "Below 95 % limit", "int"),
                      Column("n_insufficient", "Too few exams", "int"),
                      Column("median_ratio", "Median ratio", "ratio"), Column("max_ratio", "Highest ratio", "ratio")))
     return Page("sites.html", "Site comparison", PAGES[4][2],
-                "Every room's median relative to its reference level, against the number of exams behind "
-                "it. Few exams give a wide funnel: a high ratio from a small sample may be chance.",
+                "Every room's median relative to the network's typical value, against the number of exams "
+                "behind it; reference levels are marked separately. Few exams give a wide funnel: a high "
+                "ratio from a small sample may be chance.",
                 (Section("funnel", "Funnel plots", (*blocks, DataLink("sites-funnel-limits", "control limits",
                                                                       data.funnel_limits))),
                  Section("summary", "Per site", (summary,)),
@@ -639,9 +650,12 @@ _ALERT_COLUMNS = (
     Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "key"),
     Column("patient_key", "Patient (pseudonym)", "key"), Column("site_label", "Site"),
     Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule", "Rule"),
+    Column("action", "Action"),
     Column("quantity", "Quantity", "quantity"), Column("value", "Value", "num"),
     Column("threshold", "Threshold", "num"), Column("unit", "Unit", "unit"),
-    Column("factor", "× threshold", "ratio"), Column("source", "Source of the threshold"),
+    Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed"),
+    Column("threshold_verified", "Threshold read in its source", "bool"),
+    Column("source", "Source of the threshold"),
 )
 
 

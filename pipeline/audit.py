@@ -18,31 +18,95 @@ import pyarrow as pa
 from queries import sql
 
 from .errors import ConfigError
-from .exams import load_exam_rules, rule_rows
+from .exams import load_exam_rules, load_indication_rules, rule_rows
 from .metrics import detect_drift, median_ci_ranks
 from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
-__all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "period_bounds", "run_audit"]
+__all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
+           "period_bounds", "run_audit"]
+
+
+def _default_min_sample() -> dict[str, int]:
+    from .strata import MIN_SAMPLE
+    return {modality: n for modality, (n, _) in MIN_SAMPLE.items()}
 
 
 @dataclass(frozen=True)
 class AuditSettings:
-    """Audit parameters; every default says where it comes from."""
+    """Audit parameters; every default says where it comes from (kerma.toml ``[audit]``)."""
 
     adult_min_age_years: float = 16.0     # common practice (UK adult NDRLs), no source
     standard_weight_min_kg: float = 50.0  # ICRP Publication 135: standard-size adult 50-90 kg
     standard_weight_max_kg: float = 90.0
-    min_sample: int = 20                  # ICRP 135 guidance (~20 patients per room; from memory)
+    # per modality; pipeline/strata.py MIN_SAMPLE gives each default's source (from memory)
+    min_sample: dict[str, int] = field(default_factory=_default_min_sample)
+    min_rooms_local_drl: int = 10         # ICRP 135: a local DRL from a reasonable number of rooms (10-20)
+    mammography_thickness_band_mm: float = 10.0  # common practice, no source
+    jurisdiction: str | None = None       # ISO 3166-1 alpha-2; None: one issuing body, see jurisdiction.py
+    reference_sets: tuple[str, ...] = ()  # explicit sets, in order of precedence
+    fallback: tuple[str, ...] = ()        # countries or set ids that fill gaps, labelled
     well_below_fraction: float = 0.5      # common practice, no source: review image quality
     outlier_min_n: int = 10               # common practice, no source
     drift_alpha: float = 0.001            # Bonferroni-corrected two-sided p
     drift_min_change: float = 0.2         # 20 % change of the median (common practice, no source)
     drift_min_n_side: int = 10
-    effective_dose_basis: str = "ICRP 60"  # the k factors most DRL literature quotes
+    # ICRP Publication 103 (2007) tissue weighting factors are the current ones; "ICRP 60" on request
+    effective_dose_basis: str = "ICRP 103"
     # AAPM 204 fit coefficients are corroborated by secondary sources only (see
     # queries/seeds/ssde_coefficients.csv); used, and the method says so.
     ssde_use_unverified_fit: bool = True
+
+
+_SETTING_KEYS = {"adult_min_age_years", "standard_weight_min_kg", "standard_weight_max_kg",
+                 "min_sample", "min_rooms_local_drl", "mammography_thickness_band_mm",
+                 "jurisdiction", "reference_sets", "fallback", "well_below_fraction",
+                 "outlier_min_n", "effective_dose_basis"}
+
+
+def load_audit_settings(user_config: Path | None = None) -> AuditSettings:
+    """AuditSettings from the ``[audit]`` table of kerma.toml (defaults for what it omits).
+
+    Example::
+
+        [audit]
+        jurisdiction = "GB"            # or reference_sets = ["ukhsa_adult_ct_2022"]
+        fallback = ["AU"]              # optional: another body's sets fill gaps, labelled
+        min_rooms_local_drl = 10
+        min_sample = { CT = 30 }       # per modality; others keep their defaults
+        effective_dose_basis = "ICRP 103"
+
+    Raises
+    ------
+    ConfigError
+        Unknown key, or a value of the wrong kind, naming the file.
+    """
+    defaults = AuditSettings()
+    if user_config is None or not Path(user_config).exists():
+        return defaults
+    try:
+        raw = tomllib.loads(Path(user_config).read_text(encoding="utf-8")).get("audit", {})
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{user_config} is not valid TOML: {exc}") from exc
+    unknown = set(raw) - _SETTING_KEYS
+    if unknown:
+        raise ConfigError(f"{user_config}: unknown [audit] key(s) {', '.join(sorted(unknown))} "
+                          f"(known: {', '.join(sorted(_SETTING_KEYS))})")
+    values = dict(raw)
+    if "min_sample" in values:
+        if not isinstance(values["min_sample"], dict) or not all(
+                isinstance(v, int) and v > 0 for v in values["min_sample"].values()):
+            raise ConfigError(f"{user_config}: [audit] min_sample must map modalities to positive "
+                              f"integers, e.g. min_sample = {{ CT = 30 }}")
+        values["min_sample"] = {**defaults.min_sample,
+                                **{k.upper(): v for k, v in values["min_sample"].items()}}
+    for key in ("reference_sets", "fallback"):
+        if key in values:
+            item = values[key]
+            values[key] = (item,) if isinstance(item, str) else tuple(item)
+    if values.get("effective_dose_basis", "ICRP 103") not in ("ICRP 60", "ICRP 103"):
+        raise ConfigError(f"{user_config}: [audit] effective_dose_basis must be 'ICRP 103' or 'ICRP 60'")
+    return AuditSettings(**values)
 
 
 @dataclass
@@ -52,8 +116,15 @@ class AuditSummary:
     date_to: dt.date
     reference_sets: list[str]
     n_studies: int = 0
+    reference_body: str = ""
+    reference_basis: str = ""
+    fallback_sets: list[str] = field(default_factory=list)
+    min_sample: dict[str, int] = field(default_factory=dict)
+    min_rooms_local_drl: int = 10
     n_unmapped: int = 0
     n_groups: int = 0
+    n_compared: int = 0      # groups compared with a reference level (the rest: reference_scope_note)
+    n_too_few: int = 0       # groups below the minimum sample of their modality
     exceedances: list[dict] = field(default_factory=list)
     alerts_by_rule: dict[str, int] = field(default_factory=dict)
     drift: list[dict] = field(default_factory=list)
@@ -80,8 +151,24 @@ def period_bounds(period: str | None = None, date_from: dt.date | None = None,
     raise ConfigError("give --period YYYY-MM, or both --from and --to")
 
 
+_ACTIONS = ("patient_follow_up", "protocol_review", "statistical_review")
+_RULE_KEYS = {"rule", "family", "action", "quantity", "threshold", "unit", "source", "verified",
+              "seed_rule", "protocol_family", "population", "age_min_years", "age_max_years",
+              "phantom", "event_type"}
+
+
 def load_alert_rules(user_config: Path | None = None) -> list[dict]:
-    """Default alert rules (pipeline/alert_rules.toml), overridden by kerma.toml [[alert_rule]]."""
+    """Default alert rules (pipeline/alert_rules.toml), overridden by kerma.toml [[alert_rule]].
+
+    A user's rule is taken as verified unless it says ``verified = false``; a default recalled
+    from memory carries ``verified = false`` (dose_alerts.threshold_verified) and says so in
+    its source text.
+
+    Raises
+    ------
+    ConfigError
+        A user rule without a name, lacking a required key, with an unknown key or action.
+    """
     text = resources.files(__package__).joinpath("alert_rules.toml").read_text("utf-8")
     rules = {r["rule"]: dict(r) for r in tomllib.loads(text)["rule"]}
     if user_config is not None and Path(user_config).exists():
@@ -89,19 +176,36 @@ def load_alert_rules(user_config: Path | None = None) -> list[dict]:
         for r in raw.get("alert_rule", []):
             if "rule" not in r:
                 raise ConfigError(f"{user_config}: every [[alert_rule]] needs a `rule` name")
-            merged = {**rules.get(r["rule"], {}), **r}
-            missing = {"family", "quantity", "threshold", "unit", "source"} - set(merged)
+            unknown = set(r) - _RULE_KEYS
+            if unknown:
+                raise ConfigError(f"{user_config}: alert rule {r['rule']!r} has unknown key(s) "
+                                  f"{', '.join(sorted(unknown))}")
+            base = rules.get(r["rule"], {})
+            merged = {**base, "verified": True, **r} if set(r) - {"rule"} else {**base, **r}
+            missing = {"family", "action", "quantity", "threshold", "unit", "source"} - set(merged)
             if missing:
                 raise ConfigError(f"{user_config}: alert rule {r['rule']!r} lacks {', '.join(sorted(missing))}")
             rules[r["rule"]] = merged
-    return [{"rule": k, "family": v["family"], "quantity": v["quantity"],
+    for name, v in rules.items():
+        if v.get("action") not in _ACTIONS:
+            raise ConfigError(f"alert rule {name!r}: action must be one of {', '.join(_ACTIONS)}")
+    return [{"rule": k, "family": v["family"], "action": v["action"], "quantity": v["quantity"],
              "phantom": v.get("phantom"), "threshold": float(v["threshold"]), "unit": v["unit"],
-             "source": v["source"]} for k, v in rules.items()]
+             "source": v["source"], "verified": bool(v.get("verified", False)),
+             "protocol_family": v.get("protocol_family"), "population": v.get("population", "any"),
+             "age_min_years": v.get("age_min_years"), "age_max_years": v.get("age_max_years"),
+             "event_type": v.get("event_type")} for k, v in rules.items()]
 
 
-_ALERT_SCHEMA = pa.schema([("rule", pa.string()), ("family", pa.string()), ("quantity", pa.string()),
-                           ("phantom", pa.string()), ("threshold", pa.float64()),
-                           ("unit", pa.string()), ("source", pa.string())])
+_ALERT_SCHEMA = pa.schema([("rule", pa.string()), ("family", pa.string()), ("action", pa.string()),
+                           ("quantity", pa.string()), ("phantom", pa.string()),
+                           ("threshold", pa.float64()), ("unit", pa.string()),
+                           ("source", pa.string()), ("verified", pa.bool_()),
+                           ("protocol_family", pa.string()), ("population", pa.string()),
+                           ("age_min_years", pa.float64()), ("age_max_years", pa.float64()),
+                           ("event_type", pa.string())])
+_ACCUMULATED_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
+                                 ("accumulated_ctdivol_mgy", pa.float64()), ("method", pa.string())])
 _DRIFT_SCHEMA = pa.schema(
     [("period", pa.string()), ("device_key", pa.string()), ("site", pa.string()),
      ("exam_type", pa.string()), ("quantity", pa.string()), ("unit", pa.string()),
@@ -116,6 +220,8 @@ _ESTIMATE_SCHEMA = pa.schema(
      ("effective_dose_msv", pa.float64()), ("k_msv_per_mgy_cm", pa.float64()),
      ("effective_dose_basis", pa.string()), ("effective_dose_source", pa.string()),
      ("ssde_mgy", pa.float64()), ("ssde_method", pa.string())])
+_BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
+                          ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
 
 
@@ -127,51 +233,81 @@ def _register_temp(con, name: str, table: pa.Table) -> None:
         con.unregister(f"incoming_{name}")
 
 
+def _records(cursor) -> list[dict]:
+    """Rows of an executed query as dicts; NULL stays None (pandas would make it NaN, a float)."""
+    columns = [d[0] for d in cursor.description]
+    return [dict(zip(columns, row)) for row in cursor.fetchall()]
+
+
+def _accumulated_ctdivol(con, first: dt.date, after: dt.date) -> list[dict]:
+    """Per CT study: CTDIvol accumulated at a table position (NEMA XR 25), from the scanning
+    ranges when the warehouse has them (TID 10014), else the labelled upper bound."""
+    from itertools import groupby
+
+    from .metrics import accumulated_ctdivol_by_position
+
+    has_positions = all(con.execute(sql("has_column"), {"relation": "irradiation_event", "column": c}
+                                    ).fetchone()[0]
+                        for c in ("top_z_scanning_length_mm", "bottom_z_scanning_length_mm"))
+    query = "select_ct_dose_check_events" + ("_with_positions" if has_positions else "")
+    rows = con.execute(sql(query), {"date_from": first, "date_to": after}).fetchall()
+    out = []
+    for (study_key, device_key), events in groupby(rows, key=lambda r: (r[0], r[1])):
+        value, method = accumulated_ctdivol_by_position((c, a, b) for _, _, c, a, b in events)
+        out.append({"study_key": study_key, "device_key": device_key,
+                    "accumulated_ctdivol_mgy": value, "method": method})
+    return out
+
+
 def _months_before(day: dt.date, months: int) -> dt.date:
     index = day.year * 12 + day.month - 1 - months
     return dt.date(index // 12, index % 12 + 1, 1) if day.day == 1 else \
         dt.date(index // 12, index % 12 + 1, min(day.day, 28))
 
 
-def study_estimates(frame, settings: AuditSettings) -> list[dict]:
+def study_estimates(rows, settings: AuditSettings) -> list[dict]:
     """Per CT study: effective-dose estimate E = k x DLP (region from the exam type, k by age;
     a population-average quantity, not an individual's risk) and SSDE (reported by the device,
-    else AAPM Report 204 fit at the water-equivalent diameter, AAPM Report 220)."""
+    else AAPM Report 204 fit at the water-equivalent diameter, AAPM Report 220).
+
+    `rows` are mappings (one per CT study, columns of queries/audit/select_ct_for_estimates.sql)
+    whose missing values are None, never NaN: a study no exam rule maps has exam_type None and
+    gets no effective-dose estimate (its region is unknown), but still its SSDE.
+    """
     from .exams import EXAM_TYPES
     from .reference import UnverifiedReferenceError, effective_dose_msv, ssde_conversion_factor
 
     out = []
-    for r in frame.itertuples(index=False):
-        exam = EXAM_TYPES.get(r.exam_type) if r.exam_type else None
+    for r in rows:
+        exam = EXAM_TYPES.get(r["exam_type"]) if r["exam_type"] is not None else None
+        dlp, age = r["dlp_total_mgy_cm"], r["patient_age_years"]
         e = k = basis = source = None
-        age = r.patient_age_years if r.patient_age_years == r.patient_age_years else None
-        if exam and exam.region and r.dlp_total_mgy_cm == r.dlp_total_mgy_cm and r.dlp_total_mgy_cm is not None:
+        if exam and exam.region and dlp is not None:
             try:
-                e, basis, source = effective_dose_msv(float(r.dlp_total_mgy_cm), exam.region,
+                e, basis, source = effective_dose_msv(float(dlp), exam.region,
                                                       age if age is not None else 40.0,
                                                       basis=settings.effective_dose_basis)
-                k = e / r.dlp_total_mgy_cm if r.dlp_total_mgy_cm else None
+                k = e / dlp if dlp else None
                 if age is None:
                     source += " (age unknown: adult coefficient)"
             except (ValueError, UnverifiedReferenceError):
                 e = None
         ssde, method = None, None
-        if r.reported_ssde_mgy == r.reported_ssde_mgy and r.reported_ssde_mgy is not None:
-            ssde, method = float(r.reported_ssde_mgy), "reported by the device (TID 10013)"
-        elif (r.water_equivalent_diameter_mm == r.water_equivalent_diameter_mm
-              and r.water_equivalent_diameter_mm is not None and r.ctdi_phantom in ("head_16cm", "body_32cm")
-              and r.ctdivol_mgy == r.ctdivol_mgy and r.ctdivol_mgy is not None):
+        dw, ctdivol = r["water_equivalent_diameter_mm"], r["ctdivol_mgy"]
+        if r["reported_ssde_mgy"] is not None:
+            ssde, method = float(r["reported_ssde_mgy"]), "reported by the device (TID 10013)"
+        elif dw is not None and r["ctdi_phantom"] in ("head_16cm", "body_32cm") and ctdivol is not None:
             try:
-                f = ssde_conversion_factor(r.water_equivalent_diameter_mm / 10.0, r.ctdi_phantom,
+                f = ssde_conversion_factor(dw / 10.0, r["ctdi_phantom"],
                                            include_unverified=settings.ssde_use_unverified_fit)
-                ssde = f * r.ctdivol_mgy
-                method = (f"AAPM Report 204 fit at Dw {r.water_equivalent_diameter_mm:.0f} mm "
-                          f"(AAPM Report 220), f = {f:.3f}")
+                ssde = f * ctdivol
+                method = (f"AAPM Report 204 fit at Dw {dw:.0f} mm "
+                          f"(AAPM Report 220), f = {f:.3f}; fit corroborated by secondary sources")
             except (ValueError, UnverifiedReferenceError):
                 ssde = None
-        out.append({"study_key": r.study_key, "patient_key": r.patient_key,
-                    "device_key": r.device_key, "exam_type": r.exam_type,
-                    "study_date": r.study_date, "dlp_total_mgy_cm": r.dlp_total_mgy_cm,
+        out.append({"study_key": r["study_key"], "patient_key": r["patient_key"],
+                    "device_key": r["device_key"], "exam_type": r["exam_type"],
+                    "study_date": r["study_date"], "dlp_total_mgy_cm": dlp,
                     "effective_dose_msv": e, "k_msv_per_mgy_cm": k,
                     "effective_dose_basis": basis, "effective_dose_source": source,
                     "ssde_mgy": ssde, "ssde_method": method})
@@ -181,26 +317,69 @@ def study_estimates(frame, settings: AuditSettings) -> list[dict]:
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
               date_to: dt.date | None = None, reference_sets: list[str] | None = None,
               settings: AuditSettings | None = None, config: Path | None = None) -> AuditSummary:
-    """Compute the audit tables for the period; returns what the summary prints."""
-    from .reference_store import install_reference_sets
+    """Compute the audit tables for the period; returns what the summary prints.
 
-    settings = settings or AuditSettings()
+    Parameters
+    ----------
+    warehouse : Path
+        DuckDB warehouse file.
+    period, date_from, date_to
+        ``YYYY-MM``, or the first and last day (see `period_bounds`).
+    reference_sets : list of str, optional
+        Reference sets in order of precedence; overrides ``[audit]`` in `config` (see
+        pipeline/jurisdiction.py for the default: one jurisdiction, one issuing body).
+    settings : AuditSettings, optional
+        Overrides the ``[audit]`` table of `config`.
+    config : Path, optional
+        kerma.toml: ``[audit]``, ``[[exam_rule]]``, ``[[indication_rule]]``, ``[[alert_rule]]``.
+
+    Returns
+    -------
+    AuditSummary
+
+    Raises
+    ------
+    ConfigError
+        A bad period, setting or rule, an unknown reference set, or a jurisdiction with no set
+        in force in the period.
+    """
+    from .exams import EXAM_TYPES
+    from .jurisdiction import choose_reference_sets
+    from .reference_store import install_reference_sets
+    from .strata import stratum_basis, stratum_bands
+
+    settings = settings or load_audit_settings(config)
     first, after, label = period_bounds(period, date_from, date_to)
     with connection(warehouse) as con:
         ensure_schema(con)
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
-        available = install_reference_sets(con)
-        chosen = reference_sets or [s for s in available if available[s]]
-        unknown = [s for s in chosen if s not in available]
-        if unknown:
-            raise ConfigError(f"unknown reference set(s): {', '.join(unknown)}; "
-                              f"available: {', '.join(sorted(available))}")
-        con.register("incoming_chosen", pa.table({"set_id": chosen,
-                                                  "precedence": list(range(1, len(chosen) + 1))}))
-        try:
-            con.execute(sql("create_chosen_reference_set"))
-        finally:
-            con.unregister("incoming_chosen")
+        install_reference_sets(con)
+        choice = choose_reference_sets(
+            _records(con.execute(sql("select_reference_set_meta"))), first,
+            after - dt.timedelta(days=1), explicit=reference_sets or list(settings.reference_sets),
+            jurisdiction=settings.jurisdiction, fallback=settings.fallback)
+        chosen = choice.ordered
+        _register_temp(con, "chosen_reference_set", pa.table({
+            "set_id": pa.array(chosen, pa.string()),
+            "precedence": pa.array(range(1, len(chosen) + 1), pa.int64()),
+            "is_fallback": pa.array([s in choice.fallback for s in chosen], pa.bool_())}))
+        _register_temp(con, "stratum_band", pa.Table.from_pylist(
+            stratum_bands(settings.mammography_thickness_band_mm), schema=_BAND_SCHEMA))
+        _register_temp(con, "exam_stratum_basis", pa.Table.from_pylist(
+            [{"exam_type": e.id, "basis": stratum_basis(e.id, e.modality), "region": e.region}
+             for e in EXAM_TYPES.values()],
+            schema=pa.schema([("exam_type", pa.string()), ("basis", pa.string()),
+                              ("region", pa.string())])))
+        _register_temp(con, "min_sample_rule", pa.Table.from_pylist(
+            [{"modality": m, "min_sample": n} for m, n in settings.min_sample.items()],
+            schema=pa.schema([("modality", pa.string()), ("min_sample", pa.int64())])))
+        _register_temp(con, "indication_rule", pa.Table.from_pylist(
+            [{"rule_id": n, "exam_type": r.exam, "indication": r.indication, "phrase": phrase}
+             for n, r in enumerate(load_indication_rules(config), start=1) for phrase in r.any],
+            schema=pa.schema([("rule_id", pa.int64()), ("exam_type", pa.string()),
+                              ("indication", pa.string()), ("phrase", pa.string())])))
+        con.execute(sql("create_study_indication"))
+        con.execute(sql("create_audit_input"))
         con.execute(sql("reference_in_force"))
         max_n = con.execute(sql("max_group_size"), {"date_from": first, "date_to": after}).fetchall()[0][0] or 1
         _register_temp(con, "median_ci_rank", pa.Table.from_pylist(median_ci_ranks(max_n), schema=_CI_SCHEMA))
@@ -210,13 +389,17 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                   "adult_min_age": settings.adult_min_age_years,
                   "weight_min": settings.standard_weight_min_kg,
                   "weight_max": settings.standard_weight_max_kg,
-                  "min_n": settings.min_sample, "low_fraction": settings.well_below_fraction}
+                  "low_fraction": settings.well_below_fraction}
         con.execute(sql("audit_medians"), params)
-        con.execute(sql("network_reference"), {"period": label})
+        con.execute(sql("network_reference"), {"period": label,
+                                               "min_rooms": settings.min_rooms_local_drl})
+        _register_temp(con, "ct_accumulated", pa.Table.from_pylist(
+            _accumulated_ctdivol(con, first, after), schema=_ACCUMULATED_SCHEMA))
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
-                                         "outlier_min_n": settings.outlier_min_n})
-        estimates = study_estimates(con.execute(sql("select_ct_for_estimates"), {"date_to": after}).df(),
-                                    settings)
+                                         "outlier_min_n": settings.outlier_min_n,
+                                         "adult_min_age": settings.adult_min_age_years})
+        estimates = study_estimates(_records(con.execute(sql("select_ct_for_estimates"),
+                                                         {"date_to": after})), settings)
         con.register("incoming_study_estimate", pa.Table.from_pylist(estimates, schema=_ESTIMATE_SCHEMA))
         try:
             con.execute(sql("create_study_estimate"))
@@ -224,8 +407,9 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_study_estimate")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
-        con.execute(sql("monthly_medians"), {"date_to": after})
-        history = con.execute(sql("drift_input"), {"date_to": after}).df()
+        adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
+        con.execute(sql("monthly_medians"), adult)
+        history = con.execute(sql("drift_input"), adult).df()
         drift = detect_drift(history, alpha=settings.drift_alpha,
                              min_change=settings.drift_min_change,
                              min_n_side=settings.drift_min_n_side)
@@ -236,10 +420,17 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.execute(sql("create_drift_flags"))
         finally:
             con.unregister("incoming_drift_flags")
-        summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen)
+        con.execute(sql("update_median_after_change"), {"date_from": first, "date_to": after,
+                                                        "adult_min_age": settings.adult_min_age_years})
+        summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen,
+                               reference_body=choice.body, reference_basis=choice.basis,
+                               fallback_sets=list(choice.fallback),
+                               min_sample=dict(settings.min_sample),
+                               min_rooms_local_drl=settings.min_rooms_local_drl)
         summary.n_studies, summary.n_unmapped = con.execute(
             sql("count_unmapped"), {"date_from": first, "date_to": after}).fetchall()[0]
-        summary.n_groups = con.execute(sql("count_audit_groups")).fetchall()[0][0]
+        summary.n_groups, summary.n_compared, summary.n_too_few = con.execute(
+            sql("count_audit_groups")).fetchall()[0]
         summary.exceedances = con.execute(sql("select_exceedances")).df().to_dict("records")
         summary.alerts_by_rule = dict(con.execute(sql("count_alerts_by_rule")).fetchall())
         summary.drift = drift.to_dict("records")

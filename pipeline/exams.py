@@ -16,8 +16,8 @@ from typing import Any
 
 from .errors import ConfigError
 
-__all__ = ["EXAM_TYPES", "ExamType", "FIELDS", "ExamRule", "load_exam_rules", "normalise",
-           "rule_rows"]
+__all__ = ["EXAM_TYPES", "ExamType", "FIELDS", "ExamRule", "IndicationRule", "load_exam_rules",
+           "load_indication_rules", "normalise", "rule_rows"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -133,3 +133,49 @@ def rule_rows(rules: list[ExamRule]) -> list[dict]:
                                  "field_priority": FIELDS.index(rule.field), "modality": modality,
                                  "kind": kind, "phrase": phrase, "source": rule.source})
     return rows
+
+
+@dataclass(frozen=True, slots=True)
+class IndicationRule:
+    """Studies of `exam` whose texts contain one of `any` are for the clinical `indication`."""
+
+    exam: str
+    indication: str
+    any: tuple[str, ...]
+    source: str
+
+
+def _indication_rule(raw: dict[str, Any], source: str, n: int) -> IndicationRule:
+    where = f"{source}, indication rule {n}"
+    if raw.get("exam") not in EXAM_TYPES:
+        raise ConfigError(f"{where}: unknown exam type {raw.get('exam')!r}")
+    unknown = set(raw) - {"exam", "indication", "any"}
+    if unknown:
+        raise ConfigError(f"{where}: unknown key(s) {', '.join(sorted(unknown))}")
+    if not str(raw.get("indication") or "").strip() or not raw.get("any"):
+        raise ConfigError(f"{where}: needs an `indication` and at least one phrase in `any`")
+    return IndicationRule(raw["exam"], str(raw["indication"]).strip(),
+                          tuple(normalise(p) for p in raw["any"]), source)
+
+
+def load_indication_rules(user_config: Path | None = None) -> list[IndicationRule]:
+    """Indication rules: kerma.toml [[indication_rule]] first, then the shipped defaults
+    (``[[indication_rule]]`` in exam_rules.toml).
+
+    Raises
+    ------
+    ConfigError
+        Unknown exam type or key, or a rule without an indication or phrases.
+    """
+    rules: list[IndicationRule] = []
+    if user_config is not None and Path(user_config).exists():
+        try:
+            raw = tomllib.loads(Path(user_config).read_text(encoding="utf-8"))
+        except tomllib.TOMLDecodeError as exc:
+            raise ConfigError(f"{user_config} is not valid TOML: {exc}") from exc
+        rules += [_indication_rule(r, str(user_config), n + 1)
+                  for n, r in enumerate(raw.get("indication_rule", []))]
+    text = resources.files(__package__).joinpath("exam_rules.toml").read_text("utf-8")
+    rules += [_indication_rule(r, "exam_rules.toml", n + 1)
+              for n, r in enumerate(tomllib.loads(text).get("indication_rule", []))]
+    return rules

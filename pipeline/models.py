@@ -114,6 +114,8 @@ class CtEvent:
     started_at: dt.datetime | None = None
     exposure_time_s: float | None = None
     scanning_length_mm: float | None = None
+    top_z_scanning_length_mm: float | None = None     # TID 10014, table position (mm)
+    bottom_z_scanning_length_mm: float | None = None
     nominal_single_collimation_mm: float | None = None
     nominal_total_collimation_mm: float | None = None
     pitch_factor: float | None = None

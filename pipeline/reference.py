@@ -38,11 +38,17 @@ __all__ = [
 
 SEEDS = _QUERIES_ROOT / "seeds"
 
+# effective_date is the date the set came into force (valid from); valid_to the last day it
+# was in force (empty: still in force), superseded_by what replaced it. country: ISO 3166-1
+# alpha-2 of the issuing body. indication: the clinical indication the row is defined for
+# (empty: the source defines it by anatomy only). phantom_stated: the cited source itself
+# names the CTDIvol phantom (false: the phantom is a convention recalled from memory).
 REFERENCE_LEVEL_COLUMNS = (
-    "set_id", "issuing_body", "version", "effective_date", "exam_type", "quantity", "value",
-    "unit", "population", "age_min_years", "age_max_years", "weight_min_kg", "weight_max_kg",
-    "phantom", "citation_title", "citation_year", "citation_table", "citation_url", "verified",
-    "note",
+    "set_id", "issuing_body", "country", "version", "effective_date", "valid_to",
+    "superseded_by", "exam_type", "indication", "quantity", "value", "unit", "population",
+    "age_min_years", "age_max_years", "weight_min_kg", "weight_max_kg", "phantom",
+    "phantom_stated", "citation_title", "citation_year", "citation_table", "citation_url",
+    "verified", "note",
 )
 ALERT_COLUMNS = ("rule", "quantity", "threshold", "unit", "basis", "source_title",
                  "source_year", "source_url", "verified", "note")
@@ -68,7 +74,8 @@ QUANTITY_UNITS = {
 _ALERT_UNITS = {**QUANTITY_UNITS, "peak_skin_dose": "mGy"}
 
 EXAM_TYPES = frozenset(_EXAM_TYPES)  # the taxonomy lives in pipeline.exams
-_POPULATIONS = frozenset({"adult", "paediatric"})
+_POPULATIONS = frozenset({"adult", "paediatric", "all"})  # all: no age split (mammography)
+_COUNTRY = re.compile(r"^[A-Z]{2}$")  # ISO 3166-1 alpha-2
 _PHANTOMS = frozenset({"head_16cm", "body_32cm"})
 _DATE = re.compile(r"^\d{4}(-\d{2}(-\d{2})?)?$")     # the precision the source gives
 _SET_ID = re.compile(r"^[a-z0-9_]+$")
@@ -169,15 +176,23 @@ def _reference_level(row: _Row) -> dict:
         raise row.fail(f"unknown exam_type {exam_type!r}")
     population = row.text("population")
     if population not in _POPULATIONS:
-        raise row.fail(f"population must be adult or paediatric, not {population!r}")
+        raise row.fail(f"population must be adult, paediatric or all, not {population!r}")
     phantom = row.text("phantom", required=False)
     if phantom and phantom not in _PHANTOMS:
         raise row.fail(f"phantom must be head_16cm, body_32cm or empty, not {phantom!r}")
     if phantom and quantity != "ctdivol":
         raise row.fail(f"phantom {phantom!r} given for {quantity}; only ctdivol rows name a phantom")
+    if bool(phantom) != bool(row.text("phantom_stated", required=False)):
+        raise row.fail("phantom_stated must be given (true or false) exactly when phantom is")
     effective = row.text("effective_date")
     if not _DATE.match(effective):
         raise row.fail(f"effective_date {effective!r} is not YYYY, YYYY-MM or YYYY-MM-DD")
+    valid_to = row.text("valid_to", required=False)
+    if valid_to and (not _DATE.match(valid_to) or valid_to < effective):
+        raise row.fail(f"valid_to {valid_to!r} is not a date (YYYY[-MM[-DD]]) on or after effective_date")
+    country = row.text("country")
+    if not _COUNTRY.match(country):
+        raise row.fail(f"country {country!r} is not an ISO 3166-1 alpha-2 code (e.g. GB, AU)")
     set_id = row.text("set_id")
     if not _SET_ID.match(set_id):
         raise row.fail(f"set_id {set_id!r} must be lower-case letters, digits and _")
@@ -186,9 +201,13 @@ def _reference_level(row: _Row) -> dict:
     return {
         "set_id": set_id,
         "issuing_body": row.text("issuing_body"),
+        "country": country,
         "version": row.text("version"),
         "effective_date": effective,
+        "valid_to": valid_to or None,
+        "superseded_by": row.text("superseded_by", required=False) or None,
         "exam_type": exam_type,
+        "indication": row.text("indication", required=False) or None,
         "quantity": quantity,
         "value": row.number("value", positive=True),
         "unit": unit,
@@ -196,6 +215,7 @@ def _reference_level(row: _Row) -> dict:
         "age_min_years": age[0], "age_max_years": age[1],
         "weight_min_kg": weight[0], "weight_max_kg": weight[1],
         "phantom": phantom or None,
+        "phantom_stated": row.flag("phantom_stated") if phantom else None,
         "citation_title": row.text("citation_title"),
         "citation_year": row.year("citation_year"),
         "citation_table": row.text("citation_table"),
@@ -213,7 +233,8 @@ def _reference_file(path: Path, _stamp: tuple[int, int]) -> tuple[dict, ...]:
         level = _reference_level(row)
         if level["set_id"] != path.stem:
             raise row.fail(f"set_id {level['set_id']!r} differs from the file name {path.stem!r}")
-        for column in ("issuing_body", "version", "effective_date"):
+        for column in ("issuing_body", "country", "version", "effective_date", "valid_to",
+                       "superseded_by"):
             if out and level[column] != out[0][column]:
                 raise row.fail(f"{column} differs from row 2 of the same set")
         key = (level["exam_type"], level["quantity"], level["population"], level["age_min_years"],

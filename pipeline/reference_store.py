@@ -23,9 +23,10 @@ from .parsing.units import Quantity, UnitError, convert
 __all__ = ["CANONICAL", "CSV_COLUMNS", "derive_local_set", "import_reference_csv",
            "install_reference_sets", "reference_rows"]
 
-CSV_COLUMNS = ["set_id", "issuing_body", "version", "effective_date", "exam_type", "quantity",
-               "value", "unit", "population", "age_min_years", "age_max_years", "weight_min_kg",
-               "weight_max_kg", "phantom", "citation_title", "citation_year", "citation_table",
+CSV_COLUMNS = ["set_id", "issuing_body", "country", "version", "effective_date", "valid_to",
+               "superseded_by", "exam_type", "indication", "quantity", "value", "unit",
+               "population", "age_min_years", "age_max_years", "weight_min_kg", "weight_max_kg",
+               "phantom", "phantom_stated", "citation_title", "citation_year", "citation_table",
                "citation_url", "verified", "note"]
 
 # quantity -> (unit conversion family, canonical unit used by the audit)
@@ -40,12 +41,13 @@ _UNIT_SPELLINGS = {"mgy cm": "mGy.cm", "mgy·cm": "mGy.cm", "mgycm": "mGy.cm", "
 
 _SCHEMA = pa.schema([
     ("set_id", pa.string()), ("origin", pa.string()), ("issuing_body", pa.string()),
-    ("version", pa.string()), ("effective_date", pa.string()), ("exam_type", pa.string()),
-    ("quantity", pa.string()), ("value", pa.float64()), ("unit", pa.string()),
+    ("country", pa.string()), ("version", pa.string()), ("effective_date", pa.string()),
+    ("valid_to", pa.string()), ("superseded_by", pa.string()), ("exam_type", pa.string()),
+    ("indication", pa.string()), ("quantity", pa.string()), ("value", pa.float64()), ("unit", pa.string()),
     ("value_canonical", pa.float64()), ("unit_canonical", pa.string()),
     ("population", pa.string()), ("age_min_years", pa.float64()), ("age_max_years", pa.float64()),
     ("weight_min_kg", pa.float64()), ("weight_max_kg", pa.float64()), ("phantom", pa.string()),
-    ("citation_title", pa.string()), ("citation_year", pa.int64()),
+    ("phantom_stated", pa.bool_()), ("citation_title", pa.string()), ("citation_year", pa.int64()),
     ("citation_table", pa.string()), ("citation_url", pa.string()), ("verified", pa.bool_()),
     ("note", pa.string())])
 
@@ -58,6 +60,10 @@ def _float(v) -> float | None:
 
 def _bool(v) -> bool:
     return v if isinstance(v, bool) else str(v).strip().lower() in ("true", "yes", "1")
+
+
+def _text(v) -> str | None:
+    return str(v).strip() or None if v is not None else None
 
 
 def reference_rows(raw_rows: list[dict], origin: str, where: str) -> list[dict]:
@@ -87,22 +93,44 @@ def reference_rows(raw_rows: list[dict], origin: str, where: str) -> list[dict]:
             raise ConfigError(f"{where}, row {n}: {exc}") from None
         effective = str(r.get("effective_date") or "").strip() or None
         year = r.get("citation_year")
+        phantom = _text(r.get("phantom"))
+        stated = r.get("phantom_stated")
         out.append({
             "set_id": r["set_id"], "origin": origin, "issuing_body": r.get("issuing_body") or None,
+            "country": _text(r.get("country")),
             "version": str(r.get("version") or "") or None, "effective_date": effective,
-            "exam_type": r["exam_type"], "quantity": r["quantity"], "value": value,
+            "valid_to": _text(r.get("valid_to")), "superseded_by": _text(r.get("superseded_by")),
+            "exam_type": r["exam_type"], "indication": _text(r.get("indication")),
+            "quantity": r["quantity"], "value": value,
             "unit": r["unit"], "value_canonical": value_canonical, "unit_canonical": canonical,
             "population": (r.get("population") or "adult").strip() or "adult",
             "age_min_years": _float(r.get("age_min_years")), "age_max_years": _float(r.get("age_max_years")),
             "weight_min_kg": _float(r.get("weight_min_kg")), "weight_max_kg": _float(r.get("weight_max_kg")),
-            "phantom": (r.get("phantom") or None), "citation_title": r.get("citation_title") or None,
+            "phantom": phantom,
+            # a user's own set states its phantom unless it says otherwise
+            "phantom_stated": None if phantom is None else (
+                True if stated is None or str(stated).strip() == "" else _bool(stated)),
+            "citation_title": r.get("citation_title") or None,
             "citation_year": int(float(year)) if str(year or "").strip() else None,
             "citation_table": r.get("citation_table") or None, "citation_url": r.get("citation_url") or None,
             "verified": _bool(r.get("verified", False)), "note": r.get("note") or None})
     return out
 
 
+# columns added after the first release: a warehouse made before them gets them on first use
+_ADDED_COLUMNS = {"country": "varchar", "valid_to": "varchar", "superseded_by": "varchar",
+                  "indication": "varchar", "phantom_stated": "boolean"}
+
+
+def _add_missing_columns(con: duckdb.DuckDBPyConnection) -> None:
+    have = {r[0] for r in con.execute("describe reference_level").fetchall()}
+    for name, kind in _ADDED_COLUMNS.items():
+        if name not in have:
+            con.execute(f"alter table reference_level add column {name} {kind}")
+
+
 def _write_sets(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None:
+    _add_missing_columns(con)
     con.execute("begin transaction")
     try:
         for set_id in sorted({r["set_id"] for r in rows}):
@@ -119,7 +147,8 @@ def _write_sets(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None:
 
 
 def install_reference_sets(con: duckdb.DuckDBPyConnection) -> dict[str, bool]:
-    """(Re)install the shipped sets; returns every set in the warehouse -> usable by default."""
+    """(Re)install the shipped sets; returns every set in the warehouse -> current (all values
+    verified, not superseded). Which sets an audit uses is decided by pipeline.jurisdiction."""
     from .reference import load_reference_sets
 
     shipped = reference_rows(load_reference_sets(include_unverified=True), "shipped",
@@ -155,13 +184,34 @@ def import_reference_csv(con: duckdb.DuckDBPyConnection, path: Path) -> tuple[st
     return ids.pop(), len(rows)
 
 
-def derive_local_set(con: duckdb.DuckDBPyConnection, set_id: str, title: str) -> int:
+def derive_local_set(con: duckdb.DuckDBPyConnection, set_id: str, title: str, *,
+                     allow_few_rooms: bool = False) -> int:
     """Save the network's 75th percentile of room medians (ICRP 135) from network_reference
-    (the latest audit) as a set of its own."""
+    (the latest audit) as a set of its own.
+
+    ICRP Publication 135 sets a local DRL from a reasonable number of rooms (e.g. 10-20): a
+    value from fewer rooms (``network_reference.is_local_drl`` false) is refused unless
+    `allow_few_rooms`, and then its note says how few. Stratified (paediatric band,
+    breast-thickness band) rows are not saved: the set format has no thickness band.
+
+    Raises
+    ------
+    ConfigError
+        No audited network values, or values from too few rooms without `allow_few_rooms`.
+    """
     frame = con.execute(sql("select_network_for_local_set")).df()
     if frame.empty:
         raise ConfigError("no network values with adequate samples: run `kerma audit` first")
     frame = frame.astype(object).where(frame.notna(), None)
+    few = frame[~frame["is_local_drl"].astype(bool)]
+    if len(few) and not allow_few_rooms:
+        worst = few.sort_values("n_rooms").iloc[0]
+        raise ConfigError(
+            f"{len(few)} of {len(frame)} network values come from fewer than "
+            f"{int(worst.min_rooms_local_drl)} rooms (e.g. {worst.exam_type} {worst.quantity}: "
+            f"{int(worst.n_rooms)} room(s)); ICRP 135 sets a local DRL from a reasonable number "
+            f"of rooms (10-20). Use the typical values of network_reference as comparators, or "
+            f"pass --allow-few-rooms to save them anyway, labelled")
     period = str(frame["period"].iloc[0])
     rows = [{"set_id": set_id, "issuing_body": "local (derived by Kerma Ledger)", "version": period,
              "effective_date": dt.date.today().isoformat(), "exam_type": r.exam_type,
@@ -170,7 +220,10 @@ def derive_local_set(con: duckdb.DuckDBPyConnection, set_id: str, title: str) ->
              "citation_title": title, "citation_year": dt.date.today().year,
              "citation_table": "network_reference, 75th percentile of room medians (ICRP 135)",
              "citation_url": None, "verified": True,
-             "note": f"{r.n_rooms} rooms, {r.n_exams} exams, period {period}"}
+             "note": f"{r.n_rooms} rooms, {r.n_exams} exams, period {period}"
+                     + ("" if r.is_local_drl else
+                        f"; FEWER than {r.min_rooms_local_drl} rooms: not a local DRL in the "
+                        f"sense of ICRP 135 (saved with --allow-few-rooms)")}
             for r in frame.itertuples()]
     _write_sets(con, reference_rows(rows, "derived", "derived local set"))
     return len(rows)

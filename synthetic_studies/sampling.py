@@ -390,6 +390,10 @@ def make_study(scenario: Scenario, seed: int, index: int, n_studies: int,
     else:
         device = _pick(rng, list(scenario.devices), [d.share for d in scenario.devices])
         de = _pick(rng, list(device.exams), [x.share for x in device.exams])
+        # a separate stream, so that adding unmapped descriptions leaves every other draw as it was
+        other = _rng(seed, "unmapped", index)
+        if device.unmapped and other.random() < scenario.unmapped_share:
+            de = _pick(other, list(device.unmapped), [x.share for x in device.unmapped])
     exam = scenario.exams[de.exam]
     month = min(months - 1, index * months // max(1, n_studies))
     starts = month_starts(scenario.start_date, months)

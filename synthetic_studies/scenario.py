@@ -50,6 +50,7 @@ class ExamSpec:
     fluoro_time_s: float | None = None
     acquisitions: tuple[int, int] | None = None
     contrast: bool = False  # intravenous contrast given (CT: PS3.3 C.7.6.4 Contrast/Bolus)
+    unmapped: bool = False  # by design, no default exam rule (pipeline/exam_rules.toml) maps it
 
 
 @dataclass(frozen=True, slots=True)
@@ -99,6 +100,9 @@ class DeviceSpec:
     head_technique: str = "spiral"
     target_filter: tuple[str, str] | None = None
     header_images: bool = False
+    # Descriptions no default exam rule maps (brain perfusion, a knee radiograph...): with
+    # probability Scenario.unmapped_share a study on this unit is one of these instead.
+    unmapped: tuple[DeviceExam, ...] = ()
 
 
 HEADER_IMAGE_MODALITIES = ("CT", "MG")
@@ -118,6 +122,7 @@ class Scenario:
     devices: tuple[DeviceSpec, ...]
     special: dict[str, dict[str, Any]] = field(default_factory=dict)
     defects: dict[str, int] = field(default_factory=dict)
+    unmapped_share: float = 0.0
 
     def device(self, device_id: str) -> DeviceSpec:
         for device in self.devices:
@@ -150,11 +155,14 @@ def _from_mapping(raw: dict[str, Any]) -> Scenario:
     for device in devices:
         if device.site not in sites:
             raise ValueError(f"device {device.id!r} names unknown site {device.site!r}")
-        for de in device.exams:
+        for de in device.exams + device.unmapped:
             if de.exam not in exams:
                 raise ValueError(f"device {device.id!r} names unknown exam {de.exam!r}")
             if de.share <= 0:
                 raise ValueError(f"device {device.id!r} exam {de.exam!r}: share must be > 0")
+            if exams[de.exam].unmapped != (de in device.unmapped):
+                raise ValueError(f"device {device.id!r} exam {de.exam!r}: an archetype with "
+                                 f"unmapped = true belongs in `unmapped`, and only there")
         if device.header_images and device.reports != "rdsr":
             raise ValueError(f"device {device.id!r}: header_images needs reports = 'rdsr' "
                              f"(an image_header unit writes its images anyway)")
@@ -179,6 +187,7 @@ def _from_mapping(raw: dict[str, Any]) -> Scenario:
         devices=devices,
         special=dict(raw.get("special", {})),
         defects={k: int(v) for k, v in raw.get("defects", {}).items()},
+        unmapped_share=float(net.get("unmapped_share", 0.0)),
     )
 
 
@@ -195,6 +204,7 @@ def _exam(key: str, e: dict[str, Any]) -> ExamSpec:
         fluoro_time_s=float(e["fluoro_time"]) if "fluoro_time" in e else None,
         acquisitions=tuple(e["acquisitions"]) if "acquisitions" in e else None,
         contrast=bool(e.get("contrast", False)),
+        unmapped=bool(e.get("unmapped", False)),
     )
 
 
@@ -219,4 +229,5 @@ def _device(d: dict[str, Any]) -> DeviceSpec:
         head_technique=d.get("head_technique", "spiral"),
         target_filter=tuple(d["target_filter"]) if "target_filter" in d else None,
         header_images=bool(d.get("header_images", False)),
+        unmapped=tuple(DeviceExam(**x) for x in d.get("unmapped", ())),
     )

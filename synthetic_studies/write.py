@@ -70,6 +70,7 @@ STUDIES_SCHEMA = pa.schema([
     ("station_name", pa.string()),
     ("modality", pa.string()),
     ("exam", pa.string()),
+    ("is_unmapped", pa.bool_()),   # by design no default exam rule maps its description
     ("study_description", pa.string()),
     ("study_datetime", pa.timestamp("s")),
     ("patient_id", pa.string()),
@@ -404,6 +405,7 @@ def _study_row(scenario: Scenario, spec: StudySpec, defect: str | None) -> dict:
         "station_name": device.station_name,
         "modality": spec.modality,
         "exam": spec.exam,
+        "is_unmapped": scenario.exams[spec.exam].unmapped,
         "study_description": spec.study_description,
         "study_datetime": spec.study_datetime,
         "patient_id": p.patient_id,

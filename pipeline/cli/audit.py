@@ -18,17 +18,30 @@ CAUTION = ("A reference level is an investigation level, not a dose limit. Flagg
 def print_audit_summary(summary) -> None:
     """Print an AuditSummary: exceedances, alerts, drift and the caution."""
     console.rule(f"Audit {summary.period} ({summary.date_from} to {summary.date_to})")
-    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}")
+    console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}"
+                  f" - issuing body: {summary.reference_body or 'none'} ({summary.reference_basis})")
+    if summary.fallback_sets:
+        console.print(f"Fallback sets (fill gaps only; each such row says so): {', '.join(summary.fallback_sets)}")
     console.print(f"Studies: {summary.n_studies}; not mapped to an exam type: {summary.n_unmapped} "
                   f"({100 * summary.unmapped_share:.1f} %); audit groups: {summary.n_groups}")
+    console.print(f"Groups compared with a reference level: {summary.n_compared} of {summary.n_groups} "
+                  f"(the others say why in audit_medians.reference_scope_note; compare them with the "
+                  f"network typical value). Too few exams (n below min_sample: "
+                  f"{', '.join(f'{m} {n}' for m, n in sorted(summary.min_sample.items()))}): "
+                  f"{summary.n_too_few} groups.")
     table = Table(title="Room medians above their reference level")
-    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio", "Set", "Sample"):
+    for c in ("Site", "Exam type", "Quantity", "n", "Median", "Reference", "Ratio",
+              "Standard-size (50-90 kg) ratio", "Set", "Sample"):
         table.add_column(c)
     for r in summary.exceedances:
+        # ICRP 135: the standard-size median is the one to compare where most exams have a weight
+        std = (f"{r['ratio_standard_size_to_reference']:.2f} (n {r['n_standard_size']})"
+               if r["n_with_weight"] > r["n"] / 2 and r["n_standard_size"] else "weights too sparse")
         table.add_row(str(r["site"]), r["exam_type"], f"{r['quantity']} ({r['unit']})", str(r["n"]),
                       f"{r['median']:.4g}", f"{r['reference_value']:.4g}",
-                      f"{r['ratio_to_reference']:.2f}", r["reference_set"],
-                      "adequate" if r["is_sample_adequate"] else "[yellow]too small[/yellow]")
+                      f"{r['ratio_to_reference']:.2f}", std, r["reference_set"],
+                      "adequate" if r["is_sample_adequate"]
+                      else f"[yellow]too few (n < {r['min_sample']})[/yellow]")
     console.print(table if summary.exceedances else "No room median above its reference level.")
     alerts = ", ".join(f"{k}: {v}" for k, v in summary.alerts_by_rule.items()) or "none"
     console.print(f"Individual-exam alerts: {alerts}")
@@ -49,7 +62,7 @@ def audit_command(
     period: str | None = typer.Option(None, "--period", help="Calendar month YYYY-MM."),
     date_from: str | None = typer.Option(None, "--from", help="First day YYYY-MM-DD."),
     date_to: str | None = typer.Option(None, "--to", help="Last day YYYY-MM-DD."),
-    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: every verified set)."),
+    reference: list[str] = typer.Option([], "--reference", help="Reference set id; repeat to give several in order of precedence (default: [audit] in kerma.toml, else the newest verified sets of one issuing body)."),
     config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
 ) -> None:
     """Medians against reference levels (ICRP 135), network values, alerts and drift for a period."""

@@ -16,7 +16,7 @@ app.add_typer(reference_app, name="reference")
 
 @reference_app.command("list")
 def reference_list(warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file.")) -> None:
-    """Show the reference-level sets in the warehouse and whether they are used by default."""
+    """Show the reference-level sets in the warehouse: body, country, validity, verification."""
     from queries import sql
 
     from ..errors import WarehouseError
@@ -59,6 +59,7 @@ def reference_import(
 def reference_derive(
     set_id: str = typer.Argument(..., help="Name of the new local set, e.g. local_2026q4."),
     warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file."),
+    allow_few_rooms: bool = typer.Option(False, "--allow-few-rooms", help="Save values from fewer than min_rooms_local_drl rooms (labelled; not a local DRL per ICRP 135)."),
 ) -> None:
     """Save the network's 75th percentile of room medians (ICRP 135) from the last audit as a set."""
     from ..errors import ConfigError, WarehouseError
@@ -67,7 +68,8 @@ def reference_derive(
 
     try:
         with connection(warehouse) as con:
-            n = derive_local_set(con, set_id, f"Local reference levels derived from {warehouse.name}")
+            n = derive_local_set(con, set_id, f"Local reference levels derived from {warehouse.name}",
+                                 allow_few_rooms=allow_few_rooms)
     except (ConfigError, WarehouseError) as exc:
         fail(str(exc))
     console.print(f"Saved local set {set_id!r} with {n} values (75th percentile of room medians).")

@@ -7,8 +7,9 @@ from pydicom.dataset import Dataset
 from .. import concepts as C
 from ..models import Accumulated, CtEvent, IssueKind
 from .common import Measurer, code_label
-from .content_tree import code_value_of, datetime_of, find, find_all, first, text_of, uid_of
-from .units import Quantity
+from .content_tree import (code_value_of, datetime_of, find, find_all, first, num_raw, text_of,
+                           uid_of)
+from .units import Quantity, UnitError, convert
 
 __all__ = ["parse_ct_accumulated", "parse_ct_events"]
 
@@ -64,6 +65,31 @@ def _scanning_length(params: Dataset, uid: str, m: Measurer) -> float | None:
     return None
 
 
+def _z_location(params: Dataset, concept, uid: str, m: Measurer) -> float | None:
+    """A TID 10014 z location (mm, may be negative: a table position, not a length)."""
+    for node in find_all(params, concept, "NUM"):
+        text, unit, _ = num_raw(node)
+        if text is None:
+            return None
+        try:
+            value = float(text)
+        except ValueError:
+            m.issue(IssueKind.NOT_A_NUMBER, f"{concept.meaning}: {text!r} is not a number",
+                    concept, uid, text, unit)
+            return None
+        if unit is None:
+            m.issue(IssueKind.MISSING_UNIT, f"{concept.meaning}: value {text} has no unit; "
+                    "kept as NULL", concept, uid, text, None)
+            return None
+        try:
+            return convert(value, unit, Quantity.LENGTH)
+        except UnitError as exc:
+            m.issue(IssueKind.UNKNOWN_UNIT, f"{concept.meaning}: {exc}; kept as NULL", concept,
+                    uid, text, unit)
+            return None
+    return None
+
+
 def _dose_check(event: Dataset, uid: str, m: Measurer) -> dict[str, float | None]:
     out = {}
     for container, dlp, ctdi, prefix in (
@@ -110,6 +136,10 @@ def parse_ct_events(root: Dataset, sop_uid: str, m: Measurer) -> list[CtEvent]:
             started_at=datetime_of(first(node, C.DATETIME_STARTED)),
             exposure_time_s=m.value(params, C.EXPOSURE_TIME, Quantity.TIME, event_uid=uid, plausible="time"),
             scanning_length_mm=_scanning_length(params, uid, m) if params is not None else None,
+            top_z_scanning_length_mm=_z_location(params, C.TOP_Z_SCANNING_LENGTH, uid, m)
+            if params is not None else None,
+            bottom_z_scanning_length_mm=_z_location(params, C.BOTTOM_Z_SCANNING_LENGTH, uid, m)
+            if params is not None else None,
             nominal_single_collimation_mm=m.value(params, C.NOMINAL_SINGLE_COLLIMATION_WIDTH, Quantity.LENGTH, event_uid=uid),
             nominal_total_collimation_mm=m.value(params, C.NOMINAL_TOTAL_COLLIMATION_WIDTH, Quantity.LENGTH, event_uid=uid),
             pitch_factor=m.value(params, C.PITCH_FACTOR, Quantity.COUNT, event_uid=uid),

@@ -1,19 +1,47 @@
--- grain: one row per site x device x exam type x quantity x population (x CTDIvol phantom) in the period
+-- grain: one row per site x device x exam type x quantity x population x stratum (x CTDIvol phantom) in the period
 -- Percentiles: quantile_cont = linear interpolation between order statistics (Hyndman & Fan
 -- 1996 definition 7). median_ci_*: distribution-free 95 % interval from order statistics,
 -- ranks from the exact binomial(n, 1/2) (Conover 1999, sec. 3.2), table median_ci_rank.
+-- population: adult | paediatric | unknown_age (no age: its own group, never adult) | all
+-- (mammography: no age split). stratum: paediatric age band (head) or weight band (body),
+-- EC RP 185 / ICRP 135; compressed-breast-thickness band for mammography; NULL for adults.
+-- A reference is compared only with the same exam type, quantity, population and band, and
+-- CTDIvol only when the reference's source states its phantom and it equals the group's;
+-- reference_scope_note says what else the reader must know (indication, fallback, why not).
 create or replace table audit_medians as
 with
+observed as (
+    select o.*,
+           case when o.modality = 'MG' then 'all'
+                when o.patient_age_years is null then 'unknown_age'
+                when o.patient_age_years >= $adult_min_age then 'adult'
+                else 'paediatric' end as population,
+           o.patient_weight_kg between $weight_min and $weight_max as is_standard_size,
+           coalesce(b.basis, 'weight') as stratum_basis
+    from audit_input as o
+    left join exam_stratum_basis as b using (exam_type)
+    where o.study_date >= $date_from and o.study_date < $date_to
+),
 obs as (
-    select *,
-           case when patient_age_years is null or patient_age_years >= $adult_min_age
-                then 'adult' else 'paediatric' end as population,
-           patient_weight_kg between $weight_min and $weight_max as is_standard_size
-    from audit_observation
-    where study_date >= $date_from and study_date < $date_to
+    select o.*,
+           case o.stratum_basis when 'age' then o.patient_age_years
+                                when 'weight' then o.patient_weight_kg
+                                else o.compressed_breast_thickness_mm end as stratum_value
+    from observed as o
+),
+stratified as (
+    select o.*,
+           case when o.population in ('paediatric', 'all')
+                then coalesce(s.stratum, o.stratum_basis || ' unknown') end as stratum,
+           s.low as stratum_low, s.high as stratum_high
+    from obs as o
+    left join stratum_band as s
+      on o.population in ('paediatric', 'all') and s.basis = o.stratum_basis
+     and o.stratum_value >= s.low and (s.high is null or o.stratum_value < s.high)
 ),
 groups as (
-    select site, device_key, exam_type, quantity, unit, population, phantom,
+    select site, device_key, modality, exam_type, quantity, unit, population, stratum,
+           stratum_basis, stratum_low, stratum_high, phantom,
            count(*) as n,
            quantile_cont(value, 0.5) as median,
            quantile_cont(value, 0.25) as p25,
@@ -23,30 +51,116 @@ groups as (
            quantile_cont(value, 0.5) filter (where is_standard_size) as median_standard_size,
            count(patient_weight_kg) as n_with_weight,
            count(distinct patient_key) as n_patients
-    from obs
+    from stratified
+    group by all
+),
+indication_counts as (
+    select site, device_key, exam_type, quantity, population, stratum, phantom, indication,
+           count(*) as n_with_indication
+    from stratified
+    where indication is not null
     group by all
 ),
 with_ci as (
     select g.*, g.sorted_values[r.lower_rank] as median_ci_low,
-           g.sorted_values[r.upper_rank] as median_ci_high
+           g.sorted_values[r.upper_rank] as median_ci_high,
+           row_number() over () as group_id
     from groups as g
     left join median_ci_rank as r on r.n = g.n
+),
+candidates as (
+    select c.*, r.set_id, r.value_canonical, r.phantom as reference_phantom, r.phantom_stated,
+           r.issuing_body, r.country, r.indication, r.population as ref_population, r.is_fallback,
+           r.valid_to, r.verified, r.citation_title,
+           case when r.indication is not null then coalesce(i.n_with_indication, 0) end
+               as n_indication_matched,
+           r.set_id is not null and (c.quantity <> 'ctdivol' or
+               (coalesce(r.phantom_stated, false) and r.phantom = c.phantom)) as is_comparable
+    from with_ci as c
+    left join reference_in_force as r
+      on r.exam_type = c.exam_type and r.quantity = c.quantity and r.population = c.population
+     and c.population <> 'all'
+     and (c.population <> 'paediatric'
+          or (c.stratum_basis = 'age' and r.age_min_years = c.stratum_low
+              and r.age_max_years is not distinct from c.stratum_high)
+          or (c.stratum_basis = 'weight' and r.weight_min_kg = c.stratum_low
+              and r.weight_max_kg is not distinct from c.stratum_high))
+    left join indication_counts as i
+      on i.indication = r.indication and i.device_key = c.device_key
+     and i.exam_type = c.exam_type and i.quantity = c.quantity and i.population = c.population
+     and i.site is not distinct from c.site and i.stratum is not distinct from c.stratum
+     and i.phantom is not distinct from c.phantom
+    qualify row_number() over (partition by c.group_id
+                               order by is_comparable desc, r.precedence nulls last) = 1
+),
+noted as (
+    select c.*,
+           nullif(concat_ws('; ',
+               case when c.set_id is null then
+                   case c.population
+                       when 'unknown_age' then 'patient age unknown: not compared with an adult or a paediatric level'
+                       when 'all' then 'mammography: no reference level for this breast-thickness band in the chosen sets'
+                       when 'paediatric' then 'no paediatric reference for this band in the chosen sets; compare with the network typical value (ICRP 135)'
+                       else 'no reference level in the chosen sets; compare with the network typical value (ICRP 135)'
+                   end
+               end,
+               case when c.set_id is not null and not c.is_comparable then
+                   case when c.reference_phantom is null
+                        then 'CTDIvol not compared: the reference states no phantom'
+                        when not coalesce(c.phantom_stated, false)
+                        then 'CTDIvol not compared: the reference phantom (' || c.reference_phantom
+                             || ') is not stated in the retrieved source'
+                        else 'CTDIvol not compared: reference phantom ' || c.reference_phantom
+                             || ', this group ' || coalesce(c.phantom, 'unknown')
+                   end
+               end,
+               case when c.is_comparable and c.indication is not null then
+                   'the reference is defined for the clinical indication "' || c.indication
+                   || '"; this group holds every study the exam rules map to ' || c.exam_type
+                   || ' (' || c.n_indication_matched || ' of ' || c.n
+                   || ' marked with that indication by the indication rules)'
+               end,
+               case when c.is_comparable and c.is_fallback then
+                   'fallback: a set of ' || c.issuing_body || ' (' || coalesce(c.country, '?')
+                   || '), not of the audit''s jurisdiction'
+               end,
+               case when c.is_comparable and c.valid_to is not null
+                         and (case length(c.valid_to) when 4 then c.valid_to || '-12-31'
+                                                     when 7 then c.valid_to || '-31'
+                                                     else c.valid_to end) < strftime($date_from, '%Y-%m-%d')
+                    then 'superseded: the set was in force until ' || c.valid_to
+               end,
+               case when c.is_comparable and not c.verified
+                    then 'reference value not verified in its source (from memory)'
+               end
+           ), '') as reference_scope_note
+    from candidates as c
 )
 select
     $period as period,
-    c.site, c.device_key, c.exam_type, c.quantity, c.unit, c.population, c.phantom,
+    c.site, c.device_key, c.exam_type, c.quantity, c.unit, c.population, c.stratum, c.phantom,
     c.n, c.median, c.p25, c.p75, c.median_ci_low, c.median_ci_high,
     c.n_standard_size, c.median_standard_size, c.n_with_weight, c.n_patients,
-    r.set_id as reference_set,
-    r.value_canonical as reference_value,
-    c.median / r.value_canonical as ratio_to_reference,
-    c.median_standard_size / r.value_canonical as ratio_standard_size_to_reference,
-    coalesce(c.median > r.value_canonical, false) as is_above_reference,
-    coalesce(c.median < $low_fraction * r.value_canonical, false) as is_well_below_reference,
-    c.n >= $min_n as is_sample_adequate,
-    r.citation_title as reference_citation
-from with_ci as c
-left join reference_in_force as r
-  on r.exam_type = c.exam_type and r.quantity = c.quantity and r.population = c.population
- and (r.phantom is null or r.phantom = c.phantom)
-order by c.exam_type, c.quantity, c.site, c.device_key
+    m.min_sample,
+    case when c.is_comparable then c.set_id end as reference_set,
+    case when c.is_comparable then c.value_canonical end as reference_value,
+    case when c.is_comparable then c.median / c.value_canonical end as ratio_to_reference,
+    case when c.is_comparable then c.median_standard_size / c.value_canonical end
+        as ratio_standard_size_to_reference,
+    coalesce(c.is_comparable and c.median > c.value_canonical, false) as is_above_reference,
+    coalesce(c.is_comparable and c.median < $low_fraction * c.value_canonical, false)
+        as is_well_below_reference,
+    c.n >= m.min_sample as is_sample_adequate,
+    case when c.is_comparable then c.citation_title end as reference_citation,
+    case when c.is_comparable then c.issuing_body end as reference_body,
+    case when c.is_comparable then c.country end as reference_country,
+    case when c.is_comparable then c.indication end as reference_indication,
+    case when c.is_comparable then c.n_indication_matched end as n_indication_matched,
+    case when c.is_comparable then c.ref_population end as reference_population,
+    c.reference_scope_note,
+    coalesce(c.is_comparable and c.is_fallback, false) as is_fallback_reference,
+    null::varchar as change_month,          -- set by update_median_after_change (drift inside the period)
+    null::double as median_after_change
+from noted as c
+left join min_sample_rule as m on m.modality = c.modality
+order by c.exam_type, c.quantity, c.site, c.device_key, c.population, c.stratum

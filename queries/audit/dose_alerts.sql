@@ -1,4 +1,7 @@
 -- grain: one row per study x rule that fired in the period (pseudonymous keys only)
+-- family: the rule family; action: patient_follow_up | protocol_review | statistical_review;
+-- method: how the value was computed; threshold_verified: the threshold was read in its
+-- primary source (false: a default recalled from memory, on by default and labelled).
 create or replace table dose_alerts as
 with
 studies as (
@@ -10,34 +13,82 @@ rules as (
 fluoro as (
     -- substantial radiation dose levels (follow-up triggers, not limits)
     select s.study_key, s.patient_key, s.device_key, s.site, s.exam_type, s.study_date, r.rule,
-           r.quantity,
+           r.family, r.action, r.verified as threshold_verified, r.quantity,
            case r.quantity when 'dose_rp' then s.dose_rp_total_mgy
                            when 'dap' then s.dap_total_gy_cm2
                            when 'fluoro_time' then s.fluoro_time_total_s end as value,
-           r.threshold, r.unit, r.source
+           r.threshold, r.unit, r.source,
+           'study total of ' || r.quantity || ' (all irradiation events of the study)' as method
     from studies as s
     join rules as r on r.family = 'fluoro_substantial_dose' and s.modality in ('RF', 'XA')
 ),
-ct_events as (
-    -- CT dose-check notification values apply per scan (acquisition)
-    select s.study_key, s.patient_key, s.device_key, s.site, s.exam_type, s.study_date, r.rule,
-           r.quantity, max(e.ctdivol_mgy) as value, r.threshold, r.unit, r.source
+ct_acquisitions as (
+    -- protocol family: brain perfusion and cardiac by the acquisition protocol text, else the
+    -- body region of the exam type (unmapped or neck: the CTDIvol phantom decides)
+    select e.*, s.patient_key, s.site, s.exam_type, s.study_date, s.patient_age_years,
+           case when lower(coalesce(e.acquisition_protocol, '')) like '%perfusion%' then 'brain_perfusion'
+                when regexp_matches(lower(coalesce(e.acquisition_protocol, '')),
+                                    '(cardiac|coronary|ccta|heart)') then 'cardiac'
+                when x.region = 'head' then 'head'
+                when (x.region is null or x.region = 'neck') and e.ctdi_phantom = 'head_16cm' then 'head'
+                else 'torso' end as protocol_family,
+           s.patient_age_years is null or s.patient_age_years >= $adult_min_age as is_adult
     from irradiation_event as e
     join studies as s using (study_key, device_key)
+    left join exam_stratum_basis as x on x.exam_type = s.exam_type
+    where e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+),
+ct_events as (
+    -- CT dose-check notification values apply per scan sequence (acquisition), by population
+    -- x body region x protocol family (AAPM 2011), not by phantom alone
+    select a.study_key, a.patient_key, a.device_key, a.site, a.exam_type, a.study_date, r.rule,
+           r.family, r.action, r.verified as threshold_verified, r.quantity,
+           max(a.ctdivol_mgy) as value, r.threshold, r.unit, r.source,
+           'largest CTDIvol of one acquisition, ' || a.protocol_family || ' protocol, '
+               || case when a.patient_age_years is null then 'age unknown: adult value'
+                       when a.is_adult then 'adult'
+                       else 'paediatric, age ' || round(a.patient_age_years, 1) || ' y' end as method
+    from ct_acquisitions as a
     join rules as r
       on r.family = 'ct_dose_check_notification' and r.quantity = 'ctdivol'
-     and r.phantom = e.ctdi_phantom
-    where e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+     and r.protocol_family = a.protocol_family
+     and (r.event_type is null or r.event_type = a.event_type)
+     and (r.phantom is null or r.phantom = a.ctdi_phantom)
+     and (r.population = 'any'
+          or (a.is_adult and r.population = 'adult')
+          or (not a.is_adult and r.population = 'paediatric'
+              and a.patient_age_years >= coalesce(r.age_min_years, 0)
+              and a.patient_age_years < coalesce(r.age_max_years, 1e9)))
     group by all
 ),
 ct_alert as (
-    -- CT dose-check alert value: accumulated CTDIvol of the examination
+    -- CT dose-check alert value: CTDIvol accumulated at a table position (ct_accumulated:
+    -- maximum over z, or the labelled upper bound when positions are missing)
     select s.study_key, s.patient_key, s.device_key, s.site, s.exam_type, s.study_date, r.rule,
-           r.quantity, sum(e.ctdivol_mgy) as value, r.threshold, r.unit, r.source
-    from irradiation_event as e
+           r.family, r.action, r.verified as threshold_verified, r.quantity,
+           c.accumulated_ctdivol_mgy as value, r.threshold, r.unit, r.source, c.method
+    from ct_accumulated as c
     join studies as s using (study_key, device_key)
     join rules as r on r.family = 'ct_dose_check_alert' and r.quantity = 'ctdivol'
-    where e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+),
+device_check as (
+    -- the scanner's own CT dose-check values (PS3.16 TID 10015, NEMA XR 25) as recorded in its
+    -- report: an acquisition above the value the device was configured with
+    select a.study_key, a.patient_key, a.device_key, a.site, a.exam_type, a.study_date,
+           'device_dose_check_' || v.kind as rule, 'device_dose_check' as family,
+           'protocol_review' as action, true as threshold_verified, 'ctdivol' as quantity,
+           max(a.ctdivol_mgy) as value, v.threshold, 'mGy' as unit,
+           'the device''s own configured CTDIvol ' || v.kind || ' value (TID 10015) in its dose report'
+               as source,
+           'largest CTDIvol of one acquisition against the value the device recorded for it' as method
+    from ct_acquisitions as a
+    join (
+        select event_uid, 'notification' as kind, max(dose_check_notification_ctdivol_mgy) as threshold
+        from raw_ct_event where dose_check_notification_ctdivol_mgy > 0 group by event_uid
+        union all
+        select event_uid, 'alert', max(dose_check_alert_ctdivol_mgy)
+        from raw_ct_event where dose_check_alert_ctdivol_mgy > 0 group by event_uid
+    ) as v on v.event_uid = a.event_uid
     group by all
 ),
 obs as (
@@ -57,24 +108,28 @@ spread as (
 ),
 outliers as (
     -- modified z-score on log dose within exam type x device (Iglewicz & Hoaglin 1993):
-    -- M = 0.6745 (x - median) / MAD; |M| > threshold is an outlier
+    -- M = 0.6745 (x - median) / MAD; |M| > threshold is an outlier; high and low apart
     select o.study_key, o.patient_key, o.device_key, o.site, o.exam_type, o.study_date,
            case when o.log_value > s.med then 'robust_outlier_high' else 'robust_outlier_low' end as rule,
+           r.family, r.action, r.verified as threshold_verified,
            o.quantity, o.value,
            exp(s.med + sign(o.log_value - s.med) * r.threshold * s.mad / 0.6745) as threshold,
-           o.unit, r.source
+           o.unit, r.source,
+           'modified z-score of log ' || o.quantity || ' within exam type x device (n = ' || s.n || ')'
+               as method
     from obs as o
     join spread as s using (exam_type, device_key, quantity)
     join rules as r on r.family = 'robust_outlier'
     where s.n >= $outlier_min_n and s.mad > 0
       and abs(0.6745 * (o.log_value - s.med) / s.mad) > r.threshold
 )
-select study_key, patient_key, device_key, site, exam_type, study_date, rule, quantity, value,
-       threshold, unit, source
+select study_key, patient_key, device_key, site, exam_type, study_date, rule, family, action,
+       quantity, value, threshold, unit, source, method, threshold_verified
 from (
     select * from fluoro where value >= threshold
     union all by name select * from ct_events where value > threshold
     union all by name select * from ct_alert where value > threshold
+    union all by name select * from device_check where value > threshold
     union all by name select * from outliers
 )
 order by study_date, rule, study_key

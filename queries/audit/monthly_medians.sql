@@ -5,6 +5,6 @@ select site, device_key, exam_type, quantity, unit, phantom, period as month,
        quantile_cont(value, 0.25) as p25, quantile_cont(value, 0.75) as p75
 from audit_observation
 where study_date < $date_to
-  and (patient_age_years is null or patient_age_years >= 16)
+  and patient_age_years >= $adult_min_age  -- unknown age is not adult
 group by all
 order by device_key, exam_type, quantity, month

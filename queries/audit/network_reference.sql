@@ -1,18 +1,29 @@
--- grain: one row per exam type x quantity x population (x phantom) across the network in the period
--- ICRP Publication 135: typical value = median of the room medians; the network's own
--- reference level = 75th percentile of the room medians. Only rooms with an adequate sample
--- count (n_rooms); n_rooms_all counts every room with data.
+-- grain: one row per exam type x quantity x population x stratum (x phantom) across the network in the period
+-- ICRP Publication 135: typical value = median of the room medians; a local DRL = 75th
+-- percentile of the room medians, set only from a reasonable number of rooms
+-- ($min_rooms, default 10). With fewer rooms, is_local_drl is false and local_drl NULL: only the
+-- typical value is a comparator (p75_of_room_medians stays, descriptive). Only rooms with an
+-- adequate sample count (n_rooms); n_rooms_all counts every room with data.
 create or replace table network_reference as
 select
-    $period as period, exam_type, quantity, unit, population, phantom,
+    $period as period, exam_type, quantity, unit, population, stratum, phantom,
     count(*) filter (where is_sample_adequate) as n_rooms,
     count(*) as n_rooms_all,
     count(distinct site) filter (where is_sample_adequate) as n_sites,
     sum(n) as n_exams,
     quantile_cont(median, 0.5) filter (where is_sample_adequate) as typical_value,
     quantile_cont(median, 0.75) filter (where is_sample_adequate) as p75_of_room_medians,
+    $min_rooms as min_rooms_local_drl,
+    count(*) filter (where is_sample_adequate) >= $min_rooms as is_local_drl,
+    case when count(*) filter (where is_sample_adequate) >= $min_rooms
+         then quantile_cont(median, 0.75) filter (where is_sample_adequate) end as local_drl,
     any_value(reference_set) as reference_set,
-    any_value(reference_value) as reference_value
+    any_value(reference_value) as reference_value,
+    any_value(reference_body) as reference_body,
+    any_value(reference_country) as reference_country,
+    any_value(reference_indication) as reference_indication,
+    any_value(reference_population) as reference_population,
+    any_value(reference_scope_note) as reference_scope_note
 from audit_medians
-group by period, exam_type, quantity, unit, population, phantom
-order by exam_type, quantity
+group by period, exam_type, quantity, unit, population, stratum, phantom
+order by exam_type, quantity, population, stratum

@@ -8,13 +8,17 @@ select
     coalesce(d.room_label, a.device_key) as room_label,
     coalesce(x.label, a.exam_type, '(not mapped)') as exam_label,
     a.rule,
+    a.family,
+    a.action,
     a.quantity,
     a.value,
     a.threshold,
     a.unit,
     case when a.value > 0 and a.threshold > 0
          then greatest(a.value / a.threshold, a.threshold / a.value) end as factor,
-    a.source
+    a.source,
+    a.method,
+    a.threshold_verified
 from dose_alerts as a
 left join dash_device as d on d.device_key = a.device_key
 left join dash_exam_type as x on x.exam_type = a.exam_type

@@ -7,8 +7,10 @@ with
 obs as (
     select
         * replace (round(value, 9) as value),
-        case when patient_age_years is null or patient_age_years >= $adult_min_age
-             then 'adult' else 'paediatric' end as population
+        case when modality = 'MG' then 'all'
+             when patient_age_years is null then 'unknown_age'
+             when patient_age_years >= $adult_min_age then 'adult'
+             else 'paediatric' end as population
     from audit_observation
     where study_date >= $date_from and study_date < $date_to
 ),
@@ -24,6 +26,16 @@ stats as (
         quantile_cont(value, 0.95) as p95,
         max(value) as value_max
     from obs
+    group by all
+),
+audited as (
+    -- audit_medians splits paediatric and mammography groups into strata: a distribution
+    -- spans them, so it takes a reference only when exactly one stratum carries one
+    select device_key, exam_type, quantity, population, phantom,
+           case when count(reference_set) = 1 then max(reference_set) end as reference_set,
+           case when count(reference_value) = 1 then max(reference_value) end as reference_value,
+           sum(n) >= max(min_sample) as is_sample_adequate
+    from audit_medians
     group by all
 )
 select
@@ -42,7 +54,7 @@ select
 from stats as s
 left join dash_device as d on d.device_key = s.device_key
 left join dash_exam_type as x on x.exam_type = s.exam_type
-left join audit_medians as a
+left join audited as a
   on a.device_key = s.device_key and a.exam_type = s.exam_type and a.quantity = s.quantity
  and a.population = s.population and a.phantom is not distinct from s.phantom
 order by family_order, exam_label, s.quantity, s.phantom, s.population, site_label, room_label

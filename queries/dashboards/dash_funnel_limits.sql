@@ -1,5 +1,6 @@
 -- grain: one row per quantity x sample size on a log-spaced grid from 1 to 1.25 n_max:
--- the funnel's control limits around ratio 1 (same model as dash_funnel_points.sql)
+-- the funnel's upper control limits above ratio 1, the network typical value (same model as
+-- dash_funnel_points.sql)
 with
 grid as (
     select distinct
@@ -13,8 +14,6 @@ grid as (
 select
     quantity,
     n,
-    exp(-3.090232 * 1.2533 * sigma_log / sqrt(n)) as lower_998,
-    exp(-1.959964 * 1.2533 * sigma_log / sqrt(n)) as lower_95,
     exp(1.959964 * 1.2533 * sigma_log / sqrt(n)) as upper_95,
     exp(3.090232 * 1.2533 * sigma_log / sqrt(n)) as upper_998
 from grid

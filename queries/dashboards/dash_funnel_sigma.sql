@@ -1,4 +1,4 @@
--- grain: one row per quantity with at least one reference value: pooled spread of log dose
+-- grain: one row per quantity with audited groups: pooled spread of log dose
 -- Within one room, sigma = ln(p75 / p25) / 1.349 (the interquartile range of a normal
 -- distribution is 1.349 sigma; doses taken as log-normal), pooled over rooms with at least
 -- 5 exams with weights n - 1. n_max: the largest group, to size the funnel.
@@ -10,6 +10,6 @@ select
     count(*) filter (where n >= 5 and p25 > 0) as n_groups_pooled,
     max(n) as n_max
 from audit_medians
-where reference_value is not null and median > 0
+where median > 0
 group by quantity
 order by quantity

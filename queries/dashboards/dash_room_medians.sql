@@ -1,5 +1,5 @@
 -- grain: one row per audit group of audit_medians (site x device x exam type x quantity x
--- population x CTDIvol phantom), with display labels and the network's own values
+-- population x stratum x CTDIvol phantom), with display labels and the network's own values
 select
     a.period,
     a.device_key,
@@ -12,8 +12,10 @@ select
     a.quantity,
     a.unit,
     a.population,
+    a.stratum,
     a.phantom,
     a.n,
+    a.min_sample,
     a.n_patients,
     a.n_with_weight,
     a.median,
@@ -33,11 +35,15 @@ select
     n.p75_of_room_medians as network_p75,
     n.n_rooms as network_n_rooms,
     a.median / n.p75_of_room_medians as ratio_to_network_p75,
-    a.reference_citation
+    n.is_local_drl as network_is_local_drl,
+    a.reference_citation,
+    a.reference_body,
+    a.reference_indication,
+    a.reference_scope_note
 from audit_medians as a
 left join dash_device as d on d.device_key = a.device_key
 left join dash_exam_type as x on x.exam_type = a.exam_type
 left join network_reference as n
   on n.exam_type = a.exam_type and n.quantity = a.quantity and n.population = a.population
- and n.phantom is not distinct from a.phantom
-order by family_order, exam_label, a.quantity, a.population, a.phantom, site_label, room_label
+ and n.stratum is not distinct from a.stratum and n.phantom is not distinct from a.phantom
+order by family_order, exam_label, a.quantity, a.population, a.stratum, a.phantom, site_label, room_label

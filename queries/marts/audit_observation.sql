@@ -47,10 +47,11 @@ event_values as (
 )
 select study_key, patient_key, device_key, site, modality, exam_type, quantity, unit, value,
        study_date, strftime(study_date, '%Y-%m') as period, patient_age_years, patient_weight_kg,
-       case when quantity = 'ctdivol' then ctdi_phantom end as phantom, event_uid
+       case when quantity = 'ctdivol' then ctdi_phantom end as phantom, event_uid,
+       null::double as compressed_breast_thickness_mm
 from study_values where value is not null
 union all
 select study_key, patient_key, device_key, site, modality, event_exam_type, quantity, unit, value,
        study_date, strftime(study_date, '%Y-%m'), patient_age_years, patient_weight_kg,
-       null, event_uid
+       null, event_uid, compressed_breast_thickness_mm
 from event_values where value is not null and event_exam_type is not null

@@ -14,7 +14,8 @@ select
     null::double as agd_mgy, null::double as compressed_breast_thickness_mm,
     null::double as irradiation_duration_s, null::varchar as laterality,
     nominal_total_collimation_mm, ssde_mgy, water_equivalent_diameter_mm,
-    null::double as entrance_dose_mgy, null::varchar as entrance_dose_derivation
+    null::double as entrance_dose_mgy, null::varchar as entrance_dose_derivation,
+    top_z_scanning_length_mm, bottom_z_scanning_length_mm
 from stg_ct_event
 union all by name
 select
@@ -26,5 +27,6 @@ select
     agd_mgy, compressed_breast_thickness_mm, irradiation_duration_s, laterality,
     null::double as nominal_total_collimation_mm, null::double as ssde_mgy,
     null::double as water_equivalent_diameter_mm,
-    entrance_dose_mgy, entrance_dose_derivation
+    entrance_dose_mgy, entrance_dose_derivation,
+    null::double as top_z_scanning_length_mm, null::double as bottom_z_scanning_length_mm
 from stg_projection_event

@@ -10,6 +10,8 @@ create table if not exists raw_ct_event (
     started_at timestamp,
     exposure_time_s double,
     scanning_length_mm double,
+    top_z_scanning_length_mm double,   -- TID 10014 table positions, mm
+    bottom_z_scanning_length_mm double,
     nominal_single_collimation_mm double,
     nominal_total_collimation_mm double,
     pitch_factor double,
@@ -45,3 +47,5 @@ alter table raw_ct_event add column if not exists image_z_min_mm double;
 alter table raw_ct_event add column if not exists image_z_max_mm double;
 alter table raw_ct_event add column if not exists slice_thickness_mm double;
 alter table raw_ct_event add column if not exists n_images bigint;
+alter table raw_ct_event add column if not exists top_z_scanning_length_mm double;
+alter table raw_ct_event add column if not exists bottom_z_scanning_length_mm double;

@@ -62,3 +62,15 @@ def test_a_user_rule_maps_it_and_takes_precedence(tmp_path):
     result = CliRunner().invoke(app, ["exams", "unmapped", "--warehouse", str(db), "--config", str(config)])
     assert result.exit_code == 0, result.output
     assert "Every study maps" in result.output
+
+
+def test_bad_indication_rule_is_refused(tmp_path):
+    from pipeline.exams import load_indication_rules
+    config = tmp_path / "kerma.toml"
+    config.write_text('[[indication_rule]]\nexam = "ct_brain"\nindication = "acute stroke"\nany = ["x"]\n')
+    with pytest.raises(ConfigError, match="indication rule 1: unknown exam type 'ct_brain'"):
+        load_indication_rules(config)
+    config.write_text('[[indication_rule]]\nexam = "ct_head"\nany = ["stroke"]\n')
+    with pytest.raises(ConfigError, match="needs an `indication`"):
+        load_indication_rules(config)
+    assert [r.indication for r in load_indication_rules()][:1] == ["acute stroke"]

@@ -16,10 +16,7 @@ def test_median_ci_ranks_match_scipy_quantile_test(n):
     ci = quantile_test(x, q=np.median(x), p=0.5).confidence_interval(0.95)
     row = median_ci_ranks(n)[n - 1]
     got = (x[row["lower_rank"] - 1], x[row["upper_rank"] - 1])
-    if n <= 1000:
-        assert got == (ci.low, ci.high)
-    else:  # normal approximation of the binomial: within one rank of the exact interval
-        assert abs(got[0] - ci.low) <= 1 and abs(got[1] - ci.high) <= 1
+    assert got == (ci.low, ci.high)   # exact binomial for every n (scipy.stats.binom)
 
 
 def test_median_ci_undefined_for_tiny_samples():

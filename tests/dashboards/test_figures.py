@@ -137,29 +137,35 @@ def _funnel():
     points = pd.DataFrame({
         "site_label": ["North Site", "South Site"], "room_label": ["CT-A", "CT-B"],
         "exam_label": ["CT head", "CT chest"], "population": ["adult", "adult"], "n": [60, 8],
-        "ratio_to_reference": [1.45, 0.8], "is_sample_adequate": [True, False],
-        "funnel_zone": ["above 99.8 % limit", "within limits"], "quantity": ["dlp", "dlp"],
-        "unit": ["mGy.cm", "mGy.cm"], "median": [1400.0, 232.0], "reference_value": [970.0, 290.0],
+        "ratio_to_typical": [1.45, 0.8], "reference_ratio_to_typical": [0.8, None],
+        "is_sample_adequate": [True, False],
+        "funnel_zone": ["above 99.8 % limit", "not above the limits"], "quantity": ["dlp", "dlp"],
+        "unit": ["mGy.cm", "mGy.cm"], "median": [1400.0, 232.0], "typical_value": [965.5, 290.0],
+        "reference_value": [790.0, None],
     })
-    limits = pd.DataFrame({"n": [1, 10, 100], "lower_998": [0.3, 0.7, 0.9], "lower_95": [0.5, 0.8, 0.93],
-                           "upper_95": [2.0, 1.25, 1.07], "upper_998": [3.0, 1.4, 1.1]})
+    limits = pd.DataFrame({"n": [1, 10, 100], "upper_95": [2.0, 1.25, 1.07], "upper_998": [3.0, 1.4, 1.1]})
     return points, limits
 
 
-def test_funnel_has_limits_reference_line_and_labels_points_beyond_the_limit():
+def test_funnel_is_centred_on_the_network_typical_value_with_reference_marks_apart():
+    # ICRP 135: the typical value (median of room medians) is the comparator of a room; the
+    # reference level is a separate, higher-level investigation value, drawn as its own mark
     points, limits = _funnel()
     fig = figures.build_funnel(points, limits, site_colours=SITES, title="DLP")
     names = [t.name for t in fig.data]
-    assert names.count("95 % control limits") == 2 and names.count("99.8 % control limits") == 2
-    (ref,) = [t for t in fig.data if t.name == "Reference level (ratio 1)"]
-    assert list(ref.y) == [1.0, 1.0]
+    assert names.count("95 % upper control limit") == 1 and names.count("99.8 % upper control limit") == 1
+    assert not any("lower" in n for n in names)          # only "above" is a finding
+    (centre,) = [t for t in fig.data if t.name == "Network typical value (ratio 1)"]
+    assert list(centre.y) == [1.0, 1.0]
+    (refs,) = [t for t in fig.data if t.name == "Reference level of the group"]
+    assert list(refs.x) == [60] and list(refs.y) == [0.8]   # the group without one has no mark
     north = next(t for t in fig.data if t.name == "North Site")
-    assert list(north.text) == ["CT head · CT-A"]
+    assert list(north.text) == ["CT head · CT-A"] and list(north.y) == [1.45]
     south = next(t for t in fig.data if t.name == "South Site")
     assert list(south.text) == [""] and list(south.marker.symbol) == [figures.INSUFFICIENT_SYMBOL]
     assert fig.layout.xaxis.type == "log" and fig.layout.yaxis.type == "log"
     assert _axis_titles(fig) == ["Exams in the room's audit group (count, log scale)",
-                                 "DLP: median ÷ reference (ratio, log scale)"]
+                                 "DLP: median ÷ network typical value (ratio, log scale)"]
 
 
 def test_count_figures_title_their_axes_with_units():

@@ -106,11 +106,13 @@ def test_story_head_ct_above_reference_is_flagged_everywhere(site):
     assert len(head) == 1
     assert head["reference_set"].iloc[0] == "ukhsa_adult_ct_2022"
     assert 1.2 < head["ratio_to_reference"].iloc[0] < 1.7
+    # the funnel is centred on the network typical value (ICRP 135: median of the medians of
+    # rooms with an adequate sample), so it ranks only groups whose network has one
     ranked = pd.read_csv(site / "sites-ranked.csv")
-    dlp = ranked[ranked["quantity"] == "dlp"]
-    assert (dlp["room_label"].iloc[0], dlp["exam_type"].iloc[0]) == ("TGHCT1", "ct_head")
+    assert len(ranked) > 0
     assert list(ranked["rank"]) == list(range(1, len(ranked) + 1))
-    assert ranked["ratio_to_reference"].is_monotonic_decreasing
+    assert ranked["ratio_to_typical"].is_monotonic_decreasing
+    assert (ranked["ratio_to_typical"] - ranked["median"] / ranked["typical_value"]).abs().max() < 1e-9
     index = _html(site, "index.html")
     assert "Exam types above their reference level" in index and ">above reference<" in index
 

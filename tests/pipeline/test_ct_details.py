@@ -86,3 +86,24 @@ def test_ct_images_repeating_an_event_are_one_event(tmp_path):
     con = duckdb.connect(str(db), read_only=True)
     assert con.execute("select event_count, source_kind, ctdivol_max_mgy from study_dose").fetchall() == \
         [(1, "image_header", 12.5)]
+
+
+def test_scanning_length_z_locations_are_read_as_table_positions(tmp_path):
+    """TID 10014 Top / Bottom Z Location of Scanning Length (DCM 113897 / 113898, mm, PS3.16):
+    table positions, so a negative value is kept (unlike a length); cm converts to mm."""
+    _, ds = demo_dataset("tgh-ct1", exam="ct_head")
+    events = [i for i in ds.ContentSequence if i.ConceptNameCodeSequence[0].CodeValue == "113819"]
+    params = next(i for i in events[-1].ContentSequence
+                  if i.ConceptNameCodeSequence[0].CodeValue == "113822")
+    params.ContentSequence.append(num_item(C.TOP_Z_SCANNING_LENGTH, -12.5, C.UNIT_MM))
+    params.ContentSequence.append(num_item(C.BOTTOM_Z_SCANNING_LENGTH, -14.75, C.UNIT_CM))
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    (inbox / "ct.dcm").write_bytes(encode(ds))
+    db = tmp_path / "k.duckdb"
+    ingest([inbox], db, KEY)
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = con.execute("select top_z_scanning_length_mm, bottom_z_scanning_length_mm "
+                           "from irradiation_event where top_z_scanning_length_mm is not null"
+                           ).fetchall()
+    assert rows == [(-12.5, -147.5)]

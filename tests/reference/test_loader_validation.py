@@ -6,7 +6,8 @@ import pytest
 
 from pipeline.reference import REFERENCE_LEVEL_COLUMNS, load_alert_thresholds, load_reference_sets
 
-GOOD = dict(set_id="local_test_set", issuing_body="Test body", version="v1", effective_date="2024",
+GOOD = dict(set_id="local_test_set", issuing_body="Test body", country="GB", version="v1",
+            effective_date="2024", valid_to="", superseded_by="", indication="",
             exam_type="ct_head", quantity="dlp", value="790", unit="mGy.cm", population="adult",
             age_min_years="", age_max_years="", weight_min_kg="", weight_max_kg="", phantom="",
             citation_title="A test table", citation_year="2024", citation_table="Table 1",
@@ -24,10 +25,11 @@ def write(folder, *rows, name="local_test_set", columns=REFERENCE_LEVEL_COLUMNS)
 
 
 def test_a_good_file_loads(tmp_path):
-    write(tmp_path, GOOD, dict(GOOD, quantity="ctdivol", value="47", unit="mGy", phantom="head_16cm"))
+    write(tmp_path, GOOD, dict(GOOD, quantity="ctdivol", value="47", unit="mGy", phantom="head_16cm",
+                               phantom_stated="true"))
     rows = load_reference_sets(directory=tmp_path)
-    assert [(r["quantity"], r["value"], r["phantom"]) for r in rows] == [
-        ("dlp", 790.0, None), ("ctdivol", 47.0, "head_16cm")]
+    assert [(r["quantity"], r["value"], r["phantom"], r["phantom_stated"]) for r in rows] == [
+        ("dlp", 790.0, None, None), ("ctdivol", 47.0, "head_16cm", True)]
 
 
 def test_bad_unit_is_rejected_naming_the_row(tmp_path):
@@ -43,9 +45,14 @@ def test_bad_unit_is_rejected_naming_the_row(tmp_path):
     ({"value": "-1"}, r"row 2: value '-1' must be a finite positive number"),
     ({"value": "0"}, r"row 2: value '0' must be a finite positive number"),
     ({"value": "lots"}, r"row 2: value 'lots' is not a number"),
-    ({"population": "child"}, r"row 2: population must be adult or paediatric"),
+    ({"population": "child"}, r"row 2: population must be adult, paediatric or all"),
     ({"phantom": "head_16cm"}, r"row 2: phantom 'head_16cm' given for dlp"),
     ({"quantity": "ctdivol", "unit": "mGy", "phantom": "body_16cm"}, r"row 2: phantom must be"),
+    ({"quantity": "ctdivol", "unit": "mGy", "phantom": "head_16cm"},
+     r"row 2: phantom_stated must be given"),
+    ({"country": "gb"}, r"row 2: country 'gb' is not an ISO 3166-1 alpha-2"),
+    ({"country": ""}, r"row 2: country is empty"),
+    ({"valid_to": "2023"}, r"row 2: valid_to '2023' is not a date .* on or after effective_date"),
     ({"verified": "yes"}, r"row 2: verified must be true or false"),
     ({"citation_url": "gov.uk"}, r"row 2: citation_url 'gov.uk' is not an http"),
     ({"citation_year": "22"}, r"row 2: citation_year '22' is not a four-digit year"),

@@ -24,7 +24,7 @@ ENV = {**os.environ, "KERMA_PSEUDONYM_KEY": KEY.decode(), "PYTHONPATH": str(ROOT
 
 @pytest.fixture(scope="session")
 def small_corpus(tmp_path_factory) -> Path:
-    """60 studies of the demo network (seed 11, one month): 86 files with every defect kind."""
+    """60 studies of the demo network (seed 11, one month), with every defect kind."""
     out = tmp_path_factory.mktemp("reliability") / "inbox"
     write_corpus(out, seed=11, months=1, n_studies=60, workers=1)
     return out

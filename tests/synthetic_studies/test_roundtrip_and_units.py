@@ -15,7 +15,10 @@ import math
 import highdicom as hd
 import pydicom
 import pytest
+
 from pydicom.sr.coding import Code
+
+from synthetic_studies.scenario import load_scenario
 
 DOSE_SR = "1.2.840.10008.5.1.4.1.1.88.67"
 DAP = Code("122130", "DCM", "Dose Area Product")
@@ -117,9 +120,11 @@ def test_mammography_agd_in_mgy_matches_manifest(corpus, files_manifest, studies
     rows = _clean_single_report(files_manifest, studies_manifest, ["MG"])
     rows = rows[rows.kind == "rdsr"]  # header images of ovh-mg1 are checked below
     assert len(rows) > 10
+    views = {exam: len(spec.events) for exam, spec in load_scenario().exams.items()}
+    assert views["mg_screening"] == 4 and views["mg_diagnostic"] == 2  # the demo's archetypes
     for row in rows.itertuples():
         values = _nums(pydicom.dcmread(corpus / row.path), AGD)
-        assert len(values) == 4 and {u for _, u in values} == {"mGy"}
+        assert len(values) == views[row.exam] and {u for _, u in values} == {"mGy"}
         assert math.isclose(sum(v for v, _ in values), row.agd_mgy, rel_tol=1e-9)
 
 
@@ -152,19 +157,21 @@ def test_mammography_header_organ_dose_in_dgy_matches_rdsr_and_manifest(
         corpus, files_manifest, studies_manifest):
     studies, files = _study_files(files_manifest, studies_manifest, "ovh-mg1")
     assert len(studies) > 10
+    views = {exam: len(spec.events) for exam, spec in load_scenario().exams.items()}
     for study in studies.itertuples():
         mine = files[files.study == study.study]
         (rdsr_path,) = mine.loc[mine.kind == "rdsr", "path"]
         events = _event_items(pydicom.dcmread(corpus / rdsr_path), IRRADIATION_EVENT_XRAY_DATA)
         images = [pydicom.dcmread(corpus / p) for p in mine.loc[mine.kind == "image_header", "path"]]
-        assert len(images) == len(events) == study.event_count == study.n_header_images == 4
+        n_views = views[study.exam]  # 4 for screening, 2 for the unmapped diagnostic archetype
+        assert len(images) == len(events) == study.event_count == study.n_header_images == n_views
         assert {ds.SOPClassUID for ds in images} == {MG_IMAGE}
         # PS3.3 C.8.7.8: Organ Dose (0040,0316) in dGy; 1 dGy = 100 mGy
         agd_mgy = [float(ds.OrganDose) * 100.0 for ds in images]
         assert math.isclose(sum(agd_mgy), study.agd_mgy, rel_tol=1e-9)
         assert all(ds.OrganExposed == "BREAST" for ds in images)
         uids = [ds.IrradiationEventUID for ds in images]
-        assert len(set(uids)) == 4 and set(uids) <= set(events)
+        assert len(set(uids)) == n_views and set(uids) <= set(events)
         for ds, agd in zip(images, agd_mgy):
             event = events[ds.IrradiationEventUID]
             ((sr_agd, unit),) = _nums(event, AGD)  # PS3.16 TID 10003: mGy
