@@ -8,6 +8,7 @@ import uuid
 from collections.abc import Iterator
 from pathlib import Path
 
+from ..errors import WarehouseError
 from ..warehouse.connection import connection
 from ..warehouse.load import ensure_schema
 from ..warehouse.records import PipelineRunEnd, finish_pipeline_run, start_pipeline_run
@@ -41,8 +42,11 @@ def recorded_run(warehouse: Path, flow: str, period: str | None) -> Iterator[Pip
     except BaseException as exc:
         end.state = "FAILED"
         end.detail = (str(exc).splitlines() or [type(exc).__name__])[0][:500]
-        with connection(warehouse) as con:
-            finish_pipeline_run(con, run_id, end, dt.datetime.now())
+        try:
+            with connection(warehouse) as con:
+                finish_pipeline_run(con, run_id, end, dt.datetime.now())
+        except WarehouseError:
+            pass   # the warehouse itself failed: the flow's own error, raised next, says so
         raise
     with connection(warehouse) as con:
         finish_pipeline_run(con, run_id, end, dt.datetime.now())

@@ -24,7 +24,8 @@ from pynetdicom.sop_class import (StudyRootQueryRetrieveInformationModelFind,
 from ..errors import ArchiveError
 from ..parsing import DOSE_SR_CLASSES
 from .inbox import instance_path, is_valid_uid
-from .scp import SR_TRANSFER_SYNTAXES, handle_store, make_storage_ae, start_storage_scp
+from .scp import (SR_TRANSFER_SYNTAXES, forget_association, handle_store, make_storage_ae,
+                  start_storage_scp)
 
 __all__ = ["Instance", "PullSummary", "close_transport", "date_range", "find_dose_reports",
            "pull_dimse"]
@@ -232,6 +233,7 @@ def pull_dimse(*, host: str, port: int, archive_ae: str, ae_title: str, our_port
             if assoc.is_established:
                 assoc.release()
             close_transport(assoc)
+            forget_association(assoc)
     finally:
         if server is not None:
             server.shutdown()

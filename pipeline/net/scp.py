@@ -26,7 +26,8 @@ from ..parsing import DOSE_SR_CLASSES, IMAGE_CLASSES
 from .inbox import clear_partial, is_valid_uid, write_atomic
 
 __all__ = ["IMAGE_TRANSFER_SYNTAXES", "SR_TRANSFER_SYNTAXES", "STATUS", "STORAGE_CLASSES",
-           "AssociationLog", "handle_store", "make_storage_ae", "start_storage_scp"]
+           "AssociationLog", "forget_association", "handle_store", "make_storage_ae",
+           "start_storage_scp"]
 
 logger = logging.getLogger("kerma.net")
 
@@ -69,6 +70,12 @@ def _log_of(event) -> AssociationLog:
                 calling_ae=str(requestor.ae_title).strip(),
                 peer=f"{requestor.address}:{requestor.port}")
         return entry
+
+
+def forget_association(assoc) -> AssociationLog | None:
+    """Drop and return the counts of `assoc` (for associations we requested, e.g. C-GET)."""
+    with _LOGS_LOCK:
+        return _LOGS.pop(id(assoc), None)
 
 
 def handle_store(event, inbox: Path) -> int:

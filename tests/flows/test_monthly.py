@@ -161,3 +161,35 @@ def test_kerma_demo_runs_through_the_monthly_flow(tmp_path):
     assert monthly[3] == "2026-09-01..2026-11-30" and monthly[4] == "COMPLETED"
     assert monthly[5] == _file_counts(out / "kerma.duckdb")["loaded"]
     assert (out / "site" / "index.html").exists()
+
+
+def test_kerma_schedule_monthly_serves_until_stopped(inbox, tmp_path, key_file):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    from pathlib import Path
+
+    log_path = tmp_path / "schedule.log"
+    env = {**os.environ, "PREFECT_HOME": str(tmp_path / "prefect"), "COLUMNS": "200",
+           "PREFECT_LOGGING_LEVEL": "INFO"}
+    with open(log_path, "w") as log:
+        proc = subprocess.Popen(
+            [str(Path(sys.executable).parent / "kerma"), "schedule", "monthly", "--cron",
+             "0 6 1 * *", "--warehouse", str(tmp_path / "kerma.duckdb"), "--inbox", str(inbox),
+             "--out", str(tmp_path / "site"), "--key-file", str(key_file)],
+            stdout=log, stderr=subprocess.STDOUT, env=env)
+        try:
+            deadline = time.monotonic() + 120
+            while "deployments are being served" not in log_path.read_text():
+                assert proc.poll() is None, log_path.read_text()
+                assert time.monotonic() < deadline, log_path.read_text()
+                time.sleep(0.2)
+        finally:
+            proc.send_signal(signal.SIGTERM)
+            proc.wait(timeout=60)        # SIGTERM ends serving (systemd's stop)
+    text = log_path.read_text()
+    assert "on cron '0 6 1 * *'" in text and "monthly/kerma-monthly" in text
+    assert "SIGTERM received" in text
+    assert not (tmp_path / "kerma.duckdb").exists()     # serving alone runs nothing

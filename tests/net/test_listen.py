@@ -11,6 +11,7 @@ import time
 from pathlib import Path
 
 import pydicom
+import pytest
 from pydicom.uid import RLELossless, generate_uid
 from pynetdicom import AE
 from pynetdicom.sop_class import Verification
@@ -208,3 +209,30 @@ def test_ingest_every_drains_the_inbox_into_the_warehouse_and_archives(listener,
             "select sop_instance_uid, status from source_object").fetchall())
     assert set(recorded) == {sop_uid(p) for p in sendable}
     assert set(recorded.values()) <= {"loaded", "duplicate"} and "loaded" in recorded.values()
+
+
+@pytest.mark.external
+def test_storescu_deflated_and_compressed_objects_are_stored_as_received(listener, sendable,
+                                                                         tmp_path):
+    """dcmtk writes a deflated dose SR (dcmconv +td), a JPEG lossless and a JPEG-LS image
+    (dcmcjpeg, dcmcjpls); storescu proposes each syntax; each file keeps it."""
+    storescu = require_tool("storescu")
+    report = next(p for p in sendable if "rdsr_" in p.name)
+    images = [p for p in sendable if "img_" in p.name][:2]
+    made = {"-xd": (tmp_path / "deflated.dcm", [require_tool("dcmconv"), "+td", report]),
+            "-xs": (tmp_path / "jpeg.dcm", [require_tool("dcmcjpeg"), images[0]]),
+            "-xt": (tmp_path / "jls.dcm", [require_tool("dcmcjpls"), images[1]])}
+    scp = listener()
+    for option, (out, command) in made.items():
+        subprocess.run([*map(str, command), str(out)], check=True, capture_output=True)
+        sent = subprocess.run([storescu, option, "-aec", scp.ae_title, "127.0.0.1",
+                               str(scp.port), str(out)], capture_output=True, text=True, timeout=60)
+        assert sent.returncode == 0, sent.stderr
+    scp.wait_for("outcome=released", count=3)
+    syntaxes = {}
+    for out, _ in made.values():
+        stored = scp.inbox / f"{sop_uid(out)}.dcm"
+        _same_object(stored, out)
+        syntaxes[out.stem] = pydicom.dcmread(stored).file_meta.TransferSyntaxUID
+    assert syntaxes == {"deflated": pydicom.uid.DeflatedExplicitVRLittleEndian,
+                        "jpeg": pydicom.uid.JPEGLosslessSV1, "jls": pydicom.uid.JPEGLSLossless}

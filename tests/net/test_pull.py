@@ -46,6 +46,8 @@ def test_pull_over_dimse_is_idempotent(archive, tmp_path, method):
     _assert_fetched_all(archive, inbox)
     second = kerma(*_dimse(archive, inbox, "--method", method))
     assert _counts(second.stdout) == {**counts, "already": n, "fetched": 0}
+    if method == "get":
+        return   # resuming is the same code path for both methods; checked once, with move
     # resumable: what went missing (an interrupted run) is fetched, and only that
     missing = sorted(inbox.iterdir())[0]
     missing.unlink()
