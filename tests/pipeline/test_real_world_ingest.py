@@ -596,18 +596,35 @@ def test_secondary_capture_that_is_no_dose_screen_is_not_a_dose_class(tmp_path):
 
 # --- through the warehouse: study values, precedence, public columns --------------------------
 
-def _study(con, study_uid=STUDY_UID):
+def ingest_objects(tmp_path: Path, objects: dict[str, bytes]):
+    """Write `objects` (file name -> bytes) to an inbox and ingest it into a new warehouse."""
+    inbox = tmp_path / "inbox"
+    inbox.mkdir(exist_ok=True)
+    for name, data in objects.items():
+        (inbox / name).write_bytes(data)
+    db = tmp_path / "k.duckdb"
+    return db, ingest([inbox], db, KEY)
+
+
+def query(db: Path, text: str, params=()):
+    import duckdb
+    with duckdb.connect(str(db), read_only=True) as con:
+        return con.execute(text, list(params)).fetchall()
+
+
+def study_row(db: Path, study_uid: str = STUDY_UID):
+    import duckdb
+
     from pipeline.pseudonym import make_pseudonymiser
     key = make_pseudonymiser(KEY)("study", study_uid)
-    return con.execute("select * from study_dose where study_key = ?", [key]).df()
+    with duckdb.connect(str(db), read_only=True) as con:
+        return con.execute("select * from study_dose where study_key = ?", [key]).df().iloc[0]
 
 
 def test_header_only_ct_study_values(tmp_path):
     """Two reconstructions of one helical acquisition (5 mm and 2 mm slices over the same
     range, the same CTDIvol), a localizer and a second acquisition: CTDIvol = mean over the
     acquisitions of each one's highest value; DLP = sum of mean CTDIvol x covered length."""
-    inbox = tmp_path / "inbox"
-    inbox.mkdir()
     files = []
     # acquisition 1: z 0..95 mm, 5 mm slices, CTDIvol 40 / 42 (modulated), recon 2: 2 mm
     for i in range(20):
@@ -621,15 +638,10 @@ def test_header_only_ct_study_values(tmp_path):
         files.append(ct_image(i + 1, ctdivol="20", z=100.0 + 5.0 * i, series=4))
     scout = ct_image(1, ctdivol="0.3", z=0.0, series=1, image_type=("ORIGINAL", "PRIMARY", "LOCALIZER"))
     files.append(scout)
-    for n, ds in enumerate(files):
-        (inbox / f"{n:03d}.dcm").write_bytes(part10(ds))
-    db = tmp_path / "k.duckdb"
-    ingest([inbox], db, KEY)
-    import duckdb
-    with duckdb.connect(str(db), read_only=True) as con:
-        row = _study(con).iloc[0]
-        series = con.execute("select series_key, is_localizer, is_reconstruction, "
-                             "covered_length_mm from stg_ct_image_series order by 1").fetchall()
+    db, _ = ingest_objects(tmp_path, {f"{n:03d}.dcm": part10(ds) for n, ds in enumerate(files)})
+    row = study_row(db)
+    series = query(db, "select series_key, is_localizer, is_reconstruction, covered_length_mm "
+                       "from stg_ct_image_series order by 1")
     assert row.source_kind == "image_header" and row.dlp_method == "estimated_from_images"
     assert row.ctdivol_mgy == pytest.approx((42 + 20) / 2)
     # acquisition 1: mean 41 mGy x (95 + 5) mm = 410 mGy.cm; acquisition 2: 20 x 5.0 cm = 100
@@ -639,42 +651,41 @@ def test_header_only_ct_study_values(tmp_path):
 
 
 def test_dose_screen_outranks_image_headers_and_dose_report_outranks_both(tmp_path):
-    inbox = tmp_path / "inbox"
-    inbox.mkdir()
-    for i in range(3):
-        (inbox / f"img{i}.dcm").write_bytes(part10(ct_image(i + 1, ctdivol="30", z=5.0 * i)))
+    objects = {f"img{i}.dcm": part10(ct_image(i + 1, ctdivol="30", z=5.0 * i)) for i in range(3)}
     items = [screen_item("14.2", "DLP=560.3"), screen_item("9.85", "DLP=211.0")]
-    write_dump(inbox, "screen", dose_screen_dump(items, "Total DLP: 771.3", sop="2.25.3142000005"))
-    (inbox / "screen.txt").unlink()
-    db = tmp_path / "k.duckdb"
-    summary = ingest([inbox], db, KEY)
+    screen = write_dump(tmp_path, "screen", dose_screen_dump(items, "Total DLP: 771.3",
+                                                              sop="2.25.3142000005"))
+    objects["screen.dcm"] = screen.read_bytes()
+    db, summary = ingest_objects(tmp_path, objects)
     assert summary.loaded == 4
-    import duckdb
-    with duckdb.connect(str(db), read_only=True) as con:
-        row = _study(con).iloc[0]
-        kinds = con.execute("select source_kind, count(*) from irradiation_event group by 1").fetchall()
-    assert kinds == [("dose_screen", 2)]
+    row = study_row(db)
+    assert query(db, "select source_kind, count(*) from irradiation_event group by 1") == \
+        [("dose_screen", 2)]
     assert row.source_kind == "dose_screen" and row.dlp_method == "event_sum"
     assert row.dlp_total_mgy_cm == pytest.approx(771.3)
     # length-weighted CTDIvol with L = DLP / CTDIvol: sum(DLP) / sum(DLP / CTDIvol)
     assert row.ctdivol_mgy == pytest.approx(771.3 / (560.3 / 14.2 + 211.0 / 9.85))
+    # a dose report of the same study and modality arrives: only its events count
+    spec, rdsr = demo_dataset("tgh-ct1")
+    rdsr.StudyInstanceUID = STUDY_UID
+    db, summary = ingest_objects(tmp_path, {"rdsr.dcm": encode(rdsr)})
+    assert summary.loaded == 1
+    kinds = query(db, "select distinct source_kind from irradiation_event")
+    assert kinds == [("rdsr",)]
+    (dlp,) = query(db, "select sum(dlp_total_mgy_cm) from study_dose")[0]
+    assert dlp == pytest.approx(sum(e.dlp_mgy_cm for e in spec.ct_events))
 
 
 def test_entrance_dose_study_total_is_apart_from_ka_r(tmp_path):
-    inbox = tmp_path / "inbox"
-    inbox.mkdir()
+    objects = {}
     for i, mgy in enumerate(["0.21", "0.35"]):
         ds = dx_image(EntranceDoseInmGy=mgy, ImageAndFluoroscopyAreaDoseProduct="1.0")
         ds.SOPInstanceUID = _uid(7000 + i)
         ds.IrradiationEventUID = _uid(7100 + i)
-        (inbox / f"dx{i}.dcm").write_bytes(part10(ds))
-    db = tmp_path / "k.duckdb"
-    ingest([inbox], db, KEY)
-    import duckdb
-    with duckdb.connect(str(db), read_only=True) as con:
-        row = _study(con).iloc[0]
-        events = con.execute("select entrance_dose_mgy, dose_rp_mgy from irradiation_event "
-                             "order by 1").fetchall()
+        objects[f"dx{i}.dcm"] = part10(ds)
+    db, _ = ingest_objects(tmp_path, objects)
+    row = study_row(db)
+    events = query(db, "select entrance_dose_mgy, dose_rp_mgy from irradiation_event order by 1")
     assert events == [(0.21, None), (0.35, None)]
     assert row.entrance_dose_total_mgy == pytest.approx(0.56)
     assert math.isnan(row.dose_rp_total_mgy) or row.dose_rp_total_mgy is None
@@ -692,13 +703,7 @@ def test_only_entrance_surface_air_kerma_is_audited_as_ka_e(derivation, quantity
     ds.ViewPosition = "PA"
     if derivation:
         ds.EntranceDoseDerivation = derivation
-    inbox = tmp_path / "inbox"
-    inbox.mkdir()
-    (inbox / "dx.dcm").write_bytes(part10(ds))
-    db = tmp_path / "k.duckdb"
-    ingest([inbox], db, KEY)
-    import duckdb
-    with duckdb.connect(str(db), read_only=True) as con:
-        rows = con.execute("select quantity, value from audit_observation "
-                           "where quantity not in ('dap') order by 1").fetchall()
+    db, _ = ingest_objects(tmp_path, {"dx.dcm": part10(ds)})
+    rows = query(db, "select quantity, value from audit_observation "
+                     "where quantity not in ('dap') order by 1")
     assert rows == [(quantity, 0.21)]
