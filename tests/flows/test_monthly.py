@@ -191,5 +191,7 @@ def test_kerma_schedule_monthly_serves_until_stopped(inbox, tmp_path, key_file):
             proc.wait(timeout=60)        # SIGTERM ends serving (systemd's stop)
     text = log_path.read_text()
     assert "on cron '0 6 1 * *'" in text and "monthly/kerma-monthly" in text
-    assert "SIGTERM received" in text
+    # SIGTERM ends serving either way: through Prefect's handler (it logs so) or, when it
+    # arrives before Prefect installed that handler (a loaded machine), by the signal itself
+    assert "SIGTERM received" in text or proc.returncode == -signal.SIGTERM, (proc.returncode, text)
     assert not (tmp_path / "kerma.duckdb").exists()     # serving alone runs nothing
