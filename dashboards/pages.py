@@ -170,6 +170,8 @@ class SiteData:
     # data_check tier (feeds) and pseudonymisation-key epochs; empty when not given
     data_alerts: pd.DataFrame = field(default_factory=pd.DataFrame)
     key_epochs: pd.DataFrame = field(default_factory=pd.DataFrame)
+    capture: pd.DataFrame | None = None          # kerma completeness; None: never run
+    capture_missing: pd.DataFrame | None = None
 
 
 @dataclass
@@ -767,11 +769,26 @@ def _data_quality(data: SiteData) -> Page:
                     Column("started_at", "Started"), Column("is_current", "Current", "bool")),
                    note="Each epoch starts at the date shown; patients are not linked across epochs, "
                         "because their pseudonyms come from different keys.")
+    if data.capture is None:
+        capture_blocks: tuple[Block, ...] = (_empty(
+            "No completeness check has run: `kerma completeness --warehouse FILE --period YYYY-MM "
+            "--dicomweb URL` compares the archive's studies with the dose objects received."),)
+    else:
+        capture_blocks = (
+            Table("dq-capture-completeness", "Archive studies with a dose object, per modality and station",
+                  data.capture, (Column("modality", "Modality"), Column("station_name", "Station"),
+                                 Column("site_label", "Site"), Column("n_archive_studies", "Studies in the archive", "int"),
+                                 Column("n_with_dose_object", "With a dose object", "int"),
+                                 Column("pct_with_dose_object", "Share", "pct"))),
+            Table("dq-capture-missing", "Archive studies without any dose object", data.capture_missing,
+                  (Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "key"),
+                   Column("modality", "Modality"), Column("station_name", "Station"), Column("site_label", "Site"))))
     return Page("data-quality.html", "Data quality", PAGES[6][2],
                 "What limits the audit: descriptions no rule maps, files that could not be used, "
                 "missing patient sizes and values kept out of the audit because their unit or size "
                 "was wrong.",
                 (Section("feeds", "Feeds and key epochs", (feeds, epochs)),
+                 Section("capture", "Capture completeness against the archive", capture_blocks),
                  Section("unmapped", "Unmapped descriptions", (unmapped,)),
                  Section("files", "Quarantined and unused files", (*file_blocks, status, not_loaded)),
                  Section("weight", "Patient size recorded", (*weight_blocks, weight)),

@@ -69,6 +69,14 @@ def _check_audited(con: duckdb.DuckDBPyConnection, warehouse: Path) -> None:
                              f"{', '.join(missing)}): run `kerma audit` or `kerma dashboard` first")
 
 
+def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame]:
+    """The last `kerma completeness` check, when one has run (its tables are optional)."""
+    names = {r[0] for r in con.execute(sql("dash_relations")).fetchall()}
+    if not {"capture_completeness", "capture_missing_studies"} <= names:
+        return {}
+    return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
+
+
 def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | None = None
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
     """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
@@ -109,6 +117,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         value_issues=q("dash_value_issues", **params),
         value_issue_rows=q("dash_value_issue_rows", **params),
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
+        **_capture_frames(con, q),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

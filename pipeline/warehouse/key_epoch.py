@@ -22,8 +22,8 @@ __all__ = ["check_key_epoch", "current_key_epoch"]
 
 def current_key_epoch(con: duckdb.DuckDBPyConnection) -> tuple[int, str, dt.datetime] | None:
     """(epoch, key fingerprint, started at) of the newest key epoch; None before the first ingest."""
-    row = con.execute(sql("select_current_key_epoch")).fetchone()
-    return None if row is None else (int(row[0]), str(row[1]), row[2])
+    rows = con.execute(sql("select_current_key_epoch")).fetchall()   # fetch all: no result left open
+    return None if not rows else (int(rows[0][0]), str(rows[0][1]), rows[0][2])
 
 
 def check_key_epoch(con: duckdb.DuckDBPyConnection, fingerprint: str, *, new_epoch: bool = False,

@@ -62,6 +62,11 @@ def test_a_second_key_is_refused_and_loads_nothing_unless_a_new_epoch_is_asked_f
     assert _epochs(db) == [(1, key_fingerprint(KEY_A.encode()), True)]
     before = _counts(db)
     assert before[0] == 2
+    result = runner.invoke(app, ["ingest", str(root / "first"), "--warehouse", str(db)],
+                           env={"KERMA_PSEUDONYM_KEY": KEY_A})
+    assert result.exit_code == 0, result.output   # same key, same epoch: a rerun is fine
+    assert len(_epochs(db)) == 1 and _counts(db)[0] == 2
+    before = _counts(db)
 
     result = runner.invoke(app, ["ingest", str(root / "second"), "--warehouse", str(db)],
                            env={"KERMA_PSEUDONYM_KEY": KEY_B})
@@ -104,6 +109,11 @@ def test_listen_drain_refuses_another_key_and_keeps_the_files(reports, tmp_path)
         (inbox / path.name).write_bytes(path.read_bytes())
     drain_inbox(inbox, db, tmp_path / "archive", KEY_A.encode())
     assert not any(inbox.iterdir()) and _counts(db)[0] == 2
+    # the same key again: loaded into the same epoch (regression: the epoch query left a result open)
+    extra = write_daily_reports(tmp_path / "extra", "ovh-dx1", [dt.date(2026, 10, 3)])
+    (inbox / extra[0].name).write_bytes(extra[0].read_bytes())
+    assert drain_inbox(inbox, db, tmp_path / "archive", KEY_A.encode()).ingest.key_epoch == 1
+    assert _counts(db)[0] == 3 and len(_epochs(db)) == 1
     for path in second:
         (inbox / path.name).write_bytes(path.read_bytes())
     before = _counts(db)
