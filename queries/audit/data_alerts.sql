@@ -6,6 +6,7 @@
 -- Weekly history: 7-day bins ending at $date_from, from the device's first study in the window
 -- (weeks without a study count as 0); volume_drop needs >= $min_history_weeks such weeks.
 -- item_id: stable across reruns (hash of period, device and kind) so review notes can attach.
+-- action: always 'data_check', the tier reviewed before the dose findings.
 create or replace table data_alerts as
 with
 studies as (
@@ -101,6 +102,7 @@ select
     observed_per_week,
     detail,
     substr(sha256(cast($period as varchar) || '|' || coalesce(device_key, '(network)') || '|' || kind), 1, 16)
-        as item_id
+        as item_id,
+    'data_check' as action   -- the alert tier, as dose_alerts.action: reviewed before dose findings
 from found
 order by device_key nulls first, kind

@@ -67,7 +67,7 @@ def test_unit_whose_daily_reports_stop_mid_period_is_silent_and_below_its_volume
     assert [r["kind"] for r in gone] == ["no_data"]
     assert gone[0]["expected_per_week"] == 1.0 and gone[0]["observed_per_week"] == 0.0
     assert len(rows) == 3 and all(r["device_key"] for r in rows)
-    assert all(len(r["item_id"]) == 16 for r in rows)
+    assert all(len(r["item_id"]) == 16 and r["action"] == "data_check" for r in rows)
     assert [a["kind"] for a in summary.data_alerts] == [r["kind"] for r in rows]
 
 
