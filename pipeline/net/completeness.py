@@ -1,7 +1,7 @@
 """Capture completeness: the archive's studies of a period against the warehouse's dose objects.
 
-The archive is searched by QIDO-RS (PS3.18 10.6): studies by Study Date, then each study's
-series with their Modality and Station Name (0008,1010). A study counts for every (modality,
+The archive is searched by QIDO-RS (PS3.18 10.6) or C-FIND (Study Root, PS3.4 C.6.2): studies
+by Study Date, then each study's series with their Modality and Station Name (0008,1010). A study counts for every (modality,
 station) of its image series (its SR series when it has no image series). Study Instance UIDs
 are pseudonymised with the warehouse's key before they are compared or stored, so the
 warehouse never holds an identifier; a study "has a dose object" when the warehouse holds any
@@ -20,7 +20,7 @@ from .dicomweb import _search, _value
 from .dimse import date_range
 
 __all__ = ["ArchiveStudy", "CompletenessSummary", "check_completeness", "completeness_rows",
-           "find_archive_studies_web"]
+           "find_archive_studies_dimse", "find_archive_studies_web"]
 
 _STUDY_UID, _STUDY_DATE, _MODALITY, _STATION = "0020000D", "00080020", "00080060", "00081010"
 NON_IMAGE_MODALITIES = frozenset({"SR", "PR", "KO", "DOC", "REG", "SEG", "OT"})
@@ -56,10 +56,66 @@ def find_archive_studies_web(client: httpx.Client, date_from: dt.date,
             continue
         day = _date(_value(study, _STUDY_DATE))
         series = _search(client, f"/studies/{uid}/series", {"includefield": _STATION})
-        pairs = {(_value(s, _MODALITY).upper(), _value(s, _STATION) or None) for s in series}
-        images = {p for p in pairs if p[0] and p[0] not in NON_IMAGE_MODALITIES}
-        for modality, station in sorted(images or pairs, key=lambda p: (p[0], p[1] or "")):
-            out.append(ArchiveStudy(uid, day, modality or "(none)", station))
+        out += _study_rows(uid, day, {(_value(s, _MODALITY).upper(), _value(s, _STATION) or None)
+                                      for s in series})
+    return out
+
+
+def _study_rows(uid: str, day: dt.date | None, pairs: set) -> list[ArchiveStudy]:
+    """One row per (modality, station) of the study's image series, else of all its series."""
+    images = {p for p in pairs if p[0] and p[0] not in NON_IMAGE_MODALITIES}
+    return [ArchiveStudy(uid, day, modality or "(none)", station)
+            for modality, station in sorted(images or pairs, key=lambda p: (p[0], p[1] or ""))]
+
+
+def find_archive_studies_dimse(*, host: str, port: int, archive_ae: str, ae_title: str,
+                               date_from: dt.date, date_to: dt.date, ssl_context=None,
+                               timeout: float = 60) -> list[ArchiveStudy]:
+    """As :func:`find_archive_studies_web`, by C-FIND (Study Root) on one association.
+
+    Raises ArchiveError when the association is refused or a query fails.
+    """
+    from pydicom.dataset import Dataset
+    from pynetdicom import AE
+    from pynetdicom.sop_class import StudyRootQueryRetrieveInformationModelFind
+
+    from ..errors import ArchiveError
+    from .dimse import _find, _text, close_transport
+    from .scp import forget_association
+
+    ae = AE(ae_title=ae_title)
+    ae.acse_timeout = ae.dimse_timeout = ae.network_timeout = timeout
+    ae.add_requested_context(StudyRootQueryRetrieveInformationModelFind)
+    assoc = ae.associate(host, port, ae_title=archive_ae,
+                         tls_args=(ssl_context, host) if ssl_context else None)
+    if not assoc.is_established:
+        close_transport(assoc)
+        raise ArchiveError(f"archive {archive_ae} at {host}:{port} refused or did not answer "
+                           f"the association from {ae_title}")
+    out: list[ArchiveStudy] = []
+    try:
+        query = Dataset()
+        query.QueryRetrieveLevel = "STUDY"
+        query.StudyDate = date_range(date_from, date_to)
+        query.StudyInstanceUID = ""
+        studies = {_text(s, "StudyInstanceUID"): _date(_text(s, "StudyDate"))
+                   for s in _find(assoc, query, "studies")}
+        for uid, day in studies.items():
+            if not uid:
+                continue
+            query = Dataset()
+            query.QueryRetrieveLevel = "SERIES"
+            query.StudyInstanceUID = uid
+            query.SeriesInstanceUID = ""
+            query.Modality = ""
+            query.StationName = ""
+            out += _study_rows(uid, day, {(_text(s, "Modality").upper(), _text(s, "StationName") or None)
+                                          for s in _find(assoc, query, f"series of {uid}")})
+    finally:
+        if assoc.is_established:
+            assoc.release()
+        close_transport(assoc)
+        forget_association(assoc)
     return out
 
 
@@ -120,9 +176,12 @@ class CompletenessSummary:
         return sum(r["n_with_dose_object"] for r in self.devices)
 
 
-def check_completeness(url: str, warehouse, key: bytes, *, date_from: dt.date, date_to: dt.date,
-                       period: str, verify: bool | str = True) -> CompletenessSummary:
-    """Search the archive at DICOMweb root `url`, compare with `warehouse`, store the result.
+def check_completeness(find: Callable[[], list[ArchiveStudy]], warehouse, key: bytes, *,
+                       period: str) -> CompletenessSummary:
+    """Search the archive with `find`, compare with `warehouse`, store the result.
+
+    `find` is e.g. ``lambda: find_archive_studies_web(client, first, last)`` or
+    ``functools.partial(find_archive_studies_dimse, ...)``.
 
     Writes ``capture_completeness`` and ``capture_missing_studies`` (replaced on each run).
 
@@ -143,8 +202,7 @@ def check_completeness(url: str, warehouse, key: bytes, *, date_from: dt.date, d
 
     with connection(warehouse, read_only=True):   # refuse a missing warehouse before the search
         pass
-    with httpx.Client(base_url=url.rstrip("/"), timeout=60, verify=verify) as client:
-        studies = find_archive_studies_web(client, date_from, date_to)
+    studies = find()
     with connection(warehouse) as con:
         ensure_schema(con)
         held = {r[0] for r in con.execute(sql("select_held_study_keys")).fetchall()}

@@ -26,6 +26,7 @@ def _headers(archive):
 
 
 def test_completeness_counts_the_archive_against_the_warehouse(archive, tmp_path):
+    """QIDO-RS; the C-FIND test below must store exactly the same rows."""
     headers = _headers(archive)
     image_stations = sorted({(m, st) for _, m, st, _ in headers if m not in ("SR", "OT")})
     skipped = image_stations[0]   # this (modality, station): its studies are not ingested
@@ -78,3 +79,26 @@ def test_completeness_refuses_a_missing_warehouse(archive, tmp_path):
     result = kerma("completeness", "--warehouse", str(missing), "--period", "2026-09",
                    "--dicomweb", f"{archive.url}/dicom-web")
     assert result.returncode == 2 and "does not exist" in result.stdout and not missing.exists()
+
+
+def test_completeness_by_c_find_matches_qido_rs(archive, tmp_path):
+    headers = _headers(archive)
+    db = tmp_path / "kerma.duckdb"
+    mammo = {uid for uid, m, _, _ in headers if m == "MG"}
+    assert mammo
+    ingest([p for uid, _, _, p in headers if uid not in mammo], db, KEY)   # mammography studies missing
+    results = {}
+    for name, args in (("qido", ["--dicomweb", f"{archive.url}/dicom-web"]),
+                       ("cfind", ["--archive", f"127.0.0.1:{archive.dicom_port}", "--archive-ae",
+                                  archive.aet, "--ae-title", "KERMAPULL"])):
+        result = kerma("completeness", "--warehouse", str(db), "--period", "2026-09", *args)
+        assert result.returncode == 0, result.stdout + result.stderr
+        with duckdb.connect(str(db), read_only=True) as con:
+            results[name] = (
+                con.execute("select * from capture_completeness order by all").fetchall(),
+                con.execute("select * from capture_missing_studies order by all").fetchall())
+    assert results["qido"] == results["cfind"]
+    rows, missing = results["cfind"]
+    mg = [r for r in rows if r[1] == "MG"]
+    assert mg and all(r[5] == 0 for r in mg) and sum(r[4] for r in mg) == len(mammo)
+    assert len(missing) >= len(mammo)
