@@ -167,6 +167,11 @@ class SiteData:
     weight_share: pd.DataFrame
     value_issues: pd.DataFrame
     value_issue_rows: pd.DataFrame
+    # data_check tier (feeds) and pseudonymisation-key epochs; empty when not given
+    data_alerts: pd.DataFrame = field(default_factory=pd.DataFrame)
+    key_epochs: pd.DataFrame = field(default_factory=pd.DataFrame)
+    capture: pd.DataFrame | None = None          # kerma completeness; None: never run
+    capture_missing: pd.DataFrame | None = None
 
 
 @dataclass
@@ -413,6 +418,40 @@ def _pct(part: int, whole: int) -> str:
     return f"{100.0 * part / whole:.1f} %" if whole else "–"
 
 
+_DATA_ALERT_COLUMNS = (
+    Column("kind", "Kind"), Column("site_label", "Site"), Column("room_label", "Room"),
+    Column("last_study_date", "Last study", "date"), Column("expected_per_week", "Usual studies / week", "num"),
+    Column("observed_per_week", "Studies / week in period", "num"), Column("detail", "Detail"),
+    Column("item_id", "Item", "key"))
+
+NO_DATA = "no data for this period"
+
+
+def _data_checks(data: SiteData, n_studies: int) -> Section:
+    """The data_check tier, shown before the dose findings: no data is never a clean month."""
+    blocks: list[Block] = []
+    if n_studies == 0:
+        blocks.append(Note(f'<p class="finding-no-data"><strong>Finding: {NO_DATA}.</strong> The warehouse '
+                           "holds no study dated in the audit period, so no dose finding can be made. "
+                           "This is not a clean audit: check that the period's dose reports were "
+                           "received and ingested.</p>"))
+    rows = data.data_alerts
+    device_rows = rows[rows["device_key"].notna()] if not rows.empty else rows
+    blocks.append(Table("overview-data-alerts", "Feeds of dose reports to check (data_check)", device_rows,
+                        _DATA_ALERT_COLUMNS,
+                        note="A device that sent nothing for several days at the end of the period, or far "
+                             "fewer studies per week than over the previous months, may have lost its "
+                             "export of dose reports: its exams are missing from the audit below."))
+    epochs = data.key_epochs
+    if len(epochs) > 1:
+        since = ", ".join(f"epoch {int(r.epoch)} from {pd.Timestamp(r.started_at):%Y-%m-%d}"
+                          for r in epochs.iloc[1:].itertuples(index=False))
+        blocks.append(Note(f'<p class="key-epochs"><strong>Patients are not linked across key epochs</strong> '
+                           f"({_e(since)}): files loaded from that date carry pseudonyms of a new key, so "
+                           "cumulative-dose checks do not join a patient's studies across the change.</p>"))
+    return Section("data-checks", "Data checks (review first)", tuple(blocks))
+
+
 # --- the pages --------------------------------------------------------------------------------
 def _overview(data: SiteData, ctx: Context, drift: Table) -> Page:
     o = data.overview
@@ -462,8 +501,11 @@ def _overview(data: SiteData, ctx: Context, drift: Table) -> Page:
         "The month's radiation-dose audit of the network at a glance. Each tile links to the page "
         "with the detail. Medians are compared with the reference levels by the ICRP Publication 135 "
         "method: the median per room and exam type, with its 95 % confidence interval.",
-        (Section("glance", "At a glance", (Note(f'<div class="tiles">{"".join(tiles)}</div>'),)),
-         Section("findings", "Findings to review", (findings, drift, alerts)),
+        (_data_checks(data, n_studies),
+         Section("glance", "At a glance", (Note(f'<div class="tiles">{"".join(tiles)}</div>'),)),
+         Section("findings", "Findings to review",
+                 (findings, drift, alerts) if n_studies else
+                 (_empty(f"No dose findings can be made: {NO_DATA}."),)),
          Section("sets", "Reference sets", (sets,))),
     )
 
@@ -720,11 +762,34 @@ def _data_quality(data: SiteData) -> Page:
     if not data.source_status.empty:
         file_blocks.append(Plot("fig-file-status", figures.build_file_status(
             data.source_status, title="Input files by outcome"), ""))
+    feeds = Table("dq-data-alerts", "Feeds of dose reports: silent devices and volume drops", data.data_alerts,
+                  _DATA_ALERT_COLUMNS)
+    epochs = Table("dq-key-epochs", "Pseudonymisation-key epochs (fingerprints, never the key)", data.key_epochs,
+                   (Column("epoch", "Epoch", "int"), Column("key_fingerprint", "Key fingerprint", "key"),
+                    Column("started_at", "Started"), Column("is_current", "Current", "bool")),
+                   note="Each epoch starts at the date shown; patients are not linked across epochs, "
+                        "because their pseudonyms come from different keys.")
+    if data.capture is None:
+        capture_blocks: tuple[Block, ...] = (_empty(
+            "No completeness check has run: `kerma completeness --warehouse FILE --period YYYY-MM "
+            "--dicomweb URL` compares the archive's studies with the dose objects received."),)
+    else:
+        capture_blocks = (
+            Table("dq-capture-completeness", "Archive studies with a dose object, per modality and station",
+                  data.capture, (Column("modality", "Modality"), Column("station_name", "Station"),
+                                 Column("site_label", "Site"), Column("n_archive_studies", "Studies in the archive", "int"),
+                                 Column("n_with_dose_object", "With a dose object", "int"),
+                                 Column("pct_with_dose_object", "Share", "pct"))),
+            Table("dq-capture-missing", "Archive studies without any dose object", data.capture_missing,
+                  (Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "key"),
+                   Column("modality", "Modality"), Column("station_name", "Station"), Column("site_label", "Site"))))
     return Page("data-quality.html", "Data quality", PAGES[6][2],
                 "What limits the audit: descriptions no rule maps, files that could not be used, "
                 "missing patient sizes and values kept out of the audit because their unit or size "
                 "was wrong.",
-                (Section("unmapped", "Unmapped descriptions", (unmapped,)),
+                (Section("feeds", "Feeds and key epochs", (feeds, epochs)),
+                 Section("capture", "Capture completeness against the archive", capture_blocks),
+                 Section("unmapped", "Unmapped descriptions", (unmapped,)),
                  Section("files", "Quarantined and unused files", (*file_blocks, status, not_loaded)),
                  Section("weight", "Patient size recorded", (*weight_blocks, weight)),
                  Section("issues", "Value-level issues", (issues, issue_rows))))

@@ -28,9 +28,9 @@ __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
 
 # Relations the audit (pipeline.audit.run_audit) writes, and the views the site also reads.
 AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags",
-                "monthly_medians", "study_estimate")
+                "monthly_medians", "study_estimate", "data_alerts")
 _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
-          "audit_observation", "reference_level")
+          "audit_observation", "reference_level", "key_epoch")
 
 
 def _exam_types() -> pd.DataFrame:
@@ -67,6 +67,14 @@ def _check_audited(con: duckdb.DuckDBPyConnection, warehouse: Path) -> None:
     if missing:
         raise WarehouseError(f"warehouse {warehouse} has not been audited (missing "
                              f"{', '.join(missing)}): run `kerma audit` or `kerma dashboard` first")
+
+
+def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame]:
+    """The last `kerma completeness` check, when one has run (its tables are optional)."""
+    names = {r[0] for r in con.execute(sql("dash_relations")).fetchall()}
+    if not {"capture_completeness", "capture_missing_studies"} <= names:
+        return {}
+    return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
 def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | None = None
@@ -108,6 +116,8 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         files_not_loaded=q("dash_quarantined_files"), weight_share=q("dash_weight_share", **params),
         value_issues=q("dash_value_issues", **params),
         value_issue_rows=q("dash_value_issue_rows", **params),
+        data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
+        **_capture_frames(con, q),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

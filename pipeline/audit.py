@@ -1,7 +1,8 @@
 """The monthly audit (the shell): choose the period and reference sets, run queries/audit/*.sql.
 
 Tables written (replaced on each run, public interface): ``audit_medians``,
-``network_reference``, ``dose_alerts``, ``drift_flags``; plus ``monthly_medians`` and
+``network_reference``, ``dose_alerts``, ``drift_flags``, ``data_alerts`` (the data_check
+tier: feeds that went quiet or thin); plus ``monthly_medians`` and
 ``study_estimate`` (SSDE and effective dose) for the dashboards.
 """
 
@@ -56,12 +57,20 @@ class AuditSettings:
     # AAPM 204 fit coefficients are corroborated by secondary sources only (see
     # queries/seeds/ssde_coefficients.csv); used, and the method says so.
     ssde_use_unverified_fit: bool = True
+    # Feed monitoring (data_alerts): common practice, no source. A device silent for this many
+    # days at the end of the period, or whose weekly volume fell below this fraction of its
+    # median week over the previous history_months, gets a data_check row.
+    silent_days: int = 7
+    volume_drop: float = 0.5
+    history_months: int = 3
+    min_history_weeks: int = 4
 
 
 _SETTING_KEYS = {"adult_min_age_years", "standard_weight_min_kg", "standard_weight_max_kg",
                  "min_sample", "min_rooms_local_drl", "mammography_thickness_band_mm",
                  "jurisdiction", "reference_sets", "fallback", "well_below_fraction",
-                 "outlier_min_n", "effective_dose_basis"}
+                 "outlier_min_n", "effective_dose_basis", "silent_days", "volume_drop",
+                 "history_months", "min_history_weeks"}
 
 
 def load_audit_settings(user_config: Path | None = None) -> AuditSettings:
@@ -75,6 +84,8 @@ def load_audit_settings(user_config: Path | None = None) -> AuditSettings:
         min_rooms_local_drl = 10
         min_sample = { CT = 30 }       # per modality; others keep their defaults
         effective_dose_basis = "ICRP 103"
+        silent_days = 7                # feed monitoring: a device quiet this long is flagged
+        volume_drop = 0.5              # ... or below half its usual weekly volume
 
     Raises
     ------
@@ -106,6 +117,12 @@ def load_audit_settings(user_config: Path | None = None) -> AuditSettings:
             values[key] = (item,) if isinstance(item, str) else tuple(item)
     if values.get("effective_dose_basis", "ICRP 103") not in ("ICRP 60", "ICRP 103"):
         raise ConfigError(f"{user_config}: [audit] effective_dose_basis must be 'ICRP 103' or 'ICRP 60'")
+    for key in ("silent_days", "history_months", "min_history_weeks"):
+        if key in values and not (isinstance(values[key], int) and values[key] > 0):
+            raise ConfigError(f"{user_config}: [audit] {key} must be a positive integer")
+    if "volume_drop" in values and not (isinstance(values["volume_drop"], (int, float))
+                                        and 0 < values["volume_drop"] <= 1):
+        raise ConfigError(f"{user_config}: [audit] volume_drop must be a fraction in (0, 1], e.g. 0.5")
     return AuditSettings(**values)
 
 
@@ -128,6 +145,12 @@ class AuditSummary:
     exceedances: list[dict] = field(default_factory=list)
     alerts_by_rule: dict[str, int] = field(default_factory=dict)
     drift: list[dict] = field(default_factory=list)
+    data_alerts: list[dict] = field(default_factory=list)   # data_check tier, shown first
+
+    @property
+    def has_no_data(self) -> bool:
+        """True when the period holds no study: "no data", never a clean audit."""
+        return self.n_studies == 0
 
     @property
     def unmapped_share(self) -> float:
@@ -259,6 +282,12 @@ def _accumulated_ctdivol(con, first: dt.date, after: dt.date) -> list[dict]:
     return out
 
 
+def _history_from(first: dt.date, months: int) -> dt.date:
+    """Start of the feed history: whole 7-day weeks ending the day before `first`, within `months`."""
+    days = (first - _months_before(first, months)).days
+    return first - dt.timedelta(days=7 * (days // 7))
+
+
 def _months_before(day: dt.date, months: int) -> dt.date:
     index = day.year * 12 + day.month - 1 - months
     return dt.date(index // 12, index % 12 + 1, 1) if day.day == 1 else \
@@ -350,7 +379,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
 
     settings = settings or load_audit_settings(config)
     first, after, label = period_bounds(period, date_from, date_to)
-    with connection(warehouse) as con:
+    with connection(warehouse) as con:   # never creates one: a missing file is an error
         ensure_schema(con)
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
         install_reference_sets(con)
@@ -434,5 +463,11 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         summary.exceedances = con.execute(sql("select_exceedances")).df().to_dict("records")
         summary.alerts_by_rule = dict(con.execute(sql("count_alerts_by_rule")).fetchall())
         summary.drift = drift.to_dict("records")
+        con.execute(sql("data_alerts"), {
+            "period": label, "date_from": first, "date_to": after,
+            "history_from": _history_from(first, settings.history_months),
+            "silent_days": settings.silent_days, "volume_drop": float(settings.volume_drop),
+            "min_history_weeks": settings.min_history_weeks})
+        summary.data_alerts = _records(con.execute(sql("select_data_alerts")))
     return summary
 

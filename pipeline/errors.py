@@ -9,6 +9,7 @@
     │   ├── UnsafeArchiveMemberError
     │   └── MalformedReportError (carries sop_instance_uid and the concept code, if any)
     ├── ConfigError             -> stop with a one-line message (e.g. no pseudonymisation key)
+    │   └── KeyMismatchError    (the key differs from the warehouse's key epoch; nothing loaded)
     ├── WarehouseError          -> stop with a one-line message (cannot open, busy)
     └── ArchiveError            -> stop; transient: a flow may retry (archive down, refused)
 """
@@ -20,6 +21,7 @@ __all__ = [
     "ConfigError",
     "DoseAuditError",
     "InputError",
+    "KeyMismatchError",
     "MalformedReportError",
     "NotADoseObjectError",
     "NotDicomError",
@@ -73,6 +75,10 @@ class NotADoseObjectError(InputError):
 
 class ConfigError(DoseAuditError):
     """A setting is missing or wrong; the command stops."""
+
+
+class KeyMismatchError(ConfigError):
+    """The pseudonymisation key is not the one the warehouse's current key epoch recorded."""
 
 
 class WarehouseError(DoseAuditError):

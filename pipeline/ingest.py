@@ -25,9 +25,10 @@ from . import __version__
 from .errors import InputError, WarehouseError
 from .models import DoseObject, IssueKind, ParseIssue, as_row
 from .parsing import parse_dose_object
-from .pseudonym import make_pseudonymiser
+from .pseudonym import key_fingerprint, make_pseudonymiser
 from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_object
 from .warehouse.connection import connection
+from .warehouse.key_epoch import check_key_epoch
 from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
 from .warehouse.tables import arrow_table
 
@@ -59,6 +60,7 @@ class IngestSummary:
     quarantine_reasons: Counter = field(default_factory=Counter)
     not_dose_reasons: Counter = field(default_factory=Counter)
     value_issues: int = 0
+    key_epoch: int | None = None   # the pseudonymisation-key epoch the files were loaded in
 
     @property
     def loaded(self) -> int:
@@ -220,6 +222,7 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
            batch_size: int = BATCH_SIZE,
            progress: Callable[[int], None] | None = None,
            parse: Callable[[list[tuple[str, bytes, str]]], Iterable[FileOutcome]] | None = None,
+           new_key_epoch: bool = False,
            ) -> IngestSummary:
     """Ingest every file under `paths` into the warehouse at `warehouse`.
 
@@ -232,6 +235,10 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     `parse`, when given, parses a list of (path, bytes, SHA-256) elsewhere (e.g. tasks on a
     Dask cluster) and returns an iterable of outcomes in the same order, consumed only when
     the batch is loaded; `workers` is then ignored. This process stays the only writer.
+
+    One key per warehouse: the first ingest records the key's fingerprint as key epoch 1; an
+    ingest with another key raises KeyMismatchError before loading anything, unless
+    `new_key_epoch` is true, which records a new epoch (pipeline/warehouse/key_epoch.py).
     """
     run_id = f"run-{dt.datetime.now(dt.UTC):%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
     summary = IngestSummary(run_id=run_id, warehouse=Path(warehouse))
@@ -244,12 +251,15 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     started = dt.datetime.now()
     try:
         _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
-             pseudonymise, run_id, started, summary, parse)
+             pseudonymise, run_id, started, summary, parse, new_key_epoch)
     except _WRITE_FAILURES as exc:
         raise WarehouseError(
             f"cannot write to warehouse {warehouse}: {_first_cause(exc)}; the batch in flight "
             "was not recorded (batches before it are kept); free space or fix the folder, "
             "then rerun: files already recorded are skipped") from exc
+    finally:
+        if pool is not None:   # idempotent; also when the run stopped before its loop
+            pool.shutdown(cancel_futures=True)
     return summary
 
 
@@ -266,9 +276,12 @@ def _first_cause(exc: BaseException) -> str:
 
 
 def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
-         pseudonymise, run_id, started, summary, parse=None) -> None:
-    with connection(warehouse) as con:
+         pseudonymise, run_id, started, summary, parse=None, new_key_epoch=False) -> None:
+    with connection(warehouse, create=True) as con:
         ensure_schema(con)
+        # before anything is loaded: a different key would split every patient in two
+        summary.key_epoch = check_key_epoch(con, key_fingerprint(key), new_epoch=new_key_epoch,
+                                            run_id=run_id, now=started)
         replace_site_map(con, sites or {})
         if exam_rules is None:
             from .exams import load_exam_rules, rule_rows

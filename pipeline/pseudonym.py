@@ -15,10 +15,13 @@ from pathlib import Path
 
 from .errors import ConfigError
 
-__all__ = ["ENV_VAR", "MIN_KEY_BYTES", "load_key", "make_pseudonymiser"]
+__all__ = ["ENV_VAR", "FINGERPRINT_LABEL", "MIN_KEY_BYTES", "key_fingerprint", "load_key",
+           "make_pseudonymiser"]
 
 ENV_VAR = "KERMA_PSEUDONYM_KEY"
 MIN_KEY_BYTES = 16
+# A fixed message: its HMAC under the key identifies the key without revealing it (RFC 2104).
+FINGERPRINT_LABEL = b"kerma-ledger pseudonymisation key fingerprint v1"
 
 
 def load_key(key_file: Path | None = None, environ: dict[str, str] | None = None) -> bytes:
@@ -53,3 +56,12 @@ def make_pseudonymiser(key: bytes) -> Callable[[str, str], str]:
         message = f"{namespace}\x1f{identifier}".encode("utf-8")
         return hmac.new(key, message, hashlib.sha256).hexdigest()[:32]
     return pseudonymise
+
+
+def key_fingerprint(key: bytes) -> str:
+    """16 hex characters of HMAC-SHA256(key, FINGERPRINT_LABEL): tells two keys apart.
+
+    Stored in the warehouse (``key_epoch``) in place of the key, which never enters it; the
+    fingerprint cannot be turned back into the key nor used to compute any pseudonym.
+    """
+    return hmac.new(key, FINGERPRINT_LABEL, hashlib.sha256).hexdigest()[:16]

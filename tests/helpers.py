@@ -55,3 +55,46 @@ KEY = b"test-key-0123456789abcdef"
 def pseudonymiser():
     from pipeline.pseudonym import make_pseudonymiser
     return make_pseudonymiser(KEY)
+
+
+def write_daily_reports(folder, device: str, days, *, seed: int = 7) -> list:
+    """Write one real dose report of demo device `device` per date in `days` into `folder`.
+
+    Each copy of the device's first demo report gets its own study, series, SOP instance,
+    patient and irradiation-event UIDs and the date as Study/Series/Content Date, so the
+    warehouse sees one study per day from the same device (feed-monitoring tests).
+    """
+    import copy
+    from pathlib import Path
+
+    from pydicom.uid import generate_uid
+
+    _, template = demo_dataset(device, seed=seed)
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for n, day in enumerate(days):
+        ds = copy.deepcopy(template)
+        stamp = f"{day:%Y%m%d}"
+        ds.StudyDate = ds.SeriesDate = ds.ContentDate = stamp
+        ds.StudyInstanceUID, ds.SeriesInstanceUID = generate_uid(), generate_uid()
+        ds.SOPInstanceUID = generate_uid()
+        ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+        ds.PatientID = f"FEED-{device}-{n:04d}"
+        ds.AccessionNumber = f"F{n:06d}"
+        _new_event_uids(ds)
+        path = folder / f"{device}-{stamp}.dcm"
+        ds.save_as(path, enforce_file_format=True)
+        written.append(path)
+    return written
+
+
+def _new_event_uids(node) -> None:
+    """Fresh Irradiation Event UIDs (DCM 113769) throughout an SR content tree."""
+    from pydicom.uid import generate_uid
+
+    for item in getattr(node, "ContentSequence", []):
+        code = item.ConceptNameCodeSequence[0] if "ConceptNameCodeSequence" in item else None
+        if item.ValueType == "UIDREF" and code is not None and code.CodeValue == "113769":
+            item.UID = generate_uid()
+        _new_event_uids(item)

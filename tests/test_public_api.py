@@ -12,14 +12,15 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.warehouse.connection", "pipeline.warehouse.tables", "pipeline.warehouse.load",
            "pipeline.metrics", "queries", "synthetic_studies", "synthetic_studies.scenario",
            "synthetic_studies.sampling", "synthetic_studies.generator", "synthetic_studies.write",
-           "pipeline.warehouse.records", "pipeline.net", "pipeline.net.inbox", "pipeline.net.scp",
+           "pipeline.warehouse.records", "pipeline.warehouse.key_epoch", "pipeline.net", "pipeline.net.inbox", "pipeline.net.scp",
            "pipeline.net.tls", "pipeline.net.dimse", "pipeline.net.dicomweb", "pipeline.net.drain",
            "pipeline.flows", "pipeline.flows.ingest", "pipeline.flows.audit",
            "pipeline.flows.publish", "pipeline.flows.monthly", "pipeline.flows.record",
            "pipeline.flows.retry", "pipeline.cli", "pipeline.cli.app", "pipeline.cli.corpus",
            "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
-           "pipeline.cli.pull", "pipeline.cli.run"]
+           "pipeline.cli.pull", "pipeline.cli.run", "pipeline.cli.completeness",
+           "pipeline.net.completeness"]
 
 
 @pytest.mark.parametrize("name", MODULES)
@@ -41,3 +42,15 @@ def test_patient_age_from_birth_date_or_age_string():
     assert patient_age_years("010D", None, on) == pytest.approx(10 / 365.25, abs=1e-3)
     assert patient_age_years("000Y", None, on) is None  # unknown or under one year: ambiguous
     assert patient_age_years("45Y", None, on) is None   # not a valid AS value (PS3.5)
+
+
+def test_issue_16_exports():
+    from pipeline import errors, pseudonym
+    from pipeline.cli import audit
+    from pipeline.warehouse import connection, key_epoch
+
+    assert {"check_key_epoch", "current_key_epoch"} == set(key_epoch.__all__)
+    assert {"connection", "missing_warehouse_message"} == set(connection.__all__)
+    assert "key_fingerprint" in pseudonym.__all__ and "KeyMismatchError" in errors.__all__
+    assert issubclass(errors.KeyMismatchError, errors.ConfigError)   # stops with exit 2
+    assert {"NO_DATA", "print_data_checks"} <= set(audit.__all__)

@@ -9,15 +9,45 @@ from rich.table import Table
 
 from .app import app, console, fail, parse_day
 
-__all__ = ["CAUTION", "audit_command", "dashboard_command", "print_audit_summary"]
+__all__ = ["CAUTION", "NO_DATA", "audit_command", "dashboard_command", "print_audit_summary",
+           "print_data_checks"]
 
 CAUTION = ("A reference level is an investigation level, not a dose limit. Flagged exams and "
            "units need review by a qualified medical physicist; local regulations prevail.")
 
 
+NO_DATA = "no data for this period"
+
+
+def print_data_checks(summary) -> None:
+    """The data_check tier first: a feed that went quiet or thin, or a period without data."""
+    if summary.has_no_data:
+        console.print(f"[bold red]Finding: {NO_DATA}[/bold red] - the warehouse holds no study "
+                      f"dated {summary.date_from} to {summary.date_to}. This is not a clean audit: "
+                      "check that the dose reports of the period were ingested.", soft_wrap=True)
+    rows = [r for r in summary.data_alerts if r["device_key"] is not None]
+    if not rows:
+        console.print("Data checks (feeds of dose reports): no device silent or below its usual volume.")
+        return
+    table = Table(title="Data checks: feeds of dose reports to review first (data_check)")
+    for c in ("Site", "Device", "Kind", "Last study", "Expected / week", "Observed / week", "Detail"):
+        table.add_column(c)
+    for r in rows:
+        table.add_row(str(r["site"] or ""), r["device_key"], r["kind"], str(r["last_study_date"] or ""),
+                      "" if r["expected_per_week"] is None else f"{r['expected_per_week']:.1f}",
+                      "" if r["observed_per_week"] is None else f"{r['observed_per_week']:.1f}",
+                      r["detail"])
+    console.print(table)
+
+
 def print_audit_summary(summary) -> None:
-    """Print an AuditSummary: exceedances, alerts, drift and the caution."""
+    """Print an AuditSummary: data checks first, then exceedances, alerts, drift and the caution."""
     console.rule(f"Audit {summary.period} ({summary.date_from} to {summary.date_to})")
+    print_data_checks(summary)
+    if summary.has_no_data:
+        console.print(f"Dose findings: none can be made ({NO_DATA}).")
+        console.print(f"[dim]{CAUTION}[/dim]")
+        return
     console.print(f"Reference sets (in order of precedence): {', '.join(summary.reference_sets) or 'none'}"
                   f" - issuing body: {summary.reference_body or 'none'} ({summary.reference_basis})")
     if summary.fallback_sets:

@@ -33,7 +33,7 @@ def ingest_table(summary) -> Table:
 
 
 def run_ingest(paths: list[Path], warehouse: Path, key_file: Path | None, workers: int,
-               config: Path | None, show_progress: bool = True):
+               config: Path | None, show_progress: bool = True, new_key_epoch: bool = False):
     """Shared by `kerma ingest` and `kerma listen`: load settings and key, then ingest."""
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
@@ -49,14 +49,15 @@ def run_ingest(paths: list[Path], warehouse: Path, key_file: Path | None, worker
         fail(str(exc))
     try:
         if not show_progress:
-            return ingest(paths, warehouse, key, workers=workers, sites=settings.sites)
+            return ingest(paths, warehouse, key, workers=workers, sites=settings.sites,
+                          new_key_epoch=new_key_epoch)
         with Progress("[progress.description]{task.description}", BarColumn(),
                       MofNCompleteColumn(), TimeElapsedColumn(), console=console,
                       transient=True) as bar:
             task = bar.add_task("ingesting", total=None)
             return ingest(paths, warehouse, key, workers=workers, sites=settings.sites,
-                          progress=lambda n: bar.advance(task, n))
-    except WarehouseError as exc:
+                          progress=lambda n: bar.advance(task, n), new_key_epoch=new_key_epoch)
+    except (ConfigError, WarehouseError) as exc:   # KeyMismatchError is a ConfigError
         fail(str(exc))
 
 
@@ -68,9 +69,13 @@ def ingest_command(
     key_file: Path | None = typer.Option(
         None, "--key-file", help="File holding the pseudonymisation key (else $KERMA_PSEUDONYM_KEY)."),
     config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
+    new_key_epoch: bool = typer.Option(False, "--new-key-epoch", help="Accept a key other than the warehouse's: start a new key epoch (patients are not linked across epochs)."),
 ) -> None:
     """Read DICOM dose reports and image headers into the warehouse; every file is accounted for."""
     started = time.perf_counter()
-    summary = run_ingest(paths, warehouse, key_file, workers, config)
+    summary = run_ingest(paths, warehouse, key_file, workers, config, new_key_epoch=new_key_epoch)
     console.print(ingest_table(summary))
+    if new_key_epoch and summary.key_epoch and summary.key_epoch > 1:
+        console.print(f"[yellow]Key epoch {summary.key_epoch}:[/yellow] patients of these files are "
+                      "not linked with those loaded under earlier keys.")
     console.print(f"run {summary.run_id} finished in {time.perf_counter() - started:.1f} s")

@@ -60,7 +60,9 @@ def listen(
         context = server_context(tls_cert, tls_key, tls_ca) if tls_cert else None
         key = load_key(key_file) if warehouse is not None else None
         sites = load_settings(config).sites if warehouse is not None else {}
-    except (ValueError, ConfigError) as exc:
+        if warehouse is not None and warehouse.exists():
+            _check_key(warehouse, key)   # refuse before accepting anything, not at the first drain
+    except (ValueError, ConfigError, WarehouseError) as exc:
         fail(str(exc))
     configure_logging()
     log = logging.getLogger("kerma.listen")
@@ -75,6 +77,7 @@ def listen(
     log.info("listening as %s on %s:%d%s, inbox %s%s", ae_title, host or "*", port,
              " with TLS" if context else "", inbox,
              f", allowed calling AE titles: {', '.join(allow)}" if allow else "")
+    refused = None
     try:
         while not stop.wait(ingest_every or 3600):
             if warehouse is None:
@@ -83,7 +86,31 @@ def listen(
                 drain_inbox(inbox, warehouse, archive, key, sites=sites)
             except WarehouseError as exc:
                 log.warning("drain skipped, tried again in %g s: %s", ingest_every, exc)
+            except ConfigError as exc:   # e.g. the warehouse now holds another key's epoch
+                log.error("drain refused, stopping: %s", exc)
+                refused = exc
+                break
     finally:
         server.shutdown()   # files not yet drained stay in the inbox for the next start
         log.info("stopped")
+    if refused is not None:
+        fail(str(refused))
     console.print("stopped")
+
+
+def _check_key(warehouse: Path, key: bytes) -> None:
+    """KeyMismatchError when `key` is not the key of the warehouse's current key epoch."""
+    from ..errors import KeyMismatchError
+    from ..pseudonym import key_fingerprint
+    from ..warehouse.connection import connection
+    from ..warehouse.key_epoch import current_key_epoch
+    from ..warehouse.load import ensure_schema
+
+    with connection(warehouse) as con:
+        ensure_schema(con)
+        current = current_key_epoch(con)
+    if current is not None and current[1] != key_fingerprint(key):
+        raise KeyMismatchError(
+            f"the pseudonymisation key differs from the one warehouse {warehouse} was loaded with "
+            f"(key epoch {current[0]}): patient linkage would break; start the listener with the "
+            "warehouse's key, or run `kerma ingest --new-key-epoch` once to start a new key epoch")

@@ -46,7 +46,7 @@ def pull(
     archive_folder = archive_folder or inbox.resolve().parent / "archive"
     have = have_instances(inbox, archive_folder)
     try:
-        if warehouse is not None and warehouse.exists():
+        if warehouse is not None:   # a missing file is refused, never taken as empty
             with connection(warehouse, read_only=True) as con:
                 have |= recorded_sop_instance_uids(con)
         if dicomweb is not None:

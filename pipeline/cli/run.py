@@ -41,6 +41,7 @@ def run_monthly_command(
     workers: int = typer.Option(1, "--workers", min=1, help="Local parsing processes (without Dask)."),
     dask_workers: int | None = typer.Option(None, "--dask-workers", min=1, help="Parse on a new local Dask cluster of N workers."),
     dask_address: str | None = typer.Option(None, "--dask-address", help="Parse on the Dask cluster at tcp://HOST:PORT."),
+    new_key_epoch: bool = typer.Option(False, "--new-key-epoch", help="Accept a key other than the warehouse's: start a new key epoch."),
 ) -> None:
     """Ingest the inbox, audit the month and write the dashboards, as one recorded Prefect flow run."""
     from ..errors import ConfigError, WarehouseError
@@ -51,7 +52,7 @@ def run_monthly_command(
     parameters = _parameters(warehouse, inbox, out, key_file, config, reference, workers,
                              dask_workers, dask_address)
     try:
-        result = run_monthly(period=period, **parameters)
+        result = run_monthly(period=period, new_key_epoch=new_key_epoch, **parameters)
     except (ConfigError, WarehouseError) as exc:
         fail(str(exc))
     console.print(ingest_table(result.ingest))

@@ -60,16 +60,18 @@ def _submit_parser(key: bytes):
 
 @task(cache_policy=NO_CACHE)
 def load_inputs(paths: list[Path], warehouse: Path, key: bytes, workers: int,
-                sites: dict[str, str], on_task_runner: bool) -> IngestSummary:
+                sites: dict[str, str], on_task_runner: bool,
+                new_key_epoch: bool = False) -> IngestSummary:
     """Run the ingest (the one warehouse writer); parsing in local processes or on the runner."""
     parse = _submit_parser(key) if on_task_runner else None
-    return ingest(paths, warehouse, key, workers=workers, sites=sites, parse=parse)
+    return ingest(paths, warehouse, key, workers=workers, sites=sites, parse=parse,
+                  new_key_epoch=new_key_epoch)
 
 
 @flow(name="ingest")
 def ingest_flow(inputs: list[Path], warehouse: Path, key_file: Path | None = None,
                 config: Path | None = None, workers: int = 1,
-                parse_on_task_runner: bool = False) -> IngestSummary:
+                parse_on_task_runner: bool = False, new_key_epoch: bool = False) -> IngestSummary:
     """Ingest every file under `inputs` into `warehouse`; recorded in ``pipeline_run``.
 
     Parameters
@@ -85,12 +87,16 @@ def ingest_flow(inputs: list[Path], warehouse: Path, key_file: Path | None = Non
         Local parsing processes (ignored when parsing on the task runner).
     parse_on_task_runner
         Parse in ``parse_files`` tasks on this flow's task runner (a Dask cluster).
+    new_key_epoch
+        Accept a key other than the warehouse's by starting a new key epoch; without it such a
+        key stops the flow (KeyMismatchError) before anything is loaded.
     """
     key = load_key(key_file)
     settings = load_settings(config)
-    with recorded_run(warehouse, "ingest", None) as end:
+    with recorded_run(warehouse, "ingest", None, create=True) as end:
         paths = check_inputs(inputs)
-        summary = load_inputs(paths, warehouse, key, workers, settings.sites, parse_on_task_runner)
+        summary = load_inputs(paths, warehouse, key, workers, settings.sites, parse_on_task_runner,
+                              new_key_epoch)
         end.ingest_run_ids = [summary.run_id]
         end.n_files_loaded = summary.by_status["loaded"]
         end.n_files_quarantined = summary.by_status["quarantined"]

@@ -56,7 +56,8 @@ def monthly_flow(warehouse: Path, inbox: Path, out: Path, period: str | None = N
                  date_from: dt.date | None = None, date_to: dt.date | None = None,
                  key_file: Path | None = None, config: Path | None = None,
                  reference_sets: list[str] | None = None, workers: int = 1,
-                 dask_workers: int | None = None, dask_address: str | None = None) -> MonthlyResult:
+                 dask_workers: int | None = None, dask_address: str | None = None,
+                 new_key_epoch: bool = False) -> MonthlyResult:
     """Ingest `inbox`, audit the period, write the dashboards to `out`.
 
     The period is `period` (YYYY-MM), else `date_from`..`date_to`, else the calendar month
@@ -66,11 +67,11 @@ def monthly_flow(warehouse: Path, inbox: Path, out: Path, period: str | None = N
     if period is None and date_from is None and date_to is None:
         period = previous_month(dt.date.today())
     label = period_bounds(period, date_from, date_to)[2]
-    with recorded_run(warehouse, "monthly", label) as end:
+    with recorded_run(warehouse, "monthly", label, create=True) as end:
         runner = dask_task_runner(dask_workers, dask_address)
         ingest = ingest_flow if runner is None else ingest_flow.with_options(task_runner=runner)
         ingested = ingest([inbox], warehouse, key_file=key_file, config=config, workers=workers,
-                          parse_on_task_runner=runner is not None)
+                          parse_on_task_runner=runner is not None, new_key_epoch=new_key_epoch)
         end.ingest_run_ids = [ingested.run_id]
         end.n_files_loaded = ingested.by_status["loaded"]
         end.n_files_quarantined = ingested.by_status["quarantined"]

@@ -26,13 +26,16 @@ def current_run_ids() -> tuple[str, str | None]:
 
 
 @contextlib.contextmanager
-def recorded_run(warehouse: Path, flow: str, period: str | None) -> Iterator[PipelineRunEnd]:
+def recorded_run(warehouse: Path, flow: str, period: str | None, *,
+                 create: bool = False) -> Iterator[PipelineRunEnd]:
     """Insert a RUNNING row, yield the end record for the flow to fill, then write its end.
 
     An exception marks the run FAILED with the first line of its message, and propagates.
+    Only the flows that load data pass ``create=True``; for the others a missing warehouse
+    is a WarehouseError ("does not exist") before anything runs.
     """
     run_id, parent = current_run_ids()
-    with connection(warehouse) as con:
+    with connection(warehouse, create=create) as con:
         ensure_schema(con)
         start_pipeline_run(con, run_id=run_id, flow=flow, period=period,
                            started_at=dt.datetime.now(), parent_run_id=parent)

@@ -10,19 +10,29 @@ import duckdb
 
 from ..errors import WarehouseError
 
-__all__ = ["connection"]
+__all__ = ["connection", "missing_warehouse_message"]
+
+
+def missing_warehouse_message(path: Path) -> str:
+    """The one line every command prints for a warehouse file that is not there."""
+    return (f"warehouse {path} does not exist: check --warehouse (only `kerma ingest`, "
+            "`kerma listen --ingest-every` and `kerma demo` create one)")
 
 
 @contextlib.contextmanager
-def connection(db_path: Path | str, read_only: bool = False) -> Iterator[duckdb.DuckDBPyConnection]:
+def connection(db_path: Path | str, read_only: bool = False, *,
+               create: bool = False) -> Iterator[duckdb.DuckDBPyConnection]:
     """A DuckDB connection to the warehouse file; WarehouseError if it cannot be opened.
 
-    DuckDB lets one process write a database file at a time; a second writer (or a reader
-    while a writer holds it) gets "warehouse busy".
+    Only the commands that load data (``ingest``, ``listen --ingest-every``, ``demo`` and the
+    ingest step of the monthly flow) pass ``create=True``; every other caller gets
+    "warehouse ... does not exist" for a missing file, so a mistyped path is never audited
+    as an empty (clean-looking) warehouse. DuckDB lets one process write a database file at a
+    time; a second writer (or a reader while a writer holds it) gets "warehouse busy".
     """
     path = Path(db_path)
-    if read_only and not path.exists():
-        raise WarehouseError(f"warehouse {path} does not exist")
+    if not path.exists() and (read_only or not create):
+        raise WarehouseError(missing_warehouse_message(path))
     if not read_only:
         try:
             path.parent.mkdir(parents=True, exist_ok=True)

@@ -6,6 +6,8 @@ from (
     select period from network_reference
     union all
     select period from drift_flags
+    union all
+    select period from data_alerts   -- the label survives a period without any study
 ) as labels
 where period is not null
 group by period

@@ -185,6 +185,7 @@ def archive(tmp_path_factory, net_corpus):
     complete = files[files.kind.isin(["rdsr", "image_header", "other"]) & files.defect.isna()]
     server.upload([root / p for p in sorted(complete.path)])
     server.our_port = our_port
+    server.stored_paths = [root / p for p in sorted(complete.path)]
     server.dose_reports = {r.sop_instance_uid: root / r.path for r in complete.itertuples()
                            if r.sop_class_uid in DOSE_SR}
     headers = [pydicom.dcmread(root / p, stop_before_pixels=True) for p in complete.path]
