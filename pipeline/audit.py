@@ -1,8 +1,9 @@
 """The monthly audit (the shell): choose the period and reference sets, run queries/audit/*.sql.
 
 Tables written (replaced on each run, public interface): ``audit_medians``,
-``network_reference``, ``dose_alerts``, ``drift_flags``; plus ``monthly_medians`` and
-``study_estimate`` (SSDE and effective dose) for the dashboards.
+``network_reference``, ``dose_alerts``, ``drift_flags``, ``skin_dose`` (peak skin dose per
+RF/XA study); plus ``monthly_medians`` and ``study_estimate`` (SSDE and effective dose) for the
+dashboards.
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
 __all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
-           "period_bounds", "run_audit"]
+           "period_bounds", "run_audit", "skin_dose_rows"]
 
 
 def _default_min_sample() -> dict[str, int]:
@@ -220,6 +221,14 @@ _ESTIMATE_SCHEMA = pa.schema(
      ("effective_dose_msv", pa.float64()), ("k_msv_per_mgy_cm", pa.float64()),
      ("effective_dose_basis", pa.string()), ("effective_dose_source", pa.string()),
      ("ssde_mgy", pa.float64()), ("ssde_method", pa.string())])
+_SKIN_DOSE_SCHEMA = pa.schema(
+    [("study_key", pa.string()), ("patient_key", pa.string()), ("device_key", pa.string()),
+     ("site", pa.string()), ("modality", pa.string()), ("exam_type", pa.string()),
+     ("study_date", pa.date32()), ("psd_mgy", pa.float64()), ("method", pa.string()),
+     ("n_events", pa.int64()), ("n_events_with_geometry", pa.int64()),
+     ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
+     ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
+     ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
 _BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
                           ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
@@ -311,6 +320,48 @@ def study_estimates(rows, settings: AuditSettings) -> list[dict]:
                     "effective_dose_msv": e, "k_msv_per_mgy_cm": k,
                     "effective_dose_basis": basis, "effective_dose_source": source,
                     "ssde_mgy": ssde, "ssde_method": method})
+    return out
+
+
+def skin_dose_rows(rows) -> list[dict]:
+    """Per RF/XA study x device: the peak skin dose estimate (pipeline/skin_dose.py).
+
+    `rows` are mappings, one per event, in study order (queries/audit/select_skin_dose_events.sql);
+    missing values are None.
+    """
+    from itertools import groupby
+
+    from .skin_dose import UNCERTAINTY_NOTE, SkinDoseEvent, compute_skin_dose
+
+    out = []
+    for _, group in groupby(rows, key=lambda r: (r["study_key"], r["device_key"])):
+        group = list(group)
+        first = group[0]
+        events = [SkinDoseEvent(
+            dose_rp_mgy=float(r["dose_rp_mgy"]), kvp=r["kvp"],
+            primary_angle_deg=r["positioner_primary_angle_deg"],
+            secondary_angle_deg=r["positioner_secondary_angle_deg"],
+            source_to_isocenter_mm=r["distance_source_to_isocenter_mm"],
+            source_to_detector_mm=r["distance_source_to_detector_mm"],
+            source_to_rp_mm=r["distance_source_to_rp_mm"],
+            field_area_cm2=(r["collimated_field_area_m2"] * 1e4
+                            if r["collimated_field_area_m2"] is not None else None),
+            table_longitudinal_mm=r["table_longitudinal_mm"], table_lateral_mm=r["table_lateral_mm"],
+            table_height_mm=r["table_height_mm"],
+            reference_point_definition=r["reference_point_definition"]) for r in group]
+        result = compute_skin_dose(events, height_m=first["patient_height_m"],
+                                   weight_kg=first["patient_weight_kg"])
+        out.append({**{k: first[k] for k in ("study_key", "patient_key", "device_key", "site",
+                                             "modality", "exam_type", "study_date")},
+                    "psd_mgy": result.psd_mgy, "method": result.method,
+                    "n_events": result.n_events,
+                    "n_events_with_geometry": result.n_events_with_geometry,
+                    "ka_r_total_mgy": result.ka_r_total_mgy, "psd_to_ka_r": result.psd_to_ka_r,
+                    "is_upper_bound": result.is_upper_bound,
+                    "upper_bound_part_mgy": result.upper_bound_part_mgy,
+                    "phantom": result.phantom.basis,
+                    "factor_sources": "; ".join(f"{k}: {v}" for k, v in result.factors.items()),
+                    "uncertainty_note": UNCERTAINTY_NOTE})
     return out
 
 
@@ -407,6 +458,10 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_study_estimate")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
+        _register_temp(con, "skin_dose", pa.Table.from_pylist(skin_dose_rows(_records(
+            con.execute(sql("select_skin_dose_events"), {"date_from": first, "date_to": after}))),
+            schema=_SKIN_DOSE_SCHEMA))
+        con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
         con.execute(sql("monthly_medians"), adult)
         history = con.execute(sql("drift_input"), adult).df()
