@@ -28,7 +28,7 @@ __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
 
 # Relations the audit (pipeline.audit.run_audit) writes, and the views the site also reads.
 AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags",
-                "monthly_medians", "study_estimate")
+                "monthly_medians", "study_estimate", "skin_dose", "skin_dose_map")
 _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
           "audit_observation", "reference_level")
 
@@ -108,6 +108,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         files_not_loaded=q("dash_quarantined_files"), weight_share=q("dash_weight_share", **params),
         value_issues=q("dash_value_issues", **params),
         value_issue_rows=q("dash_value_issue_rows", **params),
+        skin_dose_maps=q("dash_skin_dose_maps"),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

@@ -2,7 +2,7 @@
 
 Tables written (replaced on each run, public interface): ``audit_medians``,
 ``network_reference``, ``dose_alerts``, ``drift_flags``, ``skin_dose`` (peak skin dose per
-RF/XA study); plus ``monthly_medians`` and ``study_estimate`` (SSDE and effective dose) for the
+RF/XA study) and ``skin_dose_map`` (its cells, for studies at a peak-skin-dose alert); plus ``monthly_medians`` and ``study_estimate`` (SSDE and effective dose) for the
 dashboards.
 """
 
@@ -229,6 +229,9 @@ _SKIN_DOSE_SCHEMA = pa.schema(
      ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
      ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
      ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
+_SKIN_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
+                              ("around_mm", pa.float64()), ("along_mm", pa.float64()),
+                              ("dose_mgy", pa.float64())])
 _BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
                           ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
@@ -323,17 +326,18 @@ def study_estimates(rows, settings: AuditSettings) -> list[dict]:
     return out
 
 
-def skin_dose_rows(rows) -> list[dict]:
+def skin_dose_rows(rows, map_threshold_mgy: float | None = None) -> tuple[list[dict], list[dict]]:
     """Per RF/XA study x device: the peak skin dose estimate (pipeline/skin_dose.py).
 
     `rows` are mappings, one per event, in study order (queries/audit/select_skin_dose_events.sql);
-    missing values are None.
+    missing values are None. Returns (one row per study, the non-zero cells of the skin-dose map
+    of each study whose PSD reaches `map_threshold_mgy`; none when it is None).
     """
     from itertools import groupby
 
     from .skin_dose import UNCERTAINTY_NOTE, SkinDoseEvent, compute_skin_dose
 
-    out = []
+    out, cells = [], []
     for _, group in groupby(rows, key=lambda r: (r["study_key"], r["device_key"])):
         group = list(group)
         first = group[0]
@@ -362,7 +366,12 @@ def skin_dose_rows(rows) -> list[dict]:
                     "phantom": result.phantom.basis,
                     "factor_sources": "; ".join(f"{k}: {v}" for k, v in result.factors.items()),
                     "uncertainty_note": UNCERTAINTY_NOTE})
-    return out
+        if map_threshold_mgy is not None and result.psd_mgy >= map_threshold_mgy:
+            i, j = result.dose_map_mgy.nonzero()
+            cells += [{"study_key": first["study_key"], "device_key": first["device_key"],
+                       "around_mm": float(result.around_mm[a]), "along_mm": float(result.along_mm[b]),
+                       "dose_mgy": float(result.dose_map_mgy[a, b])} for a, b in zip(i, j)]
+    return out, cells
 
 
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
@@ -434,8 +443,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("reference_in_force"))
         max_n = con.execute(sql("max_group_size"), {"date_from": first, "date_to": after}).fetchall()[0][0] or 1
         _register_temp(con, "median_ci_rank", pa.Table.from_pylist(median_ci_ranks(max_n), schema=_CI_SCHEMA))
-        _register_temp(con, "alert_rule_in_force",
-                       pa.Table.from_pylist(load_alert_rules(config), schema=_ALERT_SCHEMA))
+        rules = load_alert_rules(config)
+        _register_temp(con, "alert_rule_in_force", pa.Table.from_pylist(rules, schema=_ALERT_SCHEMA))
         params = {"date_from": first, "date_to": after, "period": label,
                   "adult_min_age": settings.adult_min_age_years,
                   "weight_min": settings.standard_weight_min_kg,
@@ -458,9 +467,12 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_study_estimate")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
-        _register_temp(con, "skin_dose", pa.Table.from_pylist(skin_dose_rows(_records(
-            con.execute(sql("select_skin_dose_events"), {"date_from": first, "date_to": after}))),
-            schema=_SKIN_DOSE_SCHEMA))
+        psd_thresholds = [r["threshold"] for r in rules if r["family"] == "peak_skin_dose"]
+        skin, cells = skin_dose_rows(_records(con.execute(
+            sql("select_skin_dose_events"), {"date_from": first, "date_to": after})),
+            min(psd_thresholds) if psd_thresholds else None)
+        _register_temp(con, "skin_dose", pa.Table.from_pylist(skin, schema=_SKIN_DOSE_SCHEMA))
+        _register_temp(con, "skin_dose_map", pa.Table.from_pylist(cells, schema=_SKIN_MAP_SCHEMA))
         con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
         con.execute(sql("monthly_medians"), adult)
