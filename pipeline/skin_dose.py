@@ -266,6 +266,9 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
     for e in events:
         if not e.has_geometry:
             side = math.sqrt(e.field_area_cm2) if e.field_area_cm2 else 10.0
+            if e.field_area_cm2 and e.source_to_isocenter_mm and e.source_to_detector_mm:
+                # the field at the reference point, not at the detector
+                side *= (e.source_to_isocenter_mm - s.rp_from_isocentre_mm) / e.source_to_detector_mm
             bsf = backscatter_factor(e.kvp, side)
             fallback += e.dose_rp_mgy * bsf * F_TISSUE_AIR
             per_event.append({"has_geometry": False, "bsf": bsf, "f": F_TISSUE_AIR})

@@ -52,3 +52,72 @@ def test_the_high_dose_intervention_gets_a_peak_skin_dose_follow_up_alert(con):
     # every study at or above 3 Gy alerts, none below
     n_over = con.execute("select count(*) from skin_dose where psd_mgy >= 3000").fetchone()[0]
     assert n_over == 1
+
+
+def _strip(ds, codes: set[str]) -> None:
+    """Remove the NUM items with these DCM codes from every irradiation event."""
+    from pydicom.sequence import Sequence
+    for item in ds.ContentSequence:
+        if item.ValueType == "CONTAINER" and item.ConceptNameCodeSequence[0].CodeValue == "113706":
+            item.ContentSequence = Sequence([c for c in item.ContentSequence
+                                             if c.ConceptNameCodeSequence[0].CodeValue not in codes])
+
+
+@pytest.fixture(scope="module")
+def reports(tmp_path_factory):
+    """One interventional report as sent, and one with its positioner angles removed, through
+    `kerma ingest` and `kerma audit` (pipeline.ingest.ingest, pipeline.audit.run_audit)."""
+    import datetime as dt
+
+    from pipeline.audit import run_audit
+    from pipeline.ingest import ingest
+    from tests.helpers import KEY, demo_dataset, encode
+
+    root = tmp_path_factory.mktemp("skin")
+    inbox = root / "in"
+    inbox.mkdir()
+    spec, full = demo_dataset("tgh-xa1")
+    spec_rf, bare = demo_dataset("tgh-rf1")
+    _strip(bare, {"112011", "112012"})                 # Positioner Primary / Secondary Angle
+    (inbox / "xa.dcm").write_bytes(encode(full))
+    (inbox / "rf.dcm").write_bytes(encode(bare))
+    db = root / "w.duckdb"
+    ingest([inbox], db, KEY)
+    run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
+    with duckdb.connect(str(db), read_only=True) as c:
+        rows = {m: (psd, n, n_geom, upper, method) for m, psd, n, n_geom, upper, method in c.execute(
+            "select modality, psd_mgy, n_events, n_events_with_geometry, is_upper_bound, method "
+            "from skin_dose").fetchall()}
+    return spec, spec_rf, rows
+
+
+def test_the_warehouse_path_gives_the_models_value_on_the_ground_truth(reports):
+    from pipeline.skin_dose import SkinDoseEvent, compute_skin_dose
+
+    spec, _, rows = reports
+    truth = compute_skin_dose([SkinDoseEvent(
+        dose_rp_mgy=e.dose_rp_mgy, kvp=e.kvp, primary_angle_deg=e.primary_angle_deg,
+        secondary_angle_deg=e.secondary_angle_deg, source_to_isocenter_mm=e.source_to_isocenter_mm,
+        source_to_detector_mm=e.sid_mm, field_area_cm2=e.field_area_m2 * 1e4,
+        table_longitudinal_mm=e.table_longitudinal_mm, table_lateral_mm=e.table_lateral_mm,
+        table_height_mm=e.table_height_mm,
+        reference_point_definition="15cm from Isocenter toward Source")
+        for e in spec.projection_events], height_m=spec.patient.height_m,
+        weight_kg=spec.patient.weight_kg)
+    psd, n, n_geom, upper, _ = rows["XA"]
+    assert psd == pytest.approx(truth.psd_mgy, rel=1e-9)
+    assert (n, n_geom, upper) == (len(spec.projection_events),) * 2 + (False,)
+
+
+def test_events_without_angles_fall_back_to_a_labelled_upper_bound(reports):
+    from pipeline.skin_dose import F_TISSUE_AIR, backscatter_factor
+
+    _, spec, rows = reports
+    psd, n, n_geom, upper, method = rows["RF"]
+    assert (n, n_geom, upper) == (len(spec.projection_events), 0, True)
+    assert "upper bound" in method
+    # sum of Ka,r x BSF(kVp, field side at the reference point) x f: every event on one spot
+    expected = sum(e.dose_rp_mgy * backscatter_factor(
+        e.kvp, (e.field_area_m2 * 1e4) ** 0.5 * (e.source_to_isocenter_mm - 150.0) / e.sid_mm)
+        * F_TISSUE_AIR for e in spec.projection_events)
+    assert psd == pytest.approx(expected, rel=1e-9)
