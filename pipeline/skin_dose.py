@@ -332,6 +332,9 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
                "reference_point": "IEC 60601-2-43: 15 cm from the isocentre towards the source "
                                   "unless the report defines another",
                "table_height": "Table Height Position taken as the table-top height relative "
-                               "to the isocentre (device-specific in DICOM; an assumption)"}
+                               "to the isocentre (device-specific in DICOM; an assumption)",
+               "field": "Collimated Field Area taken at the detector plane (Distance Source to "
+                        "Detector; PS3.16 wording from memory) and scaled linearly with distance; "
+                        "a square field of that area"}
     return SkinDoseResult(psd, dose, around, along, len(events), n_geom, ka_r, fallback, ph,
                           method, factors, per_event)

@@ -94,6 +94,9 @@ def _area_from_sides(node: Dataset, uid: str, m: Measurer) -> float | None:
 def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[ProjectionEvent]:
     """Every TID 10003 Irradiation Event X-Ray Data container, in document order."""
     events = []
+    # an event without its own Reference Point Definition takes its plane's (TID 10002)
+    report_rp = {_plane(a) or "single": _rp_definition(a)
+                 for a in find(root, C.ACCUMULATED_XRAY_DOSE_DATA, "CONTAINER")}
     for n, node in enumerate(find(root, C.IRRADIATION_EVENT_XRAY_DATA, "CONTAINER")):
         uid = uid_of(first(node, C.IRRADIATION_EVENT_UID))
         if uid is None:
@@ -150,7 +153,8 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
                                     event_uid=uid, is_signed=True),
             distance_source_to_rp_mm=m.value(node, C.DISTANCE_SOURCE_TO_REFERENCE_POINT,
                                              Quantity.LENGTH, event_uid=uid),
-            reference_point_definition=_rp_definition(node),
+            reference_point_definition=(_rp_definition(node)
+                                        or report_rp.get(_plane(node) or "single")),
             filter_material=material,
             filter_thickness_mm=thickness,
             agd_mgy=m.value(node, C.AVERAGE_GLANDULAR_DOSE, Quantity.AIR_KERMA, event_uid=uid, plausible="agd"),

@@ -76,3 +76,16 @@ def test_an_angle_in_a_unit_other_than_degrees_is_an_issue_not_a_guess():
     assert report.projection_events[0].positioner_primary_angle_deg is None
     assert [(i.concept_code, i.raw_unit) for i in report.issues] == [("DCM:112011", "rad")]
     assert "not deg" in report.issues[0].detail
+
+
+def test_an_event_without_its_own_reference_point_takes_its_planes():
+    # PS3.16 TID 10002 states the Reference Point Definition per plane; TID 10003 may repeat it
+    _, ds = demo_dataset("tgh-xa1")
+    for item in ds.ContentSequence:
+        if item.ValueType == "CONTAINER" and \
+                item.ConceptNameCodeSequence[0].CodeValue == C.IRRADIATION_EVENT_XRAY_DATA.value:
+            item.ContentSequence = Sequence(
+                [c for c in item.ContentSequence
+                 if c.ConceptNameCodeSequence[0].CodeValue != C.REFERENCE_POINT_DEFINITION.value])
+    events = _parse(ds).projection_events
+    assert {e.reference_point_definition for e in events} == {"15cm from Isocenter toward Source"}
