@@ -547,7 +547,8 @@ def build_skin_dose_map(frame: pd.DataFrame, *, title: str) -> go.Figure:
         z=grid.to_numpy(), colorscale="Inferno", zmin=0.0,
         colorbar={"title": {"text": "Skin dose (Gy)"}},
         hovertemplate="around %{x:.0f} cm, along %{y:.0f} cm: %{z:.2f} Gy<extra></extra>"))
-    fig.update_xaxes(title={"text": "Around the trunk from the back midline, via the left side (cm)"},
+    fig.update_xaxes(title={"text": "Around the trunk from the front midline via the patient's right; "
+                                        "back at the centre (cm)"},
                      type="linear")
     fig.update_yaxes(title={"text": "Along the body, towards the head (cm)"}, type="linear",
                      scaleanchor="x", scaleratio=1.0)

@@ -127,7 +127,7 @@ class SkinDoseResult:
 
     psd_mgy: float
     dose_map_mgy: np.ndarray          # (n_around, n_along)
-    around_mm: np.ndarray             # arc length from the posterior midline, via the left side
+    around_mm: np.ndarray             # arc length from the front midline via the right side
     along_mm: np.ndarray              # phantom longitudinal coordinate (towards the head +)
     n_events: int
     n_events_with_geometry: int
@@ -215,7 +215,10 @@ def _surface(phantom: Phantom, cell_mm: float):
     half = int(phantom.length_mm / 2 // cell_mm)
     along = cell_mm * np.arange(-half, half + 1)
     dx, dz = -a * np.sin(theta), b * np.cos(theta)
-    around = np.concatenate([[0.0], np.cumsum(np.hypot(dx, dz)[:-1] * 2 * math.pi / n_around)])
+    step = np.hypot(dx, dz) * 2 * math.pi / n_around
+    from_back = np.concatenate([[0.0], np.cumsum(step[:-1])])
+    # unrolled from the front midline via the patient's right, so the back sits mid-map
+    around = np.mod(from_back + step.sum() / 2, step.sum())
     return theta, along, around
 
 

@@ -114,3 +114,13 @@ def test_phantom_from_height_and_weight_else_the_reference_adult():
     # 0.45 x 73 kg / (0.30 x 1.76 m) at 1 g/cm3 = 622 cm2 = pi a b with a = 1.5 b
     assert math.pi * ref.semi_lateral_mm * ref.semi_ap_mm == pytest.approx(0.45 * 73e6 / (0.3 * 1760))
     assert phantom_for(1.6, 100.0).semi_ap_mm > phantom_for(1.6, 60.0).semi_ap_mm
+
+
+def test_the_unrolled_map_puts_a_pa_field_on_the_back_at_its_centre():
+    result = compute_skin_dose([SkinDoseEvent(**PA)])
+    i, j = np.unravel_index(np.argmax(result.dose_map_mgy), result.dose_map_mgy.shape)
+    perimeter = result.around_mm.max() + (result.around_mm.max() - np.sort(result.around_mm)[-2])
+    assert result.around_mm[i] == pytest.approx(perimeter / 2, rel=0.02)   # back midline
+    assert result.along_mm[j] == 0.0                                       # isocentre level
+    # a 12 cm field at the back covers about 12 cells of 10 mm along the body
+    assert 10 <= (result.dose_map_mgy[i] > 0).sum() <= 14
