@@ -36,6 +36,7 @@ __all__ = [
     "build_file_status",
     "build_funnel",
     "build_reference_comparison",
+    "build_skin_dose_map",
     "build_trend",
     "build_weight_share",
 ]
@@ -531,3 +532,25 @@ def build_file_status(frame: pd.DataFrame, *, title: str) -> go.Figure:
                      **(_log_ticks([1, *frame["n_files"]]) if log else {}))
     fig.update_yaxes(title={"text": "Outcome: reason"}, type="category", autorange="reversed")
     return _layout(fig, title, height=100 + 34 * len(labels))
+
+
+# --- skin-dose map (peak skin dose follow-up) ---------------------------------------------
+def build_skin_dose_map(frame: pd.DataFrame, *, title: str) -> go.Figure:
+    """Skin dose of one study on the unrolled phantom surface, cells in Gy. Expects the rows of
+    one study from ``dash_skin_dose_maps.sql`` (around_mm, along_mm, dose_gy, psd_gy); cells
+    not in the rows received no dose."""
+    _require(frame, ["around_mm", "along_mm", "dose_gy", "psd_gy"], "build_skin_dose_map")
+    grid = frame.pivot_table(index="along_mm", columns="around_mm", values="dose_gy",
+                             aggfunc="sum").fillna(0.0)
+    fig = go.Figure(go.Heatmap(
+        x=[float(c) / 10.0 for c in grid.columns], y=[float(r) / 10.0 for r in grid.index],
+        z=grid.to_numpy(), colorscale="Inferno", zmin=0.0,
+        colorbar={"title": {"text": "Skin dose (Gy)"}},
+        hovertemplate="around %{x:.0f} cm, along %{y:.0f} cm: %{z:.2f} Gy<extra></extra>"))
+    fig.update_xaxes(title={"text": "Around the trunk from the front midline via the patient's right; "
+                                        "back at the centre (cm)"},
+                     type="linear")
+    fig.update_yaxes(title={"text": "Along the body, towards the head (cm)"}, type="linear",
+                     scaleanchor="x", scaleratio=1.0)
+    peak = float(frame["psd_gy"].iloc[0])
+    return _layout(fig, f"{title}: peak skin dose estimate {peak:.1f} Gy", height=420)

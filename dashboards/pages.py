@@ -172,6 +172,7 @@ class SiteData:
     key_epochs: pd.DataFrame = field(default_factory=pd.DataFrame)
     capture: pd.DataFrame | None = None          # kerma completeness; None: never run
     capture_missing: pd.DataFrame | None = None
+    skin_dose_maps: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_skin_dose_maps
 
 
 @dataclass
@@ -715,13 +716,36 @@ def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
                     note="Patients and studies appear only as keyed pseudonyms; the pseudonymisation key "
                          "holder can re-identify a study for follow-up. For a low outlier the factor is "
                          "threshold ÷ value.")
+    sections = [Section("counts", "By rule and site", (*blocks, counts)),
+                Section("list", "Alert list", (listing,))]
+    if not data.skin_dose_maps.empty:
+        sections.append(_skin_dose_section(data.skin_dose_maps))
     return Page("alerts.html", "Alerts", PAGES[5][2],
                 "Single examinations that crossed a follow-up threshold: substantial-dose levels for "
                 "fluoroscopy, CT dose-check values, robust outliers within a room and exam type, and "
                 "cumulative effective-dose estimates. Each row gives the rule, the value, the threshold "
                 "and where the threshold comes from.",
-                (Section("counts", "By rule and site", (*blocks, counts)),
-                 Section("list", "Alert list", (listing,))))
+                tuple(sections))
+
+
+_SKIN_DOSE_CAUTION = (
+    "Each map is an <strong>estimate</strong> of skin dose from the dose report's geometry on a "
+    "simple elliptical-cylinder phantom: typically within about &plusmn;40&nbsp;%, and it depends "
+    "on the phantom, the table-height convention and the factors used (backscatter, tissue-to-air "
+    "ratio, table and pad transmission; <code>skin_dose.factor_sources</code>). NCRP Report "
+    "No.&nbsp;168 asks for patient follow-up at a peak skin dose of 3&nbsp;Gy: clinical follow-up "
+    "is by the responsible physician, with a qualified medical physicist reviewing the estimate. "
+    "Local regulations prevail.")
+
+
+def _skin_dose_section(maps: pd.DataFrame) -> Section:
+    """One skin-dose map per study with a peak-skin-dose alert, and the cautions."""
+    blocks: list[Block] = [Note(f"<p>{_SKIN_DOSE_CAUTION}</p>")]
+    for (study_key, device_key), rows in maps.groupby(["study_key", "device_key"], sort=False):
+        label = f"Study {rows['study_label'].iloc[0]} ({rows['site_label'].iloc[0]})"
+        blocks.append(Plot(f"fig-skin-dose-{slug(study_key, device_key)}",
+                           figures.build_skin_dose_map(rows, title=label), ""))
+    return Section("skin-dose", "Skin-dose maps of studies at the peak-skin-dose level", tuple(blocks))
 
 
 def _data_quality(data: SiteData) -> Page:

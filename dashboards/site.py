@@ -28,7 +28,8 @@ __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
 
 # Relations the audit (pipeline.audit.run_audit) writes, and the views the site also reads.
 AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags",
-                "monthly_medians", "study_estimate", "data_alerts")
+                "monthly_medians", "study_estimate", "data_alerts",
+                "skin_dose", "skin_dose_map")
 _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
           "audit_observation", "reference_level", "key_epoch")
 
@@ -118,6 +119,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         value_issue_rows=q("dash_value_issue_rows", **params),
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
+        skin_dose_maps=q("dash_skin_dose_maps"),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

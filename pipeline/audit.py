@@ -2,8 +2,9 @@
 
 Tables written (replaced on each run, public interface): ``audit_medians``,
 ``network_reference``, ``dose_alerts``, ``drift_flags``, ``data_alerts`` (the data_check
-tier: feeds that went quiet or thin); plus ``monthly_medians`` and
-``study_estimate`` (SSDE and effective dose) for the dashboards.
+tier: feeds that went quiet or thin), ``skin_dose`` (peak skin dose per RF/XA study) and
+``skin_dose_map`` (its cells, for studies at a peak-skin-dose alert); plus ``monthly_medians``
+and ``study_estimate`` (SSDE and effective dose) for the dashboards.
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
 __all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
-           "period_bounds", "run_audit"]
+           "period_bounds", "run_audit", "skin_dose_rows"]
 
 
 def _default_min_sample() -> dict[str, int]:
@@ -243,6 +244,17 @@ _ESTIMATE_SCHEMA = pa.schema(
      ("effective_dose_msv", pa.float64()), ("k_msv_per_mgy_cm", pa.float64()),
      ("effective_dose_basis", pa.string()), ("effective_dose_source", pa.string()),
      ("ssde_mgy", pa.float64()), ("ssde_method", pa.string())])
+_SKIN_DOSE_SCHEMA = pa.schema(
+    [("study_key", pa.string()), ("patient_key", pa.string()), ("device_key", pa.string()),
+     ("site", pa.string()), ("modality", pa.string()), ("exam_type", pa.string()),
+     ("study_date", pa.date32()), ("psd_mgy", pa.float64()), ("method", pa.string()),
+     ("n_events", pa.int64()), ("n_events_with_geometry", pa.int64()),
+     ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
+     ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
+     ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
+_SKIN_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
+                              ("around_mm", pa.float64()), ("along_mm", pa.float64()),
+                              ("dose_mgy", pa.float64())])
 _BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
                           ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
@@ -343,6 +355,54 @@ def study_estimates(rows, settings: AuditSettings) -> list[dict]:
     return out
 
 
+def skin_dose_rows(rows, map_threshold_mgy: float | None = None) -> tuple[list[dict], list[dict]]:
+    """Per RF/XA study x device: the peak skin dose estimate (pipeline/skin_dose.py).
+
+    `rows` are mappings, one per event, in study order (queries/audit/select_skin_dose_events.sql);
+    missing values are None. Returns (one row per study, the non-zero cells of the skin-dose map
+    of each study whose PSD reaches `map_threshold_mgy`; none when it is None).
+    """
+    from itertools import groupby
+
+    from .skin_dose import UNCERTAINTY_NOTE, SkinDoseEvent, compute_skin_dose
+
+    out, cells = [], []
+    for _, group in groupby(rows, key=lambda r: (r["study_key"], r["device_key"])):
+        group = list(group)
+        first = group[0]
+        events = [SkinDoseEvent(
+            dose_rp_mgy=float(r["dose_rp_mgy"]), kvp=r["kvp"],
+            primary_angle_deg=r["positioner_primary_angle_deg"],
+            secondary_angle_deg=r["positioner_secondary_angle_deg"],
+            source_to_isocenter_mm=r["distance_source_to_isocenter_mm"],
+            source_to_detector_mm=r["distance_source_to_detector_mm"],
+            source_to_rp_mm=r["distance_source_to_rp_mm"],
+            field_area_cm2=(r["collimated_field_area_m2"] * 1e4
+                            if r["collimated_field_area_m2"] is not None else None),
+            table_longitudinal_mm=r["table_longitudinal_mm"], table_lateral_mm=r["table_lateral_mm"],
+            table_height_mm=r["table_height_mm"],
+            reference_point_definition=r["reference_point_definition"]) for r in group]
+        result = compute_skin_dose(events, height_m=first["patient_height_m"],
+                                   weight_kg=first["patient_weight_kg"])
+        out.append({**{k: first[k] for k in ("study_key", "patient_key", "device_key", "site",
+                                             "modality", "exam_type", "study_date")},
+                    "psd_mgy": result.psd_mgy, "method": result.method,
+                    "n_events": result.n_events,
+                    "n_events_with_geometry": result.n_events_with_geometry,
+                    "ka_r_total_mgy": result.ka_r_total_mgy, "psd_to_ka_r": result.psd_to_ka_r,
+                    "is_upper_bound": result.is_upper_bound,
+                    "upper_bound_part_mgy": result.upper_bound_part_mgy,
+                    "phantom": result.phantom.basis,
+                    "factor_sources": "; ".join(f"{k}: {v}" for k, v in result.factors.items()),
+                    "uncertainty_note": UNCERTAINTY_NOTE})
+        if map_threshold_mgy is not None and result.psd_mgy >= map_threshold_mgy:
+            i, j = result.dose_map_mgy.nonzero()
+            cells += [{"study_key": first["study_key"], "device_key": first["device_key"],
+                       "around_mm": float(result.around_mm[a]), "along_mm": float(result.along_mm[b]),
+                       "dose_mgy": float(result.dose_map_mgy[a, b])} for a, b in zip(i, j)]
+    return out, cells
+
+
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
               date_to: dt.date | None = None, reference_sets: list[str] | None = None,
               settings: AuditSettings | None = None, config: Path | None = None) -> AuditSummary:
@@ -412,8 +472,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("reference_in_force"))
         max_n = con.execute(sql("max_group_size"), {"date_from": first, "date_to": after}).fetchall()[0][0] or 1
         _register_temp(con, "median_ci_rank", pa.Table.from_pylist(median_ci_ranks(max_n), schema=_CI_SCHEMA))
-        _register_temp(con, "alert_rule_in_force",
-                       pa.Table.from_pylist(load_alert_rules(config), schema=_ALERT_SCHEMA))
+        rules = load_alert_rules(config)
+        _register_temp(con, "alert_rule_in_force", pa.Table.from_pylist(rules, schema=_ALERT_SCHEMA))
         params = {"date_from": first, "date_to": after, "period": label,
                   "adult_min_age": settings.adult_min_age_years,
                   "weight_min": settings.standard_weight_min_kg,
@@ -436,6 +496,13 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_study_estimate")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
+        psd_thresholds = [r["threshold"] for r in rules if r["family"] == "peak_skin_dose"]
+        skin, cells = skin_dose_rows(_records(con.execute(
+            sql("select_skin_dose_events"), {"date_from": first, "date_to": after})),
+            min(psd_thresholds) if psd_thresholds else None)
+        _register_temp(con, "skin_dose", pa.Table.from_pylist(skin, schema=_SKIN_DOSE_SCHEMA))
+        _register_temp(con, "skin_dose_map", pa.Table.from_pylist(cells, schema=_SKIN_MAP_SCHEMA))
+        con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
         con.execute(sql("monthly_medians"), adult)
         history = con.execute(sql("drift_input"), adult).df()

@@ -176,7 +176,12 @@ class ProjectionEvent:
     positioner_secondary_angle_deg: float | None = None
     source_to_detector_mm: float | None = None
     source_to_isocenter_mm: float | None = None
-    collimated_field_area_cm2: float | None = None
+    collimated_field_area_cm2: float | None = None  # reported, else Height x Width (TID 10003B)
+    table_longitudinal_mm: float | None = None   # TID 10003C; signed, device-specific origin
+    table_lateral_mm: float | None = None
+    table_height_mm: float | None = None
+    distance_source_to_rp_mm: float | None = None  # Distance Source to Reference Point (113737)
+    reference_point_definition: str | None = None  # per event (TID 10003B), CID 10025 meaning or text
     filter_material: str | None = None
     filter_thickness_mm: float | None = None
     agd_mgy: float | None = None

@@ -364,6 +364,11 @@ def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Data
         children.append(num_item(C.DISTANCE_SOURCE_TO_ISOCENTER, e.source_to_isocenter_mm, C.UNIT_MM))
     if e.sid_mm is not None:
         children.append(num_item(C.DISTANCE_SOURCE_TO_DETECTOR, e.sid_mm, C.UNIT_MM))
+    for concept, value in ((C.TABLE_LONGITUDINAL_POSITION, e.table_longitudinal_mm),
+                           (C.TABLE_LATERAL_POSITION, e.table_lateral_mm),
+                           (C.TABLE_HEIGHT_POSITION, e.table_height_mm)):
+        if value is not None:
+            children.append(num_item(concept, value, C.UNIT_MM))
     return container(C.IRRADIATION_EVENT_XRAY_DATA, children)
 
 

@@ -304,9 +304,54 @@ def _fluoro_events(rng, scenario, seed, index, device, exam, start, scale,
             filter_thickness_mm=0.2 if is_fluoro else 0.1,
         ))
         t += dt.timedelta(seconds=int(dur) + int(rng.integers(10, 120)))
+    # geometry from its own stream, so the dose draws above stay as they were
+    events = _with_geometry(events, _rng(seed, "geometry", index), is_xa)
     if special:
         events = _rescale_fluoro(events, special)
     return events
+
+
+# Standard cardiac projections as (primary, secondary) in degrees, PS3.3 C.8.7.5 signs
+# (+ = LAO / cranial, - = RAO / caudal); the view set is common practice, no source.
+_PLANE_A_VIEWS = [(-30.0, -25.0), (-30.0, 30.0), (0.0, 30.0), (45.0, 25.0), (45.0, -30.0),
+                  (60.0, 0.0), (0.0, -20.0)]
+_PLANE_B_VIEWS = [(90.0, 0.0), (60.0, 20.0), (90.0, -10.0)]
+
+
+def _with_geometry(events: list[ProjectionEvent], rng: np.random.Generator,
+                   is_xa: bool) -> list[ProjectionEvent]:
+    """Angulation and table positions per event: a C-arm dwells on one working view during
+    fluoroscopy (small jitter) and cycles standard views for cine; a fluoroscopy room keeps
+    the tube under the table (0, 0) and follows the contrast down the oesophagus."""
+    from dataclasses import replace
+
+    out = []
+    work_a = _PLANE_A_VIEWS[int(rng.integers(len(_PLANE_A_VIEWS)))]
+    work_b = _PLANE_B_VIEWS[int(rng.integers(len(_PLANE_B_VIEWS)))]
+    height = round(float(rng.uniform(-130.0, -90.0)), 0)
+    n = len(events)
+    for i, e in enumerate(events):
+        if is_xa:
+            views, work = (_PLANE_B_VIEWS, work_b) if e.plane == "B" else (_PLANE_A_VIEWS, work_a)
+            if e.event_type == "fluoroscopy" and rng.random() < 0.7:
+                base = work
+            else:
+                base = views[int(rng.integers(len(views)))]
+            primary = round(base[0] + float(rng.normal(0, 2.0)), 1)
+            secondary = round(base[1] + float(rng.normal(0, 2.0)), 1)
+            longitudinal = round(float(rng.normal(0, 15.0)), 0)
+            lateral = round(float(rng.normal(0, 8.0)), 0)
+            table_h = round(height + float(rng.normal(0, 5.0)), 0)
+        else:
+            primary = 0.0 if rng.random() < 0.8 else round(float(rng.choice([-15.0, 15.0])), 1)
+            secondary = 0.0
+            longitudinal = round(250.0 - 300.0 * i / max(1, n - 1) + float(rng.normal(0, 10.0)), 0)
+            lateral = round(float(rng.normal(0, 5.0)), 0)
+            table_h = height
+        out.append(replace(e, primary_angle_deg=primary, secondary_angle_deg=secondary,
+                           table_longitudinal_mm=longitudinal + 0.0, table_lateral_mm=lateral + 0.0,
+                           table_height_mm=table_h + 0.0))
+    return out
 
 
 def _rescale_fluoro(events: list[ProjectionEvent], special: dict[str, Any]) -> list[ProjectionEvent]:

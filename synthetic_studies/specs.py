@@ -81,6 +81,11 @@ class ProjectionEvent:
     field_area_m2: float | None = None
     primary_angle_deg: float | None = None
     secondary_angle_deg: float | None = None
+    # TID 10003C table positions; this invented network's units report the table-top height
+    # relative to the isocentre (positive up) and longitudinal/lateral from the table home
+    table_longitudinal_mm: float | None = None
+    table_lateral_mm: float | None = None
+    table_height_mm: float | None = None
     filter_material: str | None = None  # Al | Cu | Rh | Mo | Ag
     filter_thickness_mm: float | None = None
     body_part: str | None = None

@@ -20,7 +20,7 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
            "pipeline.cli.pull", "pipeline.cli.run", "pipeline.cli.completeness",
-           "pipeline.net.completeness"]
+           "pipeline.net.completeness", "pipeline.skin_dose"]
 
 
 @pytest.mark.parametrize("name", MODULES)

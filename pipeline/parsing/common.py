@@ -79,17 +79,23 @@ class Measurer:
                                       event_uid, raw_value, raw_unit))
 
     def value(self, parent: Dataset | None, concept: Code, quantity: Quantity, *,
-              event_uid: str | None = None, plausible: str | None = None) -> float | None:
-        """The NUM child `concept` of `parent` in canonical units; None (with an issue) if bad."""
+              event_uid: str | None = None, plausible: str | None = None,
+              is_signed: bool = False) -> float | None:
+        """The NUM child `concept` of `parent` in canonical units; None (with an issue) if bad.
+
+        `is_signed`: a negative value is legitimate (table positions, PS3.16 TID 10003C).
+        """
         if parent is None:
             return None
         node = first(parent, concept, "NUM")
         if node is None:
             return None
-        return self.num(node, concept, quantity, event_uid=event_uid, plausible=plausible)
+        return self.num(node, concept, quantity, event_uid=event_uid, plausible=plausible,
+                        is_signed=is_signed)
 
     def num(self, node: Dataset, concept: Code, quantity: Quantity, *,
-            event_uid: str | None = None, plausible: str | None = None) -> float | None:
+            event_uid: str | None = None, plausible: str | None = None,
+            is_signed: bool = False) -> float | None:
         name = concept.meaning
         text, unit, has_value = num_raw(node)
         if text is None:
@@ -126,7 +132,7 @@ class Measurer:
             self.issue(IssueKind.UNKNOWN_UNIT, f"{name}: {exc}; kept as NULL", concept,
                        event_uid, text, unit)
             return None
-        if converted < 0:
+        if converted < 0 and not is_signed:
             self.issue(IssueKind.NEGATIVE_VALUE, f"{name}: negative value {text} {unit}",
                        concept, event_uid, text, unit)
             return None

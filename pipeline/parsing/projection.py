@@ -82,9 +82,21 @@ def _filter(node: Dataset, uid: str, m: Measurer) -> tuple[str | None, float | N
     return material, thickness
 
 
+def _area_from_sides(node: Dataset, uid: str, m: Measurer) -> float | None:
+    """Collimated Field Height x Width (DCM 113788 x 113789) when no area is reported, in cm2."""
+    height = m.value(node, C.COLLIMATED_FIELD_HEIGHT, Quantity.LENGTH, event_uid=uid)
+    width = m.value(node, C.COLLIMATED_FIELD_WIDTH, Quantity.LENGTH, event_uid=uid)
+    if height is None or width is None:
+        return None
+    return height * width / 100.0        # mm2 -> cm2
+
+
 def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[ProjectionEvent]:
     """Every TID 10003 Irradiation Event X-Ray Data container, in document order."""
     events = []
+    # an event without its own Reference Point Definition takes its plane's (TID 10002)
+    report_rp = {_plane(a) or "single": _rp_definition(a)
+                 for a in find(root, C.ACCUMULATED_XRAY_DOSE_DATA, "CONTAINER")}
     for n, node in enumerate(find(root, C.IRRADIATION_EVENT_XRAY_DATA, "CONTAINER")):
         uid = uid_of(first(node, C.IRRADIATION_EVENT_UID))
         if uid is None:
@@ -102,6 +114,8 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
         material, thickness = _filter(node, uid, m)
         exposure_uas = m.value(node, C.EXPOSURE, Quantity.CHARGE, event_uid=uid)
         area = m.value(node, C.COLLIMATED_FIELD_AREA, Quantity.AREA, event_uid=uid)
+        if area is None:
+            area = _area_from_sides(node, uid, m)
         events.append(ProjectionEvent(
             event_uid=uid,
             sop_instance_uid=sop_uid,
@@ -131,6 +145,16 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
             source_to_detector_mm=m.value(node, C.DISTANCE_SOURCE_TO_DETECTOR, Quantity.LENGTH, event_uid=uid),
             source_to_isocenter_mm=m.value(node, C.DISTANCE_SOURCE_TO_ISOCENTER, Quantity.LENGTH, event_uid=uid),
             collimated_field_area_cm2=area,
+            table_longitudinal_mm=m.value(node, C.TABLE_LONGITUDINAL_POSITION, Quantity.LENGTH,
+                                          event_uid=uid, is_signed=True),
+            table_lateral_mm=m.value(node, C.TABLE_LATERAL_POSITION, Quantity.LENGTH,
+                                     event_uid=uid, is_signed=True),
+            table_height_mm=m.value(node, C.TABLE_HEIGHT_POSITION, Quantity.LENGTH,
+                                    event_uid=uid, is_signed=True),
+            distance_source_to_rp_mm=m.value(node, C.DISTANCE_SOURCE_TO_REFERENCE_POINT,
+                                             Quantity.LENGTH, event_uid=uid),
+            reference_point_definition=(_rp_definition(node)
+                                        or report_rp.get(_plane(node) or "single")),
             filter_material=material,
             filter_thickness_mm=thickness,
             agd_mgy=m.value(node, C.AVERAGE_GLANDULAR_DOSE, Quantity.AIR_KERMA, event_uid=uid, plausible="agd"),

@@ -4,6 +4,9 @@
 -- entrance_dose_mgy is the image header's Entrance Dose (0040,8302) in mGy, else 100 x (0040,0302)
 -- in dGy: a dose at the patient's entrance surface, a different quantity, never pooled with it;
 -- entrance_dose_derivation is its (0040,8303): only ESAK is the entrance surface air kerma Ka,e.
+-- Projection geometry (TID 10003B/C): positioner angles in degrees (PS3.3 C.8.7.5 signs),
+-- distances in mm, table positions in mm from a device-specific origin (signed),
+-- collimated_field_area_m2 as reported (or Height x Width), reference_point_definition per event.
 create or replace view irradiation_event as
 select
     event_uid, study_key, device_key, modality, source_kind, sop_instance_uid,
@@ -15,7 +18,14 @@ select
     null::double as irradiation_duration_s, null::varchar as laterality,
     nominal_total_collimation_mm, ssde_mgy, water_equivalent_diameter_mm,
     null::double as entrance_dose_mgy, null::varchar as entrance_dose_derivation,
-    top_z_scanning_length_mm, bottom_z_scanning_length_mm
+    top_z_scanning_length_mm, bottom_z_scanning_length_mm,
+    null::double as positioner_primary_angle_deg, null::double as positioner_secondary_angle_deg,
+    null::double as distance_source_to_isocenter_mm, null::double as distance_source_to_detector_mm,
+    null::double as distance_source_to_rp_mm,
+    null::double as table_longitudinal_mm, null::double as table_lateral_mm,
+    null::double as table_height_mm, null::double as collimated_field_area_m2,
+    null::varchar as filter_material, null::double as filter_thickness_mm,
+    null::varchar as reference_point_definition
 from stg_ct_event
 union all by name
 select
@@ -28,5 +38,12 @@ select
     null::double as nominal_total_collimation_mm, null::double as ssde_mgy,
     null::double as water_equivalent_diameter_mm,
     entrance_dose_mgy, entrance_dose_derivation,
-    null::double as top_z_scanning_length_mm, null::double as bottom_z_scanning_length_mm
+    null::double as top_z_scanning_length_mm, null::double as bottom_z_scanning_length_mm,
+    positioner_primary_angle_deg, positioner_secondary_angle_deg,
+    source_to_isocenter_mm as distance_source_to_isocenter_mm,
+    source_to_detector_mm as distance_source_to_detector_mm,
+    distance_source_to_rp_mm,
+    table_longitudinal_mm, table_lateral_mm, table_height_mm,
+    collimated_field_area_cm2 / 1e4 as collimated_field_area_m2,
+    filter_material, filter_thickness_mm, reference_point_definition
 from stg_projection_event

@@ -30,6 +30,11 @@ create table if not exists raw_projection_event (
     source_to_detector_mm double,
     source_to_isocenter_mm double,
     collimated_field_area_cm2 double,
+    table_longitudinal_mm double,
+    table_lateral_mm double,
+    table_height_mm double,
+    distance_source_to_rp_mm double,
+    reference_point_definition varchar,
     filter_material varchar,
     filter_thickness_mm double,
     agd_mgy double,
@@ -49,3 +54,8 @@ create table if not exists raw_projection_event (
 -- columns added after the first release: a warehouse made before them gains them here
 alter table raw_projection_event add column if not exists entrance_dose_mgy double;
 alter table raw_projection_event add column if not exists entrance_dose_derivation varchar;
+alter table raw_projection_event add column if not exists table_longitudinal_mm double;
+alter table raw_projection_event add column if not exists table_lateral_mm double;
+alter table raw_projection_event add column if not exists table_height_mm double;
+alter table raw_projection_event add column if not exists distance_source_to_rp_mm double;
+alter table raw_projection_event add column if not exists reference_point_definition varchar;

@@ -41,6 +41,7 @@ def test_every_rule_has_an_action_tier():
     actions = {r["family"]: r["action"] for r in load_alert_rules()}
     assert actions == {"fluoro_substantial_dose": "patient_follow_up",
                        "cumulative_effective_dose": "patient_follow_up",
+                       "peak_skin_dose": "patient_follow_up",
                        "ct_dose_check_notification": "protocol_review",
                        "ct_dose_check_alert": "protocol_review",
                        "robust_outlier": "statistical_review"}

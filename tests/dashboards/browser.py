@@ -38,8 +38,10 @@ _PLOTS_JS = """JSON.stringify({
   plots: Array.from(document.querySelectorAll('.plotly-graph-div')).map(d => {
     const r = d.getBoundingClientRect();
     return {id: d.id, svgs: d.querySelectorAll('svg.main-svg').length,
-            traces: d.querySelectorAll('svg.main-svg g.trace').length,
-            marks: d.querySelectorAll('svg.main-svg g.trace path, svg.main-svg g.trace text').length,
+            // a heatmap draws one <image> in its g.hm layer, not paths in a g.trace
+            traces: d.querySelectorAll('svg.main-svg g.trace, svg.main-svg g.hm').length,
+            marks: d.querySelectorAll('svg.main-svg g.trace path, svg.main-svg g.trace text, '
+                                      + 'svg.main-svg g.hm image').length,
             x: r.left + window.scrollX, y: r.top + window.scrollY, width: r.width, height: r.height};
   })
 })"""

@@ -113,7 +113,11 @@ def test_public_interface_columns(con):
                               "acquisition_protocol", "target_region", "kvp", "tube_current_ma",
                               "exposure_time_s", "dap_gy_cm2", "dose_rp_mgy", "ctdivol_mgy",
                               "dlp_mgy_cm", "ctdi_phantom", "scanning_length_mm", "pitch_factor",
-                              "agd_mgy", "compressed_breast_thickness_mm", "entrance_dose_mgy"],
+                              "agd_mgy", "compressed_breast_thickness_mm", "entrance_dose_mgy",
+                              "positioner_primary_angle_deg", "positioner_secondary_angle_deg",
+                              "distance_source_to_isocenter_mm", "distance_source_to_detector_mm",
+                              "table_longitudinal_mm", "table_lateral_mm", "table_height_mm",
+                              "collimated_field_area_m2"],
         "device": ["device_key", "site", "modality", "manufacturer", "model", "serial_number",
                    "station_name", "device_observer_uid"],
     }
@@ -165,7 +169,15 @@ def test_values_agree_with_dcmtk_dsrdump(corpus, con, files_manifest):
     tool = require_tool("dsrdump")
     factors = {("DLP", "mGy.cm"): ("dlp_mgy_cm", 1.0), ("Mean CTDIvol", "mGy"): ("ctdivol_mgy", 1.0),
                ("Dose Area Product", "Gy.m2"): ("dap_gy_cm2", 1e4),
-               ("Dose (RP)", "Gy"): ("dose_rp_mgy", 1e3)}
+               ("Dose (RP)", "Gy"): ("dose_rp_mgy", 1e3),
+               # TID 10003B/C geometry, as the skin-dose model reads it
+               ("Positioner Primary Angle", "deg"): ("positioner_primary_angle_deg", 1.0),
+               ("Positioner Secondary Angle", "deg"): ("positioner_secondary_angle_deg", 1.0),
+               ("Distance Source to Isocenter", "mm"): ("source_to_isocenter_mm", 1.0),
+               ("Table Longitudinal Position", "mm"): ("table_longitudinal_mm", 1.0),
+               ("Table Lateral Position", "mm"): ("table_lateral_mm", 1.0),
+               ("Table Height Position", "mm"): ("table_height_mm", 1.0),
+               ("Collimated Field Area", "m2"): ("collimated_field_area_cm2", 1e4)}
     clean = files_manifest[files_manifest.defect.isna() & (files_manifest.kind == "rdsr")]
     sample = pd.concat([g.head(3) for _, g in clean.groupby(clean.path.str.split("/").str[1])])
     checked = 0
