@@ -19,7 +19,7 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.flows.retry", "pipeline.cli", "pipeline.cli.app", "pipeline.cli.corpus",
            "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
-           "pipeline.cli.pull", "pipeline.cli.run"]
+           "pipeline.cli.pull", "pipeline.cli.run", "pipeline.notes", "pipeline.cli.note"]
 
 
 @pytest.mark.parametrize("name", MODULES)
