@@ -19,7 +19,9 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.flows.retry", "pipeline.cli", "pipeline.cli.app", "pipeline.cli.corpus",
            "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
-           "pipeline.cli.pull", "pipeline.cli.run", "pipeline.notes", "pipeline.cli.note"]
+           "pipeline.cli.pull", "pipeline.cli.run", "pipeline.notes", "pipeline.cli.note", "pipeline.cli.report", "pipeline.report",
+           "pipeline.report.content", "pipeline.report.words", "pipeline.report.render",
+           "pipeline.report.read"]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -17,5 +17,5 @@ create table if not exists audit_finding (
     threshold double,
     unit varchar,
     recorded_at timestamp not null,
-    primary key (period, period_length, item_id, rule)
+    primary key (date_from, date_to, item_id, rule)
 );
