@@ -21,7 +21,7 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
            "pipeline.cli.pull", "pipeline.cli.run", "pipeline.notes", "pipeline.cli.note", "pipeline.cli.report", "pipeline.report",
            "pipeline.report.content", "pipeline.report.words", "pipeline.report.render",
-           "pipeline.report.read"]
+           "pipeline.report.read", "pipeline.vault", "pipeline.cli.keys"]
 
 
 @pytest.mark.parametrize("name", MODULES)
