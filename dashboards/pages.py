@@ -209,7 +209,7 @@ def _cell(value: Any, kind: str) -> str:
     if kind == "p":
         return f"{float(value):.1e}"
     if kind == "date":
-        return _e(str(value)[:10])
+        return f'<span class="nowrap">{_e(str(value)[:10])}</span>'
     if kind == "key":
         text = str(value)
         return f'<span class="key" title="{_e(text)}">{_e(text[:12])}…</span>' if len(text) > 14 else _e(text)
@@ -222,7 +222,7 @@ def _cell(value: Any, kind: str) -> str:
     return _e(value)
 
 
-_NUMERIC = {"int", "num", "ratio", "pct", "p"}
+_NUMERIC = {"int", "num", "ratio", "pct", "p", "text_num"}
 
 
 def slug(*parts: Any) -> str:
@@ -454,8 +454,8 @@ def _overview(data: SiteData, ctx: Context, drift: Table) -> Page:
                   Column("version", "Version"), Column("effective_date", "Effective"),
                   Column("citation_title", "Source"), Column("is_verified", "Verified", "bool"),
                   Column("n_groups", "Groups compared", "int")))
-    top_alerts = data.alerts.head(10)
-    alerts = Table("overview-top-alerts", "The ten alerts furthest beyond their threshold", top_alerts,
+    top_alerts = alert_rows(data.alerts).head(10)
+    alerts = Table("overview-top-alerts", "The ten most urgent alerts (patient follow-up first)", top_alerts,
                    _ALERT_COLUMNS, note='All alerts are on the <a href="alerts.html">alerts page</a>.')
     return Page(
         "index.html", "Overview", PAGES[0][2],
@@ -647,16 +647,35 @@ def _sites(data: SiteData, site_colours: dict[str, str]) -> Page:
 
 
 _ALERT_COLUMNS = (
+    Column("action_text", "Action"),
     Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "key"),
     Column("patient_key", "Patient (pseudonym)", "key"), Column("site_label", "Site"),
-    Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule", "Rule"),
-    Column("action", "Action"),
-    Column("quantity", "Quantity", "quantity"), Column("value", "Value", "num"),
-    Column("threshold", "Threshold", "num"), Column("unit", "Unit", "unit"),
+    Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule_text", "Rule"),
+    Column("quantity", "Quantity", "quantity"), Column("value_text", "Value", "text_num"),
+    Column("threshold_text", "Threshold", "text_num"),
     Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed"),
     Column("threshold_verified", "Threshold read in its source", "bool"),
     Column("source", "Source of the threshold"),
 )
+
+
+def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
+    """Alerts most urgent first (patient follow-up, protocol review, statistical review; then
+    furthest beyond the threshold), with the rule in plain words and values in reading units
+    (fluoroscopy time in min:s); the numeric columns stay for the CSV."""
+    from pipeline.report.words import ACTION_WORDS, action_rank, format_value, rule_words
+
+    if alerts.empty:
+        return alerts.assign(action_text=pd.Series(dtype=str), rule_text=pd.Series(dtype=str),
+                             value_text=pd.Series(dtype=str), threshold_text=pd.Series(dtype=str))
+    out = alerts.assign(
+        action_text=[ACTION_WORDS.get(a, a) for a in alerts["action"]],
+        rule_text=[rule_words(r.rule, r.family, r.quantity, r.threshold, r.unit)
+                   for r in alerts.itertuples()],
+        value_text=[format_value(r.value, r.unit, r.quantity) for r in alerts.itertuples()],
+        threshold_text=[format_value(r.threshold, r.unit, r.quantity) for r in alerts.itertuples()],
+        _tier=[action_rank(a) for a in alerts["action"]])
+    return out.sort_values("_tier", kind="stable").drop(columns="_tier").reset_index(drop=True)
 
 
 def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
@@ -669,7 +688,8 @@ def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
     counts = Table("alerts-by-rule", "Alerts per rule and site", data.alert_counts,
                    (Column("rule", "Rule"), Column("site_label", "Site"), Column("n_alerts", "Alerts", "int"),
                     Column("n_studies", "Studies", "int")))
-    listing = Table("alerts", "Every alert, furthest beyond its threshold first", data.alerts, _ALERT_COLUMNS,
+    listing = Table("alerts", "Every alert, patient follow-up first, then furthest beyond its threshold",
+                    alert_rows(data.alerts), _ALERT_COLUMNS,
                     note="Patients and studies appear only as keyed pseudonyms; the pseudonymisation key "
                          "holder can re-identify a study for follow-up. For a low outlier the factor is "
                          "threshold ÷ value.")
@@ -820,5 +840,10 @@ code{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:12px;background
 footer{color:var(--muted);font-size:12.5px;border-top:1px solid var(--rule);padding-top:8px;padding-bottom:24px}
 footer p{margin:3px 0}
 .cautions-short{font-style:italic}
-@media print{.masthead nav,.toc,a.csv{display:none}section{break-inside:avoid-page;border:none}body{background:#fff}}
+.nowrap{white-space:nowrap}
+@media print{.masthead nav,.toc,a.csv{display:none}section{border:none}body{background:#fff}
+.scroll{overflow:visible;max-height:none;border:none}table{width:100%;table-layout:auto}
+thead{display:table-header-group}tr{break-inside:avoid}th{position:static;white-space:normal}
+td{overflow-wrap:anywhere}td.n,.nowrap{white-space:nowrap}figure.table{break-inside:auto}
+.key{font-size:9px}}
 """

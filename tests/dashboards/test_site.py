@@ -238,3 +238,17 @@ def test_public_api():
     for module in (figures, pages, site_module, theme):
         assert sorted(module.__all__) == sorted(set(module.__all__))
         assert all(hasattr(module, name) for name in module.__all__)
+
+
+def test_overview_leads_with_the_patient_to_follow_up(site):
+    """The 6.2 Gy Ka,r case (NCRP 168 substantial radiation dose level 5 Gy, from memory) heads
+    the overview's alerts, whatever the factor of a low outlier; rules read in plain words."""
+    index = _html(site, "index.html")
+    table = index[index.index('id="table-overview-top-alerts"'):]
+    first_row = table[table.index("<tbody>"):].split("</tr>")[0]
+    assert "Patient follow-up" in first_row and "Substantial radiation dose level" in first_row
+    alerts = _html(site, "alerts.html")
+    body = alerts[alerts.index('id="table-alerts"'):]
+    assert "ncrp168_srdl" not in body and "aapm_ct_notification" not in body
+    assert re.search(r"\d+:\d\d min:s", body)                      # fluoroscopy time in min:s
+    assert '<span class="nowrap">2026-' in body                    # dates never wrap
