@@ -656,6 +656,7 @@ _ALERT_COLUMNS = (
     Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed"),
     Column("threshold_verified", "Threshold read in its source", "bool"),
     Column("source", "Source of the threshold"),
+    Column("latest_note", "Latest review note"), Column("item_id", "Item (for kerma note)"),
 )
 
 

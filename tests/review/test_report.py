@@ -178,3 +178,20 @@ def test_kerma_report_refuses_a_missing_warehouse(tmp_path):
                                 terminal_width=200)
     assert result.exit_code == 2 and "no warehouse at" in result.output
     assert not (tmp_path / "none.duckdb").exists() and not (tmp_path / "r.pdf").exists()
+
+
+def test_the_alerts_page_shows_the_latest_note(september, tmp_path):
+    from dashboards.site import write_site
+    from pipeline.notes import add_note
+
+    db, _ = september
+    copy = tmp_path / "kerma.duckdb"
+    shutil.copyfile(db, copy)
+    with duckdb.connect(str(copy), read_only=True) as con:
+        item = con.execute("select item_id from dose_alerts where action = 'patient_follow_up' "
+                           "limit 1").fetchone()[0]
+    add_note(copy, item, "action", "skin check booked", "MPE")
+    write_site(copy, tmp_path / "site")
+    page = (tmp_path / "site" / "alerts.html").read_text(encoding="utf-8")
+    row = page[:page.index(item)].rsplit("<tr>", 1)[1]
+    assert "action: skin check booked (MPE, 20" in row
