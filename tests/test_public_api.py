@@ -21,7 +21,8 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
            "pipeline.cli.pull", "pipeline.cli.run", "pipeline.notes", "pipeline.cli.note", "pipeline.cli.report", "pipeline.report",
            "pipeline.report.content", "pipeline.report.words", "pipeline.report.render",
-           "pipeline.report.read", "pipeline.vault", "pipeline.cli.keys"]
+           "pipeline.report.read", "pipeline.vault", "pipeline.cli.keys", "pipeline.survey",
+           "pipeline.cli.survey"]
 
 
 @pytest.mark.parametrize("name", MODULES)
