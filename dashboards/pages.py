@@ -167,6 +167,7 @@ class SiteData:
     weight_share: pd.DataFrame
     value_issues: pd.DataFrame
     value_issue_rows: pd.DataFrame
+    alert_events: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_alert_events.sql
 
 
 @dataclass
@@ -660,6 +661,16 @@ _ALERT_COLUMNS = (
 )
 
 
+_EVENT_COLUMNS = (
+    Column("study_key", "Study (pseudonym)", "key"), Column("started_at", "Started"),
+    Column("event_type", "Event type"), Column("acquisition_protocol", "Protocol"),
+    Column("target_region", "Target region"), Column("kvp", "kVp", "num"),
+    Column("ctdivol_mgy", "CTDIvol (mGy)", "num"), Column("dlp_mgy_cm", "DLP (mGy·cm)", "num"),
+    Column("ctdi_phantom", "Phantom"), Column("dap_gy_cm2", "DAP (Gy·cm²)", "num"),
+    Column("dose_rp_mgy", "Ka,r (mGy)", "num"), Column("irradiation_duration_s", "Duration (s)", "num"),
+)
+
+
 def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
     """Alerts most urgent first (patient follow-up, protocol review, statistical review; then
     furthest beyond the threshold), with the rule in plain words and values in reading units
@@ -700,7 +711,13 @@ def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
                 "cumulative effective-dose estimates. Each row gives the rule, the value, the threshold "
                 "and where the threshold comes from.",
                 (Section("counts", "By rule and site", (*blocks, counts)),
-                 Section("list", "Alert list", (listing,))))
+                 Section("list", "Alert list", (listing,)),
+                 Section("events", "Study details: the events of each alerted study",
+                         (Table("alert-events", "Irradiation events of the studies with an alert",
+                                data.alert_events, _EVENT_COLUMNS,
+                                note="Find a study by its pseudonym from the alert list: "
+                                     "protocol, CTDIvol and DLP per CT acquisition, DAP and "
+                                     "Ka,r per projection event."),))))
 
 
 def _data_quality(data: SiteData) -> Page:

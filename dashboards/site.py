@@ -108,6 +108,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         files_not_loaded=q("dash_quarantined_files"), weight_share=q("dash_weight_share", **params),
         value_issues=q("dash_value_issues", **params),
         value_issue_rows=q("dash_value_issue_rows", **params),
+        alert_events=q("dash_alert_events"),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

@@ -56,6 +56,7 @@ class ReportInput:
     rooms: dict[str, tuple[str, str]]  # device_key -> (site label, room label)
     generated_at: dt.datetime
     version: str = ""
+    events: list[dict] = field(default_factory=list)   # queries/dashboards/dash_alert_events.sql
 
 
 @dataclass(frozen=True)
@@ -230,6 +231,8 @@ def report_content(inp: ReportInput) -> ReportContent:
         if entry["kind"] == "study":
             follow_up.append({**entry, "alerts": [a for a in alerts
                                                   if a["study_key"] == entry["study_key"]],
+                              "events": [e for e in inp.events
+                                         if e["study_key"] == entry["study_key"]],
                               "figures": []})   # per-study figures (e.g. a skin-dose map) go here
     medians = [{**m, "status": status.get(m["item_id"], ""), "note": inp.notes.get(m["item_id"]),
                 "median_text": format_value(m["median"], m["unit"], m["quantity"]),

@@ -57,7 +57,7 @@ def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> R
             alerts=_rows(con, "report_alerts"), medians=_rows(con, "report_flagged_medians"),
             drift=_rows(con, "report_drift"), coverage=_rows(con, "report_coverage"),
             rooms={r.device_key: (r.site_label, r.room_label) for r in devices.itertuples()},
-            generated_at=generated_at, version=version)
+            generated_at=generated_at, version=version, events=_rows(con, "dash_alert_events"))
     finally:
         con.unregister("dash_exam_type")
         con.unregister("dash_device")

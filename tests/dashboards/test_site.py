@@ -252,3 +252,12 @@ def test_overview_leads_with_the_patient_to_follow_up(site):
     assert "ncrp168_srdl" not in body and "aapm_ct_notification" not in body
     assert re.search(r"\d+:\d\d min:s", body)                      # fluoroscopy time in min:s
     assert '<span class="nowrap">2026-' in body                    # dates never wrap
+
+
+def test_alerts_page_drills_down_to_the_study_events(site):
+    alerts = pd.read_csv(site / "alerts.csv")
+    events = pd.read_csv(site / "alert-events.csv")
+    assert set(events["study_key"]) == set(alerts["study_key"])
+    xa = events[events["dose_rp_mgy"].notna()]
+    assert xa.groupby("study_key")["dose_rp_mgy"].sum().max() > 5000   # the 6.2 Gy PCI, per event
+    assert "Study details: the events of each alerted study" in _html(site, "alerts.html")

@@ -195,3 +195,16 @@ def test_the_alerts_page_shows_the_latest_note(september, tmp_path):
     page = (tmp_path / "site" / "alerts.html").read_text(encoding="utf-8")
     row = page[:page.index(item)].rsplit("<tr>", 1)[1]
     assert "action: skin check booked (MPE, 20" in row
+
+
+def test_follow_up_section_drills_down_to_the_events(september):
+    db, pdf = september
+    with duckdb.connect(str(db), read_only=True) as con:
+        study, n_events, ka_r = con.execute(
+            "select a.study_key, count(e.event_uid), sum(e.dose_rp_mgy) from dose_alerts as a "
+            "join irradiation_event as e using (study_key) "
+            "where a.rule = 'ncrp168_srdl_dose_rp' group by a.study_key").fetchone()
+    text = _flat(_text(pdf))
+    section = text[text.index("Patients needing follow-up"):text.index("Every individual-exam alert")]
+    assert study in section and f"Irradiation events of the study ({n_events})" in section
+    assert n_events > 1 and ka_r > 5000      # the events add up to the study's Ka,r
