@@ -458,9 +458,13 @@ def _overview(data: SiteData, ctx: Context, drift: Table) -> Page:
     top_alerts = alert_rows(data.alerts).head(10)
     alerts = Table("overview-top-alerts", "The ten most urgent alerts (patient follow-up first)", top_alerts,
                    _ALERT_COLUMNS, note='All alerts are on the <a href="alerts.html">alerts page</a>.')
+    one_month = (ctx.date_from is not None and ctx.date_to is not None and ctx.date_from.day == 1
+                 and (ctx.date_to + dt.timedelta(days=1)).day == 1
+                 and ctx.date_to.month == ctx.date_from.month and ctx.date_to.year == ctx.date_from.year)
     return Page(
-        "index.html", "Overview", PAGES[0][2],
-        "The month's radiation-dose audit of the network at a glance. Each tile links to the page "
+        "index.html", "Overview", PAGES[0][2] if one_month else "Dose audit of the period: overview",
+        f"The {'month' if one_month else 'period'}'s radiation-dose audit of the network at a glance. "
+        "Each tile links to the page "
         "with the detail. Medians are compared with the reference levels by the ICRP Publication 135 "
         "method: the median per room and exam type, with its 95 % confidence interval.",
         (Section("glance", "At a glance", (Note(f'<div class="tiles">{"".join(tiles)}</div>'),)),

@@ -261,3 +261,9 @@ def test_alerts_page_drills_down_to_the_study_events(site):
     xa = events[events["dose_rp_mgy"].notna()]
     assert xa.groupby("study_key")["dose_rp_mgy"].sum().max() > 5000   # the 6.2 Gy PCI, per event
     assert "Study details: the events of each alerted study" in _html(site, "alerts.html")
+
+
+def test_titles_follow_the_period(site):
+    """The session site covers Sep-Nov 2026: not a calendar month, so never titled "Monthly"."""
+    index = _html(site, "index.html")
+    assert "<h1>Dose audit of the period: overview</h1>" in index and "Monthly dose audit" not in index
