@@ -659,9 +659,8 @@ _ALERT_COLUMNS = (
     Column("quantity", "Quantity", "quantity"), Column("value_text", "Value", "text_num"),
     Column("threshold_text", "Threshold", "text_num"),
     Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed"),
-    Column("threshold_verified", "Threshold read in its source", "bool"),
-    Column("source", "Source of the threshold"),
-    Column("latest_note", "Latest review note"), Column("item_id", "Item (for kerma note)"),
+    Column("source", "Source of the threshold"),   # says "from memory" when not verified (CSV: threshold_verified)
+    Column("latest_note", "Latest review note"), Column("item_id", "Item", "key"),
 )
 
 
@@ -806,7 +805,7 @@ _CSS = """
 --warn:#D55E00;--ok:#009E73;--ochre:#8C6D1F}
 *{box-sizing:border-box}
 body{margin:0;background:var(--paper);color:var(--ink);font:14px/1.45 'Segoe UI','DejaVu Sans','Liberation Sans',Arial,sans-serif}
-.wrap{max-width:1220px;margin:0 auto;padding:0 20px}
+.wrap{max-width:1440px;margin:0 auto;padding:0 16px}
 .masthead{background:var(--ink);color:#f4f3ef;border-bottom:4px solid #E69F00}
 .masthead .wrap:first-child{padding-top:14px;padding-bottom:8px}
 .brand{margin:0;font-size:12px;letter-spacing:.18em;text-transform:uppercase;color:#c9ced6}
@@ -826,7 +825,7 @@ main{padding-top:18px;padding-bottom:12px}
 .lede{font-size:15px;max-width:900px}
 .toc ul{list-style:none;padding:0;margin:0 0 8px;display:flex;flex-wrap:wrap;gap:6px}
 .toc a{display:block;padding:3px 10px;border:1px solid var(--rule);border-radius:12px;background:var(--sheet);color:var(--accent);text-decoration:none;font-size:13px}
-section{background:var(--sheet);border:1px solid var(--rule);border-radius:6px;padding:12px 16px 14px;margin:14px 0}
+section{background:var(--sheet);border:1px solid var(--rule);border-radius:6px;padding:12px 12px 14px;margin:14px 0}
 section>h2{margin:0 0 8px;font-size:18px;padding-bottom:6px;border-bottom:1px solid var(--rule)}
 .intro,.note{color:var(--muted);max-width:960px}
 figure{margin:10px 0 16px}
@@ -834,14 +833,16 @@ figure.plot figcaption{color:var(--muted);font-size:12.5px;max-width:960px;margi
 figure.table figcaption{display:flex;justify-content:space-between;align-items:baseline;gap:12px;font-weight:600;margin-bottom:4px}
 a.csv{font-weight:400;font-size:12.5px;color:var(--accent);white-space:nowrap}
 .scroll{overflow-x:auto;max-height:560px;overflow-y:auto;border:1px solid var(--rule)}
-table{border-collapse:collapse;width:100%;font-size:12.5px;font-variant-numeric:tabular-nums}
-th{position:sticky;top:0;background:#eef1f4;text-align:left;font-weight:600;padding:5px 8px;border-bottom:1px solid #c9ced6;white-space:nowrap}
-td{padding:4px 8px;border-bottom:1px solid #eceff2;vertical-align:top}
+table{border-collapse:collapse;width:100%;font-size:12px;font-variant-numeric:tabular-nums}
+th{position:sticky;top:0;background:#eef1f4;text-align:left;font-weight:600;padding:5px 6px;border-bottom:1px solid #c9ced6;vertical-align:bottom}
+td{padding:4px 6px;border-bottom:1px solid #eceff2;vertical-align:top}
 tbody tr:nth-child(even){background:#fafbfc}
 .n{text-align:right;white-space:nowrap}
+th.n{white-space:normal}
+#table-alerts td:nth-child(n+13),#table-overview-top-alerts td:nth-child(n+13){overflow-wrap:anywhere}
 td.empty,p.empty{color:var(--muted);font-style:italic}
 .cut,.data-link{font-size:12.5px;color:var(--muted)}
-.key{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:12px}
+.key{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:11px}
 .flag{display:inline-block;padding:0 6px;margin:1px 2px 1px 0;border-radius:3px;font-size:11.5px;border:1px solid #c9ced6;background:#f4f5f7;white-space:nowrap}
 .flag-above-reference{border-color:var(--warn);color:#8a3a00;background:#fdf0e8;font-weight:600}
 .flag-too-few{border-style:dashed;color:var(--muted)}

@@ -141,3 +141,14 @@ def test_alerts_print_without_scroll_boxes_and_every_column(browser, site, tmp_p
         assert set(column.label.split()) <= words, column.label
     # the scenario's PCI: NCRP 168 substantial radiation dose level 5 Gy (from memory), Ka,r 6.2 Gy
     assert "6200 mGy" in text and "min:s" in text
+
+
+def test_alert_tables_need_no_horizontal_scrolling_at_1400_px(site):
+    """Every column of the alert tables (dose columns included) is visible at 1400 px."""
+    with Chromium(width=1400, height=900) as wide:
+        for page, table in (("index.html", "table-overview-top-alerts"), ("alerts.html", "table-alerts")):
+            wide.open(site / page)
+            scroll, client = wide.evaluate(
+                f"(() => {{const e = document.querySelector('#{table} .scroll');"
+                f" return [e.scrollWidth, e.clientWidth];}})()")
+            assert scroll <= client + 1, (page, scroll, client)
