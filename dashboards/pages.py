@@ -173,6 +173,7 @@ class SiteData:
     capture: pd.DataFrame | None = None          # kerma completeness; None: never run
     capture_missing: pd.DataFrame | None = None
     skin_dose_maps: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_skin_dose_maps
+    alert_events: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_alert_events.sql
 
 
 @dataclass
@@ -215,7 +216,7 @@ def _cell(value: Any, kind: str) -> str:
     if kind == "p":
         return f"{float(value):.1e}"
     if kind == "date":
-        return _e(str(value)[:10])
+        return f'<span class="nowrap">{_e(str(value)[:10])}</span>'
     if kind == "key":
         text = str(value)
         return f'<span class="key" title="{_e(text)}">{_e(text[:12])}…</span>' if len(text) > 14 else _e(text)
@@ -228,7 +229,7 @@ def _cell(value: Any, kind: str) -> str:
     return _e(value)
 
 
-_NUMERIC = {"int", "num", "ratio", "pct", "p"}
+_NUMERIC = {"int", "num", "ratio", "pct", "p", "text_num"}
 
 
 def slug(*parts: Any) -> str:
@@ -494,12 +495,16 @@ def _overview(data: SiteData, ctx: Context, drift: Table) -> Page:
                   Column("version", "Version"), Column("effective_date", "Effective"),
                   Column("citation_title", "Source"), Column("is_verified", "Verified", "bool"),
                   Column("n_groups", "Groups compared", "int")))
-    top_alerts = data.alerts.head(10)
-    alerts = Table("overview-top-alerts", "The ten alerts furthest beyond their threshold", top_alerts,
+    top_alerts = alert_rows(data.alerts).head(10)
+    alerts = Table("overview-top-alerts", "The ten most urgent alerts (patient follow-up first)", top_alerts,
                    _ALERT_COLUMNS, note='All alerts are on the <a href="alerts.html">alerts page</a>.')
+    one_month = (ctx.date_from is not None and ctx.date_to is not None and ctx.date_from.day == 1
+                 and (ctx.date_to + dt.timedelta(days=1)).day == 1
+                 and ctx.date_to.month == ctx.date_from.month and ctx.date_to.year == ctx.date_from.year)
     return Page(
-        "index.html", "Overview", PAGES[0][2],
-        "The month's radiation-dose audit of the network at a glance. Each tile links to the page "
+        "index.html", "Overview", PAGES[0][2] if one_month else "Dose audit of the period: overview",
+        f"The {'month' if one_month else 'period'}'s radiation-dose audit of the network at a glance. "
+        "Each tile links to the page "
         "with the detail. Medians are compared with the reference levels by the ICRP Publication 135 "
         "method: the median per room and exam type, with its 95 % confidence interval.",
         (_data_checks(data, n_studies),
@@ -690,16 +695,45 @@ def _sites(data: SiteData, site_colours: dict[str, str]) -> Page:
 
 
 _ALERT_COLUMNS = (
+    Column("action_text", "Action"),
     Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "key"),
     Column("patient_key", "Patient (pseudonym)", "key"), Column("site_label", "Site"),
-    Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule", "Rule"),
-    Column("action", "Action"),
-    Column("quantity", "Quantity", "quantity"), Column("value", "Value", "num"),
-    Column("threshold", "Threshold", "num"), Column("unit", "Unit", "unit"),
+    Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule_text", "Rule"),
+    Column("quantity", "Quantity", "quantity"), Column("value_text", "Value", "text_num"),
+    Column("threshold_text", "Threshold", "text_num"),
     Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed"),
-    Column("threshold_verified", "Threshold read in its source", "bool"),
-    Column("source", "Source of the threshold"),
+    Column("source", "Source of the threshold"),   # says "from memory" when not verified (CSV: threshold_verified)
+    Column("latest_note", "Latest review note"), Column("item_id", "Item", "key"),
 )
+
+
+_EVENT_COLUMNS = (
+    Column("study_key", "Study (pseudonym)", "key"), Column("started_at", "Started"),
+    Column("event_type", "Event type"), Column("acquisition_protocol", "Protocol"),
+    Column("target_region", "Target region"), Column("kvp", "kVp", "num"),
+    Column("ctdivol_mgy", "CTDIvol (mGy)", "num"), Column("dlp_mgy_cm", "DLP (mGy·cm)", "num"),
+    Column("ctdi_phantom", "Phantom"), Column("dap_gy_cm2", "DAP (Gy·cm²)", "num"),
+    Column("dose_rp_mgy", "Ka,r (mGy)", "num"), Column("irradiation_duration_s", "Duration (s)", "num"),
+)
+
+
+def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
+    """Alerts most urgent first (patient follow-up, protocol review, statistical review; then
+    furthest beyond the threshold), with the rule in plain words and values in reading units
+    (fluoroscopy time in min:s); the numeric columns stay for the CSV."""
+    from pipeline.report.words import ACTION_WORDS, action_rank, format_value, rule_words
+
+    if alerts.empty:
+        return alerts.assign(action_text=pd.Series(dtype=str), rule_text=pd.Series(dtype=str),
+                             value_text=pd.Series(dtype=str), threshold_text=pd.Series(dtype=str))
+    out = alerts.assign(
+        action_text=[ACTION_WORDS.get(a, a) for a in alerts["action"]],
+        rule_text=[rule_words(r.rule, r.family, r.quantity, r.threshold, r.unit)
+                   for r in alerts.itertuples()],
+        value_text=[format_value(r.value, r.unit, r.quantity) for r in alerts.itertuples()],
+        threshold_text=[format_value(r.threshold, r.unit, r.quantity) for r in alerts.itertuples()],
+        _tier=[action_rank(a) for a in alerts["action"]])
+    return out.sort_values("_tier", kind="stable").drop(columns="_tier").reset_index(drop=True)
 
 
 def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
@@ -712,12 +746,19 @@ def _alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
     counts = Table("alerts-by-rule", "Alerts per rule and site", data.alert_counts,
                    (Column("rule", "Rule"), Column("site_label", "Site"), Column("n_alerts", "Alerts", "int"),
                     Column("n_studies", "Studies", "int")))
-    listing = Table("alerts", "Every alert, furthest beyond its threshold first", data.alerts, _ALERT_COLUMNS,
+    listing = Table("alerts", "Every alert, patient follow-up first, then furthest beyond its threshold",
+                    alert_rows(data.alerts), _ALERT_COLUMNS,
                     note="Patients and studies appear only as keyed pseudonyms; the pseudonymisation key "
                          "holder can re-identify a study for follow-up. For a low outlier the factor is "
                          "threshold ÷ value.")
     sections = [Section("counts", "By rule and site", (*blocks, counts)),
-                Section("list", "Alert list", (listing,))]
+                Section("list", "Alert list", (listing,)),
+                Section("events", "Study details: the events of each alerted study",
+                        (Table("alert-events", "Irradiation events of the studies with an alert",
+                               data.alert_events, _EVENT_COLUMNS,
+                               note="Find a study by its pseudonym from the alert list: "
+                                    "protocol, CTDIvol and DLP per CT acquisition, DAP and "
+                                    "Ka,r per projection event."),))]
     if not data.skin_dose_maps.empty:
         sections.append(_skin_dose_section(data.skin_dose_maps))
     return Page("alerts.html", "Alerts", PAGES[5][2],
@@ -853,7 +894,7 @@ _CSS = """
 --warn:#D55E00;--ok:#009E73;--ochre:#8C6D1F}
 *{box-sizing:border-box}
 body{margin:0;background:var(--paper);color:var(--ink);font:14px/1.45 'Segoe UI','DejaVu Sans','Liberation Sans',Arial,sans-serif}
-.wrap{max-width:1220px;margin:0 auto;padding:0 20px}
+.wrap{max-width:1440px;margin:0 auto;padding:0 16px}
 .masthead{background:var(--ink);color:#f4f3ef;border-bottom:4px solid #E69F00}
 .masthead .wrap:first-child{padding-top:14px;padding-bottom:8px}
 .brand{margin:0;font-size:12px;letter-spacing:.18em;text-transform:uppercase;color:#c9ced6}
@@ -873,7 +914,7 @@ main{padding-top:18px;padding-bottom:12px}
 .lede{font-size:15px;max-width:900px}
 .toc ul{list-style:none;padding:0;margin:0 0 8px;display:flex;flex-wrap:wrap;gap:6px}
 .toc a{display:block;padding:3px 10px;border:1px solid var(--rule);border-radius:12px;background:var(--sheet);color:var(--accent);text-decoration:none;font-size:13px}
-section{background:var(--sheet);border:1px solid var(--rule);border-radius:6px;padding:12px 16px 14px;margin:14px 0}
+section{background:var(--sheet);border:1px solid var(--rule);border-radius:6px;padding:12px 12px 14px;margin:14px 0}
 section>h2{margin:0 0 8px;font-size:18px;padding-bottom:6px;border-bottom:1px solid var(--rule)}
 .intro,.note{color:var(--muted);max-width:960px}
 figure{margin:10px 0 16px}
@@ -881,14 +922,16 @@ figure.plot figcaption{color:var(--muted);font-size:12.5px;max-width:960px;margi
 figure.table figcaption{display:flex;justify-content:space-between;align-items:baseline;gap:12px;font-weight:600;margin-bottom:4px}
 a.csv{font-weight:400;font-size:12.5px;color:var(--accent);white-space:nowrap}
 .scroll{overflow-x:auto;max-height:560px;overflow-y:auto;border:1px solid var(--rule)}
-table{border-collapse:collapse;width:100%;font-size:12.5px;font-variant-numeric:tabular-nums}
-th{position:sticky;top:0;background:#eef1f4;text-align:left;font-weight:600;padding:5px 8px;border-bottom:1px solid #c9ced6;white-space:nowrap}
-td{padding:4px 8px;border-bottom:1px solid #eceff2;vertical-align:top}
+table{border-collapse:collapse;width:100%;font-size:12px;font-variant-numeric:tabular-nums}
+th{position:sticky;top:0;background:#eef1f4;text-align:left;font-weight:600;padding:5px 6px;border-bottom:1px solid #c9ced6;vertical-align:bottom}
+td{padding:4px 6px;border-bottom:1px solid #eceff2;vertical-align:top}
 tbody tr:nth-child(even){background:#fafbfc}
 .n{text-align:right;white-space:nowrap}
+th.n{white-space:normal}
+#table-alerts td:nth-child(n+13),#table-overview-top-alerts td:nth-child(n+13){overflow-wrap:anywhere}
 td.empty,p.empty{color:var(--muted);font-style:italic}
 .cut,.data-link{font-size:12.5px;color:var(--muted)}
-.key{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:12px}
+.key{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:11px}
 .flag{display:inline-block;padding:0 6px;margin:1px 2px 1px 0;border-radius:3px;font-size:11.5px;border:1px solid #c9ced6;background:#f4f5f7;white-space:nowrap}
 .flag-above-reference{border-color:var(--warn);color:#8a3a00;background:#fdf0e8;font-weight:600}
 .flag-too-few{border-style:dashed;color:var(--muted)}
@@ -909,5 +952,10 @@ code{font-family:'DejaVu Sans Mono',Consolas,monospace;font-size:12px;background
 footer{color:var(--muted);font-size:12.5px;border-top:1px solid var(--rule);padding-top:8px;padding-bottom:24px}
 footer p{margin:3px 0}
 .cautions-short{font-style:italic}
-@media print{.masthead nav,.toc,a.csv{display:none}section{break-inside:avoid-page;border:none}body{background:#fff}}
+.nowrap{white-space:nowrap}
+@media print{.masthead nav,.toc,a.csv{display:none}section{border:none}body{background:#fff}
+.scroll{overflow:visible;max-height:none;border:none}table{width:100%;table-layout:auto}
+thead{display:table-header-group}tr{break-inside:avoid}th{position:static;white-space:normal}
+td{overflow-wrap:anywhere}td.n,.nowrap{white-space:nowrap}figure.table{break-inside:auto}
+.key{font-size:9px}}
 """

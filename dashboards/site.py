@@ -120,6 +120,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
         skin_dose_maps=q("dash_skin_dose_maps"),
+        alert_events=q("dash_alert_events"),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
         con.unregister(name)

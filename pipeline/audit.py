@@ -4,7 +4,9 @@ Tables written (replaced on each run, public interface): ``audit_medians``,
 ``network_reference``, ``dose_alerts``, ``drift_flags``, ``data_alerts`` (the data_check
 tier: feeds that went quiet or thin), ``skin_dose`` (peak skin dose per RF/XA study) and
 ``skin_dose_map`` (its cells, for studies at a peak-skin-dose alert); plus ``monthly_medians``
-and ``study_estimate`` (SSDE and effective dose) for the dashboards.
+and ``study_estimate`` (SSDE and effective dose) for the dashboards. Every finding carries a
+stable ``item_id`` (the same finding next period has the same id), and each run records its
+period's findings in ``audit_finding`` (kept across runs: new / persisting / resolved).
 """
 
 from __future__ import annotations
@@ -26,7 +28,7 @@ from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
 __all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
-           "period_bounds", "run_audit", "skin_dose_rows"]
+           "period_bounds", "period_length", "previous_period", "run_audit", "skin_dose_rows"]
 
 
 def _default_min_sample() -> dict[str, int]:
@@ -175,6 +177,27 @@ def period_bounds(period: str | None = None, date_from: dt.date | None = None,
     raise ConfigError("give --period YYYY-MM, or both --from and --to")
 
 
+def period_length(first: dt.date, after: dt.date) -> str:
+    """The length of the period [first, after): ``'N month(s)'`` for whole calendar months,
+    else ``'N days'``; part of every finding's item_id (the same finding next period, same id)."""
+    if first.day == 1 and after.day == 1:
+        months = (after.year - first.year) * 12 + after.month - first.month
+        return f"{months} month" + ("s" if months != 1 else "")
+    return f"{(after - first).days} days"
+
+
+def previous_period(first: dt.date, after: dt.date) -> tuple[dt.date, dt.date]:
+    """(first day, day after the last) of the period of the same length just before [first, after).
+
+    Whole calendar months step back by the same number of months; other periods by their days.
+    """
+    if first.day == 1 and after.day == 1:
+        months = (after.year - first.year) * 12 + after.month - first.month
+        index = first.year * 12 + first.month - 1 - months
+        return dt.date(index // 12, index % 12 + 1, 1), first
+    return first - (after - first), first
+
+
 _ACTIONS = ("patient_follow_up", "protocol_review", "statistical_review")
 _RULE_KEYS = {"rule", "family", "action", "quantity", "threshold", "unit", "source", "verified",
               "seed_rule", "protocol_family", "population", "age_min_years", "age_max_years",
@@ -266,6 +289,17 @@ def _register_temp(con, name: str, table: pa.Table) -> None:
         con.execute(sql(f"create_{name}"))
     finally:
         con.unregister(f"incoming_{name}")
+
+
+def _run_statements(con, text: str, params: dict) -> None:
+    """Run a file of several statements, each with the parameters it names (DuckDB binds
+    parameters per prepared statement)."""
+    import re
+
+    for statement in (s.strip() for s in text.split(";\n")):
+        if re.sub(r"--[^\n]*", "", statement).strip():
+            names = set(re.findall(r"\$(\w+)", statement))
+            con.execute(statement, {k: v for k, v in params.items() if k in names})
 
 
 def _records(cursor) -> list[dict]:
@@ -518,6 +552,12 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             con.unregister("incoming_drift_flags")
         con.execute(sql("update_median_after_change"), {"date_from": first, "date_to": after,
                                                         "adult_min_age": settings.adult_min_age_years})
+        length = period_length(first, after)
+        for table in ("audit_medians", "dose_alerts", "drift_flags"):
+            _run_statements(con, sql(f"set_item_id_{table}"), {"period_length": length})
+        _run_statements(con, sql("record_audit_findings"), {
+            "period": label, "date_from": first, "date_last": after - dt.timedelta(days=1),
+            "period_length": length, "recorded_at": dt.datetime.now(dt.UTC).replace(tzinfo=None)})
         summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen,
                                reference_body=choice.body, reference_basis=choice.basis,
                                fallback_sets=list(choice.fallback),

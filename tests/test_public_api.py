@@ -20,7 +20,10 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.cli.ingest", "pipeline.cli.query", "pipeline.cli.exams",
            "pipeline.cli.reference", "pipeline.cli.audit", "pipeline.cli.listen",
            "pipeline.cli.pull", "pipeline.cli.run", "pipeline.cli.completeness",
-           "pipeline.net.completeness", "pipeline.skin_dose"]
+           "pipeline.net.completeness", "pipeline.skin_dose", "pipeline.notes", "pipeline.cli.note",
+           "pipeline.cli.report", "pipeline.report", "pipeline.report.content",
+           "pipeline.report.words", "pipeline.report.render", "pipeline.report.read",
+           "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey"]
 
 
 @pytest.mark.parametrize("name", MODULES)

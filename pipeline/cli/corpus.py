@@ -60,7 +60,8 @@ def demo(
     """Run the main job on the embedded demo network: generate, then the monthly flow.
 
     The monthly flow (Prefect) ingests the corpus, audits its three months and writes the
-    dashboards; each flow run is recorded in the view ``pipeline_run``.
+    dashboards and the committee report beside them; each flow run is recorded in the view
+    ``pipeline_run``.
     """
     import datetime as dt
     import secrets
@@ -102,6 +103,7 @@ def demo(
     console.print(ingest_table(result.ingest))
     print_audit_summary(result.audit)
     console.print(f"Dashboards written: {result.site_index}")
+    console.print(f"Committee report written: {result.site_index.parent / 'report.pdf'}")
     console.print(f"Monthly flow finished in {time.perf_counter() - started:.1f} s; its runs are "
                   f"in the view pipeline_run.")
     console.print(

@@ -70,12 +70,34 @@ def ingest_command(
         None, "--key-file", help="File holding the pseudonymisation key (else $KERMA_PSEUDONYM_KEY)."),
     config: Path | None = typer.Option(None, "--config", help="Settings file (default ./kerma.toml)."),
     new_key_epoch: bool = typer.Option(False, "--new-key-epoch", help="Accept a key other than the warehouse's: start a new key epoch (patients are not linked across epochs)."),
+    vault: Path | None = typer.Option(None, "--vault", help="Re-identification vault file to append sealed identifiers to (never the warehouse)."),
+    recipient: Path | None = typer.Option(None, "--recipient", help="The key holder's reidentify-public.key (with --vault)."),
 ) -> None:
     """Read DICOM dose reports and image headers into the warehouse; every file is accounted for."""
+    if (vault is None) != (recipient is None):
+        fail("--vault and --recipient go together")
+    if vault is not None:
+        from ..errors import ConfigError
+        from ..vault import load_public_key
+        if vault.resolve() == warehouse.resolve():
+            fail("--vault must be a file of its own, never the warehouse")
+        try:
+            load_public_key(recipient)
+        except ConfigError as exc:
+            fail(str(exc))
     started = time.perf_counter()
     summary = run_ingest(paths, warehouse, key_file, workers, config, new_key_epoch=new_key_epoch)
     console.print(ingest_table(summary))
     if new_key_epoch and summary.key_epoch and summary.key_epoch > 1:
         console.print(f"[yellow]Key epoch {summary.key_epoch}:[/yellow] patients of these files are "
                       "not linked with those loaded under earlier keys.")
+    if vault is not None:
+        from ..errors import ConfigError
+        from ..pseudonym import load_key
+        from ..vault import seal_studies
+        try:
+            n = seal_studies(paths, vault, recipient, load_key(key_file), warehouse=warehouse)
+        except ConfigError as exc:
+            fail(str(exc))
+        console.print(f"Vault {vault}: {n} new studies sealed for the key holder")
     console.print(f"run {summary.run_id} finished in {time.perf_counter() - started:.1f} s")

@@ -107,3 +107,48 @@ def test_the_harness_reports_console_errors(browser, tmp_path):
     report = browser.open(page)
     assert report.console_errors == ["seen"]
     assert len(report.exceptions) == 1 and "undefinedFunction" in report.exceptions[0]
+
+
+def test_alerts_print_without_scroll_boxes_and_every_column(browser, site, tmp_path):
+    """Print media: the alert table prints whole (no scroll box cuts its dose columns); the PDF
+    Chromium makes is read back with poppler's pdftotext."""
+    import base64
+    import re
+    import subprocess
+
+    from tests.helpers import require_tool
+
+    browser.open(site / "alerts.html")
+    browser.call("Emulation.setEmulatedMedia", media="print")
+    try:
+        overflow = browser.evaluate(
+            "Array.from(document.querySelectorAll('.scroll')).map(e => getComputedStyle(e).overflowX + "
+            "'/' + getComputedStyle(e).maxHeight)")
+        assert overflow and set(overflow) == {"visible/none"}
+        pdf = tmp_path / "alerts.pdf"
+        pdf.write_bytes(base64.b64decode(browser.call("Page.printToPDF", landscape=True,
+                                                      printBackground=False)["data"]))
+    finally:
+        browser.call("Emulation.setEmulatedMedia", media="")
+    boxes = subprocess.run([require_tool("pdftotext"), "-bbox", str(pdf), "-"], check=True,
+                           capture_output=True, text=True).stdout
+    for page in re.finditer(r'<page width="([\d.]+)".*?</page>', boxes, re.S):
+        assert all(float(x) <= float(page.group(1)) for x in re.findall(r'xMax="([\d.]+)"', page.group(0)))
+    text = " ".join(re.findall(r">([^<]+)</word>", boxes))
+    from dashboards.pages import _ALERT_COLUMNS
+    words = set(text.split())
+    for column in _ALERT_COLUMNS:
+        assert set(column.label.split()) <= words, column.label
+    # the scenario's PCI: NCRP 168 substantial radiation dose level 5 Gy (from memory), Ka,r 6.2 Gy
+    assert "6200 mGy" in text and "min:s" in text
+
+
+def test_alert_tables_need_no_horizontal_scrolling_at_1400_px(site):
+    """Every column of the alert tables (dose columns included) is visible at 1400 px."""
+    with Chromium(width=1400, height=900) as wide:
+        for page, table in (("index.html", "table-overview-top-alerts"), ("alerts.html", "table-alerts")):
+            wide.open(site / page)
+            scroll, client = wide.evaluate(
+                f"(() => {{const e = document.querySelector('#{table} .scroll');"
+                f" return [e.scrollWidth, e.clientWidth];}})()")
+            assert scroll <= client + 1, (page, scroll, client)

@@ -31,6 +31,7 @@ def test_kerma_dashboard_single_month(warehouse, tmp_path):
     assert result.exit_code == 0, result.output
     index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
     assert "2026-10 (01 Oct 2026 to 31 Oct 2026)" in index
+    assert "<h1>Monthly dose audit: overview</h1>" in index      # one calendar month
 
 
 def test_kerma_dashboard_bad_period_exits_2_with_a_message(warehouse, tmp_path):

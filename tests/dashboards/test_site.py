@@ -238,3 +238,32 @@ def test_public_api():
     for module in (figures, pages, site_module, theme):
         assert sorted(module.__all__) == sorted(set(module.__all__))
         assert all(hasattr(module, name) for name in module.__all__)
+
+
+def test_overview_leads_with_the_patient_to_follow_up(site):
+    """The 6.2 Gy Ka,r case (NCRP 168 substantial radiation dose level 5 Gy, from memory) heads
+    the overview's alerts, whatever the factor of a low outlier; rules read in plain words."""
+    index = _html(site, "index.html")
+    table = index[index.index('id="table-overview-top-alerts"'):]
+    first_row = table[table.index("<tbody>"):].split("</tr>")[0]
+    assert "Patient follow-up" in first_row and "Substantial radiation dose level" in first_row
+    alerts = _html(site, "alerts.html")
+    body = alerts[alerts.index('id="table-alerts"'):]
+    assert "ncrp168_srdl" not in body and "aapm_ct_notification" not in body
+    assert re.search(r"\d+:\d\d min:s", body)                      # fluoroscopy time in min:s
+    assert '<span class="nowrap">2026-' in body                    # dates never wrap
+
+
+def test_alerts_page_drills_down_to_the_study_events(site):
+    alerts = pd.read_csv(site / "alerts.csv")
+    events = pd.read_csv(site / "alert-events.csv")
+    assert set(events["study_key"]) == set(alerts["study_key"])
+    xa = events[events["dose_rp_mgy"].notna()]
+    assert xa.groupby("study_key")["dose_rp_mgy"].sum().max() > 5000   # the 6.2 Gy PCI, per event
+    assert "Study details: the events of each alerted study" in _html(site, "alerts.html")
+
+
+def test_titles_follow_the_period(site):
+    """The session site covers Sep-Nov 2026: not a calendar month, so never titled "Monthly"."""
+    index = _html(site, "index.html")
+    assert "<h1>Dose audit of the period: overview</h1>" in index and "Monthly dose audit" not in index

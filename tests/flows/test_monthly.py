@@ -161,6 +161,8 @@ def test_kerma_demo_runs_through_the_monthly_flow(tmp_path):
     assert monthly[3] == "2026-09-01..2026-11-30" and monthly[4] == "COMPLETED"
     assert monthly[5] == _file_counts(out / "kerma.duckdb")["loaded"]
     assert (out / "site" / "index.html").exists()
+    assert "Committee report written" in result.output
+    assert (out / "site" / "report.pdf").read_bytes().startswith(b"%PDF-")
 
 
 def test_kerma_schedule_monthly_serves_until_stopped(inbox, tmp_path, key_file):
