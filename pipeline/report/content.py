@@ -57,6 +57,7 @@ class ReportInput:
     generated_at: dt.datetime
     version: str = ""
     events: list[dict] = field(default_factory=list)   # queries/dashboards/dash_alert_events.sql
+    data_checks: list[dict] = field(default_factory=list)  # queries/report/report_data_alerts.sql
 
 
 @dataclass(frozen=True)
@@ -242,7 +243,8 @@ def report_content(inp: ReportInput) -> ReportContent:
              for d in inp.drift]
     summary = {"tiers": tiers, "counts": counts, "previous_text": previous_text,
                "previous_audited": inp.previous_audited, "coverage": inp.coverage,
-               "cautions": CAUTIONS, "resolved": _resolved_lines(resolved, inp.rooms)}
+               "cautions": CAUTIONS, "resolved": _resolved_lines(resolved, inp.rooms),
+               "data_checks": inp.data_checks}
     sections = [
         ReportSection("summary", "Executive summary", "summary.html", summary),
         ReportSection("follow_up", "Patients needing follow-up", "follow_up.html",

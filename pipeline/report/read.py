@@ -22,6 +22,13 @@ def _rows(con, name: str, **params) -> list[dict]:
     return [dict(zip(columns, row)) for row in cursor.fetchall()]
 
 
+def _data_checks(con) -> list[dict]:
+    """The data_check tier of the last audit; none when the warehouse predates data_alerts."""
+    exists = con.execute("select count(*) from information_schema.tables "
+                         "where table_name = 'data_alerts'").fetchone()[0]
+    return _rows(con, "report_data_alerts") if exists else []
+
+
 def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> ReportInput:
     """Rows of the last audit in the warehouse (`con`, read-only) and its previous period.
 
@@ -57,7 +64,8 @@ def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> R
             alerts=_rows(con, "report_alerts"), medians=_rows(con, "report_flagged_medians"),
             drift=_rows(con, "report_drift"), coverage=_rows(con, "report_coverage"),
             rooms={r.device_key: (r.site_label, r.room_label) for r in devices.itertuples()},
-            generated_at=generated_at, version=version, events=_rows(con, "dash_alert_events"))
+            generated_at=generated_at, version=version, events=_rows(con, "dash_alert_events"),
+            data_checks=_data_checks(con))
     finally:
         con.unregister("dash_exam_type")
         con.unregister("dash_device")

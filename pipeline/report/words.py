@@ -32,6 +32,7 @@ _FAMILY_WORDS = {
     "device_dose_check": "The scanner's own dose-check value",
     "robust_outlier": "Unusual dose for this room and exam type",
     "cumulative_effective_dose": "Cumulative effective-dose estimate over 12 months",
+    "peak_skin_dose": "Peak skin dose estimate at the follow-up level (NCRP 168)",
 }
 _RULE_WORDS = {
     "robust_outlier_high": "Unusually high dose for this room and exam type (robust outlier)",

@@ -208,3 +208,17 @@ def test_follow_up_section_drills_down_to_the_events(september):
     section = text[text.index("Patients needing follow-up"):text.index("Every individual-exam alert")]
     assert study in section and f"Irradiation events of the study ({n_events})" in section
     assert n_events > 1 and ka_r > 5000      # the events add up to the study's Ka,r
+
+
+def test_data_checks_lead_page_one(september):
+    """issue 16: data checks (a feed that went quiet) come before the dose findings, since
+    they make those findings incomplete; every check of the audited period is named."""
+    db, pdf = september
+    page1 = _flat(_text(pdf, "-f", "1", "-l", "1"))
+    with duckdb.connect(str(db), read_only=True) as con:
+        checks = con.execute("select kind, item_id from data_alerts").fetchall()
+    assert checks, "the 320-study corpus has units silent at the end of September"
+    assert page1.index("0. Data checks") < page1.index("1. Patient follow-up")
+    assert f"feeds that went quiet or thin ({len(checks)})" in page1
+    for kind, item in checks:
+        assert page1.index(item) < page1.index("1. Patient follow-up"), kind
