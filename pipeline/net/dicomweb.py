@@ -17,7 +17,7 @@ import httpx
 from ..errors import ArchiveError
 from ..parsing import DOSE_SR_CLASSES
 from .dimse import Instance, PullSummary, date_range
-from .inbox import is_valid_uid, write_atomic
+from .inbox import write_atomic
 
 __all__ = ["ACCEPT_DICOM", "find_dose_reports_web", "pull_dicomweb", "split_multipart"]
 
@@ -129,14 +129,7 @@ def pull_dicomweb(url: str, *, date_from: dt.date, date_to: dt.date, inbox: Path
     with httpx.Client(base_url=url.rstrip("/"), transport=transport, timeout=timeout,
                       auth=auth, follow_redirects=True) as client:
         summary.n_studies, found = find_dose_reports_web(client, date_from, date_to, modalities)
-        summary.n_found = len(found)
-        for item in found:
-            if item.sop_instance_uid in have:
-                summary.n_already += 1
-                continue
-            if not is_valid_uid(item.sop_instance_uid):
-                summary.failures.append(f"{item.sop_instance_uid!r}: not a valid UID")
-                continue
+        for item in summary.to_fetch(found, have):
             write_atomic(Path(inbox), item.sop_instance_uid, [_retrieve(client, item)])
             have.add(item.sop_instance_uid)
             summary.n_fetched += 1

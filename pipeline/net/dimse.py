@@ -59,6 +59,18 @@ class PullSummary:
     def n_failed(self) -> int:
         return len(self.failures)
 
+    def to_fetch(self, found: list[Instance], have: set[str]) -> Iterator[Instance]:
+        """The instances of `found` still to fetch: those already held and those with an
+        invalid UID are counted here and skipped."""
+        self.n_found = len(found)
+        for item in found:
+            if item.sop_instance_uid in have:
+                self.n_already += 1
+            elif not is_valid_uid(item.sop_instance_uid):
+                self.failures.append(f"{item.sop_instance_uid!r}: not a valid UID")
+            else:
+                yield item
+
 
 def close_transport(assoc) -> None:
     """Close an association's socket for good.
@@ -214,14 +226,7 @@ def pull_dimse(*, host: str, port: int, archive_ae: str, ae_title: str, our_port
                                f"the association from {ae_title}")
         try:
             summary.n_studies, found = find_dose_reports(assoc, date_from, date_to, modalities)
-            summary.n_found = len(found)
-            for item in found:
-                if item.sop_instance_uid in have:
-                    summary.n_already += 1
-                    continue
-                if not is_valid_uid(item.sop_instance_uid):
-                    summary.failures.append(f"{item.sop_instance_uid!r}: not a valid UID")
-                    continue
+            for item in summary.to_fetch(found, have):
                 _fetch(assoc, item, method, ae_title)
                 if instance_path(inbox, item.sop_instance_uid).exists():
                     summary.n_fetched += 1

@@ -261,8 +261,8 @@ def parse_ct_image_events(ds: Dataset, sop_uid: str, m: Measurer) -> list[CtEven
         if not zs and frame0 is shared and frame0 is not None:  # CTDIvol shared, positions per frame
             zs = [z for z in (_z(f) for f in ds.get("PerFrameFunctionalGroupsSequence") or [])
                   if z is not None]
-        if not zs and _z(ds) is not None:
-            zs = [_z(ds)]
+        if not zs:
+            zs = [z for z in (_z(ds),) if z is not None]
         acq = _item(frame0, "CTAcquisitionTypeSequence") or _item(shared, "CTAcquisitionTypeSequence")
         details = _item(frame0, "CTXRayDetailsSequence") or _item(shared, "CTXRayDetailsSequence")
         time_ms = header_float(exp0, "ExposureTimeInms")

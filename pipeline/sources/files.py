@@ -27,8 +27,8 @@ from pydicom.uid import UID
 
 from ..errors import NotDicomError, UnsafeArchiveMemberError, UnsupportedTransferSyntaxError
 
-__all__ = ["Candidate", "ReadResult", "iter_candidates", "lenient_pydicom", "read_dataset",
-           "read_object", "transfer_syntax"]
+__all__ = ["Candidate", "ReadResult", "iter_candidates", "lenient_pydicom", "read_object",
+           "transfer_syntax"]
 
 _ARCHIVE_SUFFIXES = (".zip", ".tar", ".tar.gz", ".tgz")
 
@@ -277,6 +277,11 @@ _SR_CLASS_PREFIX = "1.2.840.10008.5.1.4.1.1.88."
 _CONTENT_SEQUENCE = 0x0040A730
 
 
+def _last_tag(ds: Dataset) -> int:
+    """The highest top-level tag present (where a file cut at an element boundary stops)."""
+    return max((int(tag) for tag in ds.keys()), default=0)
+
+
 def _check_sr_content(ds: Dataset, path: str) -> None:
     """A structured report must end with its Content Sequence (0040,A730), type 1 in the SR
     Document Content Module (PS3.3 C.17.3); one that stops at an element boundary before it,
@@ -284,7 +289,7 @@ def _check_sr_content(ds: Dataset, path: str) -> None:
     sop_class = str(ds.get("SOPClassUID", "") or "")
     if not sop_class.startswith(_SR_CLASS_PREFIX) or _CONTENT_SEQUENCE in ds:
         return
-    last = max((int(tag) for tag in ds.keys()), default=0)
+    last = _last_tag(ds)
     if last < _CONTENT_SEQUENCE:
         raise NotDicomError(
             f"{path}: file is truncated: the structured report ends at element "
@@ -331,7 +336,7 @@ def read_object(data: bytes, path: str) -> ReadResult:
             "of its header (the attributes before the pixel data)", reason="truncated")
     if "SOPClassUID" not in ds and "SOPInstanceUID" not in ds:
         meta = getattr(ds, "file_meta", None)
-        last = max((int(tag) for tag in ds.keys()), default=0)
+        last = _last_tag(ds)
         if meta is not None and "MediaStorageSOPInstanceUID" in meta and last < 0x00080016:
             raise NotDicomError(  # the file meta names an object the data set never reaches
                 f"{path}: file is truncated: its data set ends at element "
@@ -339,18 +344,9 @@ def read_object(data: bytes, path: str) -> ReadResult:
                 "its file meta information announces", reason="truncated")
         raise NotDicomError(f"{path}: no SOP Class/Instance UID: not a DICOM object",
                             reason="not_dicom")
-    transfer_syntax(ds, path)
+    ts = transfer_syntax(ds, path)
     _check_sr_content(ds, path)
     pixel_note = None
-    ts = transfer_syntax(ds)
     if stream.tell() < stream.size and not (ts is not None and ts.is_deflated):
         pixel_note = _check_pixel_data(stream, ds, path)
     return ReadResult(ds, pixel_note)
-
-
-def read_dataset(data: bytes, path: str) -> Dataset:
-    """The data set of `data` (see read_object); raises if the pixel data is cut short too."""
-    result = read_object(data, path)
-    if result.pixel_data_truncated:
-        raise NotDicomError(result.pixel_data_truncated, reason="truncated")
-    return result.dataset
