@@ -12,6 +12,8 @@ os.environ["PREFECT_HOME"] = tempfile.mkdtemp(prefix="kerma-test-prefect-")
 os.environ.pop("PREFECT_API_URL", None)
 os.environ["PREFECT_LOGGING_LEVEL"] = "WARNING"
 os.environ["PREFECT_SERVER_ANALYTICS_ENABLED"] = "false"   # no telemetry calls from tests
+# Prefect's local server gets 20 s to start by default: too little on a loaded 2-core machine.
+os.environ.setdefault("PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS", "120")
 
 import pandas as pd  # noqa: E402
 import pydicom.config  # noqa: E402

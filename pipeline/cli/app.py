@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import os
 from typing import NoReturn
 
 import typer
@@ -10,6 +11,10 @@ from rich.console import Console
 from rich.table import Table
 
 __all__ = ["app", "console", "fail", "parse_day", "rows_table"]
+
+# Prefect's local server gets 20 s to start by default; on a busy shared machine (a test run
+# beside other work) that is not always enough, and a run would fail before doing anything.
+os.environ.setdefault("PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS", "120")
 
 app = typer.Typer(
     name="kerma",
