@@ -21,6 +21,8 @@ def sql_command(
     query: str = typer.Argument(None, help="One SELECT; $name marks a parameter. Without it: "
                                            "an interactive prompt with history."),
     warehouse: Path = typer.Option(..., "--warehouse", help="DuckDB warehouse file (opened read-only)."),
+    file: Path = typer.Option(None, "--file", help="Read the query from this .sql file "
+                                                   "(e.g. queries/examples/*.sql)."),
     param: list[str] = typer.Option([], "--param", help="NAME=VALUE bound to $NAME (repeatable); "
                                                          "never formatted into the SQL."),
     fmt: str = typer.Option("table", "--format", help="table, csv, json or parquet (parquet needs --out)."),
@@ -41,6 +43,13 @@ def sql_command(
         params = parse_params(param)
     except QueryError as exc:
         fail(str(exc))
+    if file is not None:
+        if query is not None:
+            fail("give the query either as an argument or with --file, not both")
+        try:
+            query = file.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            fail(f"cannot read --file {file}: {getattr(exc, 'strerror', None) or exc}")
     if query is None:
         if out is not None:
             fail("the interactive prompt prints its results: --out needs a query")
