@@ -119,7 +119,7 @@ def check_query(con: duckdb.DuckDBPyConnection, text: str) -> set[str]:
 
 
 def run_query(con: duckdb.DuckDBPyConnection, text: str,
-              params: dict[str, str] | None = None) -> pa.Table:
+              params: dict[str, str] | None = None, *, max_rows: int | None = None) -> pa.Table:
     """Run one SELECT on a `read_only` connection with `params` bound; the rows as Arrow.
 
     Parameters
@@ -130,6 +130,8 @@ def run_query(con: duckdb.DuckDBPyConnection, text: str,
         One SELECT; ``$name`` marks a parameter.
     params : dict of str to str, optional
         Every ``$name`` the query uses, and no other.
+    max_rows : int, optional
+        Fetch at most this many rows (the rest is never materialised).
 
     Returns
     -------
@@ -150,7 +152,10 @@ def run_query(con: duckdb.DuckDBPyConnection, text: str,
         raise QueryError("--param " + ", ".join(unused) + " not used by the query (it uses "
                          + (", ".join(f"${n}" for n in sorted(names)) or "no parameters") + ")")
     try:
-        return con.sql(text, params=params or None).to_arrow_table()
+        relation = con.sql(text, params=params or None)
+        if max_rows is not None:
+            relation = relation.limit(max_rows)
+        return relation.to_arrow_table()
     except duckdb.Error as exc:
         message = _first_line(exc)
         if "read-only" in message:

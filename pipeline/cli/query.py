@@ -55,13 +55,14 @@ def sql_command(
             fail("the interactive prompt prints its results: --out needs a query")
         _prompt(warehouse, params, fmt, limit)
         return
-    table = _ask(warehouse, query, params)
+    table = _ask(warehouse, query, params, max_rows=limit + 1 if fmt == "table" else None)
     if table is None:
         raise typer.Exit(code=2)
     _emit(table, fmt, out, limit)
 
 
-def _ask(warehouse: Path, text: str, params: dict[str, str], *, only_used: bool = False):
+def _ask(warehouse: Path, text: str, params: dict[str, str], *, only_used: bool = False,
+         max_rows: int | None = None):
     """The rows of one query, or None after printing the one-line error."""
     from ..adhoc import check_query, read_only, run_query
     from ..errors import QueryError, WarehouseError
@@ -71,7 +72,7 @@ def _ask(warehouse: Path, text: str, params: dict[str, str], *, only_used: bool 
             if only_used:
                 names = check_query(con, text)
                 params = {k: v for k, v in params.items() if k in names}
-            return run_query(con, text, params)
+            return run_query(con, text, params, max_rows=max_rows)
     except (QueryError, WarehouseError) as exc:
         console.print(f"[red]error:[/red] {escape(str(exc))}", soft_wrap=True, highlight=False)
         return None
@@ -84,8 +85,7 @@ def _emit(table, fmt: str, out: Path | None, limit: int) -> None:
     if fmt == "table":
         console.print(_rich_table(table, limit))
         if table.num_rows > limit:
-            console.print(f"(first {limit} of {table.num_rows} rows shown; --limit N for more, "
-                          "--format csv for all)")
+            console.print(f"(first {limit} rows shown; --limit N for more, --format csv for all)")
         return
     if fmt == "parquet":
         try:
@@ -156,7 +156,8 @@ def _prompt(warehouse: Path, params: dict[str, str], fmt: str, limit: int) -> No
             text, lines = "\n".join(lines), []
             if readline is not None:
                 readline.add_history(text.replace("\n", " "))
-            table = _ask(warehouse, text, params, only_used=True)
+            table = _ask(warehouse, text, params, only_used=True,
+                         max_rows=limit + 1 if fmt == "table" else None)
             if table is not None:
                 _emit(table, fmt, None, limit)
     finally:

@@ -206,7 +206,22 @@ def test_json_and_parquet_round_trip(db, tmp_path):
 def test_table_format_limits_rows(db):
     result = _sql("--warehouse", str(db), "--limit", "2", "select study_key from study_dose")
     assert result.exit_code == 0
-    assert "(first 2 of" in result.output
+    assert "(first 2 rows shown; --limit N for more" in result.output
+    with read_only(db) as con:
+        assert run_query(con, "select * from irradiation_event", max_rows=3).num_rows == 3
+
+
+@pytest.mark.parametrize("statement", [
+    "select * from checkpoint()",
+    "select * from query('delete from reference_level')",
+    "select * from read_text('{tmp}/../kerma.duckdb')",
+])
+def test_selects_that_reach_for_a_write_change_nothing(db, tmp_path, statement):
+    before = _sha256(db)
+    _sql("--warehouse", str(db), statement.format(tmp=tmp_path))
+    assert _sha256(db) == before and list(tmp_path.iterdir()) == []
+    with read_only(db) as con:
+        assert con.execute("select count(*) from reference_level").fetchall()[0][0] > 0
 
 
 def test_history_path_follows_xdg():
