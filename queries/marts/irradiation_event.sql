@@ -59,7 +59,7 @@ from stg_projection_event
 --   sop_instance_uid: SOP Instance UID (0008,0018) of the DICOM object
 --   event_type: CT Acquisition Type (spiral, sequenced, stationary, constant_angle ...) or
 --     projection Irradiation Event Type (stationary, fluoroscopy, rotational ...)
---   acquisition_plane: Acquisition Plane of a projection event: single_plane, plane_a or plane_b
+--   acquisition_plane: Acquisition Plane of a projection event: single, A or B (biplane), other
 --   started_at: DateTime Started of the event (local time of the device)
 --   acquisition_protocol: Acquisition Protocol text as sent
 --   target_region: Target Region (anatomy) meaning as sent
@@ -78,7 +78,7 @@ from stg_projection_event
 --   compressed_breast_thickness_mm: compressed breast thickness of a mammographic view
 --   irradiation_duration_s: irradiation duration of a projection event (fluoroscopy time of a
 --     fluoroscopy event)
---   laterality: laterality of a mammographic view: L, R or B
+--   laterality: laterality of a mammographic view: L or R
 --   nominal_total_collimation_mm: CT nominal total collimation width
 --   ssde_mgy: size-specific dose estimate as reported by the device
 --   water_equivalent_diameter_mm: water-equivalent diameter as reported by the device (AAPM Report

@@ -28,8 +28,8 @@ select * from renamed
 --   parent_run_id: run id of the parent flow (subflows of the monthly run)
 --   flow: ingest, audit, publish or monthly
 --   period: YYYY-MM or first..last day; NULL for an ingest alone
---   started_at: start (UTC)
---   finished_at: end (UTC); NULL while running
+--   started_at: start (local time of the machine that ran it)
+--   finished_at: end (local time); NULL while running
 --   state: RUNNING, COMPLETED or FAILED
 --   n_files_loaded: files loaded by the run's ingest
 --   n_files_quarantined: files quarantined by the run's ingest

@@ -14,4 +14,4 @@ from raw_source_object
 --   run_id: ingest run that recorded the row (raw_run.run_id)
 --   detail: the full message of the reason
 --   size_bytes: file size
---   recorded_at: when the ingest recorded the file (UTC)
+--   recorded_at: when the ingest recorded the file (local time of the ingest machine)
