@@ -39,6 +39,8 @@ def sql_command(
         fail("--format parquet writes a file: give --out FILE.parquet")
     if fmt == "table" and out is not None:
         fail("--out writes csv, json or parquet: add --format csv, json or parquet")
+    if out is not None and out.resolve() in {warehouse.resolve(), Path(f"{warehouse}.wal").resolve()}:
+        fail(f"--out {out} is the warehouse itself: choose another file (nothing was written)")
     try:
         params = parse_params(param)
     except QueryError as exc:

@@ -199,6 +199,10 @@ def test_json_and_parquet_round_trip(db, tmp_path):
     assert pq.read_table(out).to_pylist() == expected
     result = _sql("--warehouse", str(db), "--format", "parquet", text)
     assert result.exit_code == 2 and "--out" in result.output
+    before = _sha256(db)
+    result = _sql("--warehouse", str(db), "--format", "csv", "--out", str(db), text)
+    assert result.exit_code == 2 and "is the warehouse itself" in result.output
+    assert _sha256(db) == before
     result = _sql("--warehouse", str(db), "--format", "xml", text)
     assert result.exit_code == 2 and "--format must be one of table, csv, json, parquet" in result.output
 
@@ -255,3 +259,18 @@ def test_interactive_prompt_runs_statements_and_keeps_history(db, tmp_path):
     history = (tmp_path / "state" / "kerma" / "sql_history").read_text(encoding="utf-8")
     assert "select count(*) as n_devices   from device;" in history
     assert "delete from reference_level;" in history
+
+
+def test_interactive_prompt_ends_at_end_of_input_and_keeps_earlier_history(db, tmp_path):
+    kerma = Path(sys.executable).parent / "kerma"
+    history = tmp_path / "history"
+    history.write_text("select 42 as earlier;\n", encoding="utf-8")
+    env = {**os.environ, "KERMA_SQL_HISTORY": str(history), "COLUMNS": "120"}
+    done = subprocess.run([str(kerma), "sql", "--warehouse", str(db)],
+                          input="select 7 as seven;\nselect 8 as eight", capture_output=True,
+                          text=True, env=env, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert "│ 7 " in done.stdout and "eight" not in done.stdout
+    assert "(unfinished statement without ';' not run)" in done.stdout
+    assert history.read_text(encoding="utf-8").splitlines() == ["select 42 as earlier;",
+                                                                 "select 7 as seven;"]
