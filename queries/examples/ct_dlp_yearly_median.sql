@@ -1,5 +1,5 @@
--- question: yearly median CT DLP per device and exam type (adults)
 -- grain: one row per year x device x exam type, adult CT studies with a DLP
+-- question: yearly median CT DLP per device and exam type (adults)
 -- columns: year, site, device_key, exam_type, n_studies, median_dlp_mgy_cm, p25_dlp_mgy_cm,
 --   p75_dlp_mgy_cm, n_dlp_estimated
 -- parameters: adult_min_age=16

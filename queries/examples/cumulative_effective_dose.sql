@@ -1,5 +1,5 @@
--- question: cumulative CT effective-dose estimates per pseudonymous patient
 -- grain: one row per pseudonymous patient with at least one CT effective-dose estimate
+-- question: cumulative CT effective-dose estimates per pseudonymous patient
 -- columns: patient_key, n_ct_studies, first_study_date, last_study_date,
 --   cumulative_effective_dose_msv, largest_study_effective_dose_msv, effective_dose_basis
 -- parameters: none

@@ -1,6 +1,6 @@
--- question: fluoroscopy time per interventional and fluoroscopic procedure, by quarter
 -- grain: one row per calendar quarter x modality x exam type, XA and RF studies with a
 --   fluoroscopy time
+-- question: fluoroscopy time per interventional and fluoroscopic procedure, by quarter
 -- columns: quarter, modality, exam_type, n_studies, median_fluoro_time_s, p75_fluoro_time_s,
 --   max_fluoro_time_s, median_dap_gy_cm2
 -- parameters: none

@@ -1,6 +1,6 @@
--- question: what share of paediatric exams lies above the paediatric reference level?
 -- grain: one row per exam type x quantity x paediatric band (age or weight band of the
 --   reference; 'no reference' when the warehouse holds none for the exam)
+-- question: what share of paediatric exams lies above the paediatric reference level?
 -- columns: exam_type, quantity, unit, band, n_exams, n_with_reference, n_above_reference,
 --   share_above_reference, reference_sets
 -- parameters: adult_min_age=16

@@ -1,5 +1,5 @@
--- question: does the tube voltage (kVp) of radiographs drift, per device and exam type?
 -- grain: one row per calendar month x device x exam type, DX and CR radiographs with a kVp
+-- question: does the tube voltage (kVp) of radiographs drift, per device and exam type?
 -- columns: month, site, device_key, modality, exam_type, n_exposures, median_kvp,
 --   first_month_median_kvp, kvp_change_from_first_month
 -- parameters: none

@@ -59,6 +59,7 @@ def test_the_five_questions_of_the_issue_are_there():
         fields = header(path)
         assert {"question", "grain", "columns", "parameters", "note", "run"} <= fields.keys(), path
         assert f"--file queries/examples/{path.name}" in fields["run"]
+        assert path.read_text(encoding="utf-8").startswith("-- grain: ")   # STYLE A.9
 
 
 @pytest.mark.parametrize("path", EXAMPLES, ids=lambda p: p.stem)
