@@ -171,7 +171,7 @@ order by c.exam_type, c.quantity, c.site, c.device_key, c.population, c.stratum
 --   device_key: the room (irradiating device)
 --   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
 --   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or psd
+--     effective_dose or peak_skin_dose
 --   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
 --     mGy.cm, Gy.cm2, s, mSv
 --   population: adult, paediatric, unknown_age (no age: never pooled with adults) or all

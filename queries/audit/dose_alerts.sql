@@ -148,7 +148,7 @@ order by study_date, rule, study_key
 --     device_dose_check, robust_outlier, cumulative_effective_dose, peak_skin_dose
 --   action: patient_follow_up, protocol_review or statistical_review
 --   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or psd
+--     effective_dose or peak_skin_dose
 --   value: the value that fired the rule [unit column]
 --   threshold: the rule's threshold [unit column]
 --   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,

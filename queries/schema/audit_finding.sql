@@ -34,7 +34,7 @@ create table if not exists audit_finding (
 --   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
 --   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
 --   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or psd
+--     effective_dose or peak_skin_dose
 --   value: the finding's value [unit column]
 --   threshold: its threshold or reference value [unit column]
 --   unit: unit of value and threshold
