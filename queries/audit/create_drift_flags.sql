@@ -7,8 +7,8 @@ create or replace table drift_flags as select * from incoming_drift_flags
 --     else of the Device Observer UID; else of the equipment module
 --   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
 --   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
---   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or peak_skin_dose
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
 --   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
 --     mGy.cm, Gy.cm2, s, mSv
 --   change_month: first month after the change point (YYYY-MM)

@@ -14,8 +14,8 @@ order by device_key, exam_type, quantity, month
 --   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
 --     else of the Device Observer UID; else of the equipment module
 --   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
---   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or peak_skin_dose
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
 --   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
 --     mGy.cm, Gy.cm2, s, mSv
 --   phantom: CTDIvol phantom of the group (head_16cm, body_32cm, mixed); NULL for other quantities

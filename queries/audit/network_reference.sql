@@ -31,8 +31,8 @@ order by exam_type, quantity, population, stratum
 -- columns:
 --   period: the audited period: YYYY-MM, or first..last day
 --   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
---   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
---     effective_dose or peak_skin_dose
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
 --   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
 --     mGy.cm, Gy.cm2, s, mSv
 --   population: adult, paediatric, unknown_age (no age: never pooled with adults) or all
