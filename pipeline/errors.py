@@ -11,6 +11,7 @@
     ├── ConfigError             -> stop with a one-line message (e.g. no pseudonymisation key)
     │   └── KeyMismatchError    (the key differs from the warehouse's key epoch; nothing loaded)
     ├── WarehouseError          -> stop with a one-line message (cannot open, busy)
+    ├── QueryError              -> `kerma sql` refused or could not run the query; one line
     └── ArchiveError            -> stop; transient: a flow may retry (archive down, refused)
 """
 
@@ -25,6 +26,7 @@ __all__ = [
     "MalformedReportError",
     "NotADoseObjectError",
     "NotDicomError",
+    "QueryError",
     "UnsafeArchiveMemberError",
     "UnsupportedTransferSyntaxError",
     "WarehouseError",
@@ -83,6 +85,10 @@ class KeyMismatchError(ConfigError):
 
 class WarehouseError(DoseAuditError):
     """The warehouse cannot be opened or is busy; the command stops."""
+
+
+class QueryError(DoseAuditError):
+    """An ad hoc query was refused (not one SELECT, a write) or failed; nothing was changed."""
 
 
 class ArchiveError(DoseAuditError):

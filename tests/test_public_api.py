@@ -23,7 +23,8 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.net.completeness", "pipeline.skin_dose", "pipeline.notes", "pipeline.cli.note",
            "pipeline.cli.report", "pipeline.report", "pipeline.report.content",
            "pipeline.report.words", "pipeline.report.render", "pipeline.report.read",
-           "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey"]
+           "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey",
+           "pipeline.adhoc", "pipeline.dictionary", "pipeline.cli.schema"]
 
 
 @pytest.mark.parametrize("name", MODULES)
@@ -57,3 +58,12 @@ def test_issue_16_exports():
     assert "key_fingerprint" in pseudonym.__all__ and "KeyMismatchError" in errors.__all__
     assert issubclass(errors.KeyMismatchError, errors.ConfigError)   # stops with exit 2
     assert {"NO_DATA", "print_data_checks"} <= set(audit.__all__)
+
+
+def test_issue_13_researcher_exports():
+    from pipeline import adhoc, dictionary, errors
+
+    assert {"read_only", "run_query", "check_query", "parse_params"} <= set(adhoc.__all__)
+    assert {"PUBLIC_RELATIONS", "build_dictionary", "check_dictionary", "render_markdown",
+            "fresh_public_columns"} <= set(dictionary.__all__)
+    assert "QueryError" in errors.__all__ and issubclass(errors.QueryError, errors.DoseAuditError)

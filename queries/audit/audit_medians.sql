@@ -164,3 +164,51 @@ select
 from noted as c
 left join min_sample_rule as m on m.modality = c.modality
 order by c.exam_type, c.quantity, c.site, c.device_key, c.population, c.stratum
+
+-- columns:
+--   period: the audited period: YYYY-MM, or first..last day
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   device_key: the room (irradiating device)
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
+--   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
+--     mGy.cm, Gy.cm2, s, mSv
+--   population: adult, paediatric, unknown_age (no age: never pooled with adults) or all
+--     (mammography)
+--   stratum: paediatric age or weight band, or mammography compressed-breast-thickness band; NULL
+--     for adults
+--   phantom: CTDIvol phantom of the group (head_16cm, body_32cm, mixed); NULL for other quantities
+--   n: audited values in the group
+--   median: median of the group's values (linear interpolation, Hyndman & Fan type 7) [unit column]
+--   p25: 25th percentile [unit column]
+--   p75: 75th percentile [unit column]
+--   median_ci_low: lower end of the distribution-free 95 % interval of the median (binomial order
+--     statistics) [unit column]
+--   median_ci_high: upper end of that interval [unit column]
+--   n_standard_size: values from standard-size patients (weight within the audit's standard range,
+--     50-90 kg by default)
+--   median_standard_size: median over the standard-size patients [unit column]
+--   n_with_weight: values whose patient weight is known
+--   n_patients: distinct pseudonymous patients in the group
+--   min_sample: minimum sample size of the modality for a room median (ICRP 135)
+--   reference_set: reference-level set compared with (NULL: not comparable)
+--   reference_value: the reference value compared with, in the audit unit [unit column]
+--   ratio_to_reference: median / reference_value
+--   ratio_standard_size_to_reference: median_standard_size / reference_value
+--   is_above_reference: the median exceeds the reference value (an investigation level, not a limit)
+--   is_well_below_reference: the median is below the audit's low fraction of the reference value
+--   is_sample_adequate: n reaches min_sample
+--   reference_citation: title of the reference's source
+--   reference_body: issuing body of the reference
+--   reference_country: country of the issuing body
+--   reference_indication: clinical indication the reference is defined for
+--   n_indication_matched: values the indication rules mark with that indication
+--   reference_population: population of the reference value
+--   reference_scope_note: what else the reader must know about the comparison (indication, fallback,
+--     phantom, why not compared)
+--   is_fallback_reference: the reference is a fallback set, not of the audit's jurisdiction
+--   change_month: month a drift flag found inside the period (YYYY-MM), else NULL
+--   median_after_change: median of the values from change_month on [unit column]
+--   item_id: stable finding id: the same finding next period has the same id (notes attach to it:
+--     kerma note)

@@ -1,2 +1,26 @@
 -- grain: one row per device x exam type x quantity whose monthly series shows a change point
 create or replace table drift_flags as select * from incoming_drift_flags
+
+-- columns:
+--   period: the audited period: YYYY-MM, or first..last day
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
+--   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
+--     mGy.cm, Gy.cm2, s, mSv
+--   change_month: first month after the change point (YYYY-MM)
+--   median_before: median before the change [unit column]
+--   median_after: median from change_month on [unit column]
+--   ratio_after_to_before: median_after / median_before
+--   n_before: values before the change
+--   n_after: values after the change
+--   statistic_z: Mann-Whitney z statistic at the change point
+--   p_value: two-sided p-value of the Mann-Whitney test (scipy.stats.mannwhitneyu)
+--   p_value_bonferroni: p_value x n_candidates (Bonferroni), capped at 1
+--   n_candidates: month boundaries tested
+--   method: how the change point was found
+--   item_id: stable finding id: the same finding next period has the same id (notes attach to it:
+--     kerma note)

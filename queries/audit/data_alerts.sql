@@ -106,3 +106,16 @@ select
     'data_check' as action   -- the alert tier, as dose_alerts.action: reviewed before dose findings
 from found
 order by device_key nulls first, kind
+
+-- columns:
+--   period: the audited period: YYYY-MM, or first..last day
+--   device_key: the device whose feed looks broken (NULL: the whole warehouse)
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   kind: silent, volume_drop or no_data
+--   last_study_date: date of the device's last study up to the period end
+--   expected_per_week: median studies per week over the previous months [studies per week]
+--   observed_per_week: studies per week in the period [studies per week]
+--   detail: the finding in words
+--   item_id: stable finding id: the same finding next period has the same id (notes attach to it:
+--     kerma note)
+--   action: always data_check: the tier reviewed before the dose findings

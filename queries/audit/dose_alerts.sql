@@ -133,3 +133,29 @@ from (
     union all by name select * from outliers
 )
 order by study_date, rule, study_key
+
+-- columns:
+--   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)
+--   patient_key: pseudonymous patient key: keyed HMAC-SHA256 of Patient ID and its issuer; links a
+--     patient's studies within one key epoch
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   study_date: Study Date (0008,0020)
+--   rule: id of the rule that fired (pipeline/alert_rules.toml or kerma.toml)
+--   family: rule family: fluoro_substantial_dose, ct_dose_check_notification, ct_dose_check_alert,
+--     device_dose_check, robust_outlier, cumulative_effective_dose, peak_skin_dose
+--   action: patient_follow_up, protocol_review or statistical_review
+--   quantity: dose quantity: dlp, ctdivol, dap, dose_rp, fluoro_time, agd, ka_e, entrance_dose,
+--     effective_dose or peak_skin_dose
+--   value: the value that fired the rule [unit column]
+--   threshold: the rule's threshold [unit column]
+--   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
+--     mGy.cm, Gy.cm2, s, mSv
+--   source: where the threshold comes from (publication, or 'from memory')
+--   method: how the value was computed
+--   threshold_verified: the threshold was read in its primary source (false: a default recalled from
+--     memory, labelled)
+--   item_id: stable finding id: the same finding next period has the same id (notes attach to it:
+--     kerma note)

@@ -8,3 +8,19 @@ where study_date < $date_to
   and patient_age_years >= $adult_min_age  -- unknown age is not adult
 group by all
 order by device_key, exam_type, quantity, month
+
+-- columns:
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
+--   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
+--     mGy.cm, Gy.cm2, s, mSv
+--   phantom: CTDIvol phantom of the group (head_16cm, body_32cm, mixed); NULL for other quantities
+--   month: calendar month (YYYY-MM)
+--   n: audited values of adults in the month
+--   median: median [unit column]
+--   p25: 25th percentile [unit column]
+--   p75: 75th percentile [unit column]

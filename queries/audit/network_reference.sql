@@ -27,3 +27,33 @@ select
 from audit_medians
 group by period, exam_type, quantity, unit, population, stratum, phantom
 order by exam_type, quantity, population, stratum
+
+-- columns:
+--   period: the audited period: YYYY-MM, or first..last day
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   quantity: audited quantity (as in audit_observation): dlp, ctdivol, dap, dose_rp,
+--     fluoro_time, agd, ka_e or entrance_dose
+--   unit: unit of value (and of the medians and reference values of the row), UCUM-like text: mGy,
+--     mGy.cm, Gy.cm2, s, mSv
+--   population: adult, paediatric, unknown_age (no age: never pooled with adults) or all
+--     (mammography)
+--   stratum: paediatric age or weight band, or mammography compressed-breast-thickness band; NULL
+--     for adults
+--   phantom: CTDIvol phantom of the group (head_16cm, body_32cm, mixed); NULL for other quantities
+--   n_rooms: rooms with an adequate sample
+--   n_rooms_all: rooms with any data
+--   n_sites: sites of the rooms with an adequate sample
+--   n_exams: audited values over all rooms
+--   typical_value: median of the room medians (ICRP 135 typical value) [unit column]
+--   p75_of_room_medians: 75th percentile of the room medians (descriptive) [unit column]
+--   min_rooms_local_drl: rooms needed to set a local DRL
+--   is_local_drl: enough rooms for a local DRL
+--   local_drl: local diagnostic reference level: 75th percentile of the room medians, only with
+--     enough rooms [unit column]
+--   reference_set: reference-level set compared with
+--   reference_value: national reference value [unit column]
+--   reference_body: issuing body of the reference
+--   reference_country: country of the issuing body
+--   reference_indication: clinical indication the reference is defined for
+--   reference_population: population of the reference value
+--   reference_scope_note: what else the reader must know about the comparison

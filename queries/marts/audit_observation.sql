@@ -55,3 +55,24 @@ select study_key, patient_key, device_key, site, modality, event_exam_type, quan
        study_date, strftime(study_date, '%Y-%m'), patient_age_years, patient_weight_kg,
        null, event_uid, compressed_breast_thickness_mm
 from event_values where value is not null and event_exam_type is not null
+
+-- columns:
+--   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)
+--   patient_key: pseudonymous patient key: keyed HMAC-SHA256 of Patient ID and its issuer; links a
+--     patient's studies within one key epoch
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   modality: irradiating modality: CT, DX, CR, RF, XA or MG
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   quantity: audited quantity: dlp, ctdivol (CT study); dap, dose_rp, fluoro_time (RF/XA study);
+--     dap, dose_rp, entrance_dose, ka_e (DX/CR view); agd (MG view)
+--   unit: unit of value: mGy, mGy.cm, Gy.cm2 or s
+--   value: the audited value [unit column]
+--   study_date: Study Date (0008,0020)
+--   period: calendar month of the study (YYYY-MM)
+--   patient_age_years: age at the study
+--   patient_weight_kg: patient weight
+--   phantom: CTDIvol phantom (ctdivol rows only)
+--   event_uid: Irradiation Event UID of a radiograph or mammographic view; NULL for a study total
+--   compressed_breast_thickness_mm: compressed breast thickness of a mammographic view

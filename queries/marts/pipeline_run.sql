@@ -22,3 +22,17 @@ renamed as (
     from source
 )
 select * from renamed
+
+-- columns:
+--   run_id: Prefect flow run id
+--   parent_run_id: run id of the parent flow (subflows of the monthly run)
+--   flow: ingest, audit, publish or monthly
+--   period: YYYY-MM or first..last day; NULL for an ingest alone
+--   started_at: start (local time of the machine that ran it)
+--   finished_at: end (local time); NULL while running
+--   state: RUNNING, COMPLETED or FAILED
+--   n_files_loaded: files loaded by the run's ingest
+--   n_files_quarantined: files quarantined by the run's ingest
+--   reference_sets: reference sets the audit used, in order of precedence, '; '-separated
+--   ingest_run_ids: raw ingest run ids this run made, '; '-separated
+--   detail: first line of the error of a failed run; the output folder otherwise

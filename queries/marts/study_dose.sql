@@ -145,3 +145,43 @@ left join latest_report as r using (study_key, device_key)
 left join device as d using (device_key)
 left join stg_exam_match as x
   on x.unit_kind = 'study' and x.study_key = c.study_key and x.device_key = c.device_key
+
+-- columns:
+--   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)
+--   patient_key: pseudonymous patient key: keyed HMAC-SHA256 of Patient ID and its issuer; links a
+--     patient's studies within one key epoch
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   site: site of the device: from kerma.toml [sites], else the Institution Name the device reports
+--   modality: irradiating modality: CT, DX, CR, RF, XA or MG
+--   study_date: Study Date (0008,0020)
+--   study_description: Study Description (0008,1030) as sent
+--   patient_age_years: age at the study, from Patient's Age (0010,1010) or birth date and study date
+--     (the birth date is not stored)
+--   patient_sex: Patient's Sex (0010,0040): M, F or O
+--   patient_weight_kg: Patient's Weight (0010,1030)
+--   patient_height_m: Patient's Size (0010,1020)
+--   event_count: irradiation events of the study on this device (deduplicated)
+--   dap_total_gy_cm2: total dose-area product: sum over the events, else the report's stated
+--     accumulated total
+--   dose_rp_total_mgy: total Dose (RP), the reference-point air kerma Ka,r of dose reports: sum over
+--     the events, else the stated total
+--   fluoro_time_total_s: total fluoroscopy time: sum of the fluoroscopy events' durations, else the
+--     stated total
+--   dlp_total_mgy_cm: total dose-length product of a CT study; see dlp_method for its source; NULL
+--     for other modalities
+--   ctdivol_mgy: scanning-length-weighted mean CTDIvol of the spiral and sequenced acquisitions
+--     (localizers excluded)
+--   source_kind: best source of the study's events: rdsr (dose report), dose_screen or image_header
+--   ctdivol_max_mgy: largest CTDIvol of one event
+--   ctdi_phantom: CTDIvol phantom of the acquisitions: head_16cm, body_32cm, or mixed
+--   exam_type: standard exam type the exam rules map the study to (NULL: unmapped)
+--   exam_matched_field: field whose text matched the exam rule: procedure_code,
+--     acquisition_protocol, study_description, series_description or body_part
+--   exam_matched_text: normalised text of that field that matched
+--   agd_total_mgy: sum of the average glandular dose of the study's mammographic views
+--   n_reports: dose objects (reports, screens, image headers) that contributed events
+--   entrance_dose_total_mgy: sum of the image headers' Entrance Dose: a surface dose, never pooled
+--     with Ka,r
+--   dlp_method: reported (the stated total), event_sum (sum of the events) or estimated_from_images
+--     (lower bound from image headers); NULL outside CT

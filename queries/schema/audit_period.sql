@@ -7,3 +7,11 @@ create table if not exists audit_period (
     n_findings bigint not null,
     audited_at timestamp not null
 );
+
+-- columns:
+--   period: the audited period label
+--   date_from: first day of the period
+--   date_to: last day of the period
+--   period_length: '1 month', '3 months' or 'N days'
+--   n_findings: findings recorded for the period
+--   audited_at: when the audit ran (UTC)

@@ -8,3 +8,11 @@ create table if not exists review_note (
     noted_by varchar not null,
     noted_at timestamp not null
 );
+
+-- columns:
+--   note_id: id of the note
+--   item_id: the finding the note is about
+--   status: open, explained, action or closed
+--   note_text: the reviewer's text
+--   noted_by: staff name or role (never a patient's)
+--   noted_at: when the note was written (UTC)
