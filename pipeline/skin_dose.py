@@ -283,8 +283,24 @@ def patient_rotation(orientation_modifier: str | None,
     head-first-supine patient's (x towards the table side where that patient's left lies, y
     towards the head end, z up). Prone turns the patient 180 deg about the table's long axis
     (the anterior skin faces down, towards an under-table tube); a lateral decubitus turns it
-    90 deg; feet-first turns it 180 deg about the vertical (head towards -y). Values from
-    PS3.16 CID 20 / CID 21 meanings; absent or unsupported -> supine / head-first, said so.
+    90 deg; feet-first turns it 180 deg about the vertical (head towards -y).
+
+    Parameters
+    ----------
+    orientation_modifier : str or None
+        Patient Orientation Modifier term (PS3.16 CID 20): supine, prone, left / right lateral
+        decubitus are modelled; absent or other -> supine, and the note says so.
+    table_relationship : str or None
+        Patient Table Relationship term (CID 21): headfirst or feet-first; absent or other ->
+        head-first, and the note says so.
+
+    Returns
+    -------
+    rotation : ndarray, shape (3, 3)
+        Room coordinates = rotation @ patient coordinates.
+    note : str
+        E.g. ``"prone, feet-first"`` or ``"supine, head-first (orientation not reported:
+        supine assumed; ...)"``.
     """
     notes = []
     modifier = (orientation_modifier or "").strip().lower()
