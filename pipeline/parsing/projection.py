@@ -131,6 +131,8 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
             area = _area_from_sides(node, uid, m)
         orientation = first(node, C.PATIENT_ORIENTATION, "CODE")
         modifier = first(orientation, C.PATIENT_ORIENTATION_MODIFIER) if orientation else None
+        if modifier is None:   # a modifier sent beside, not under, its Patient Orientation
+            modifier = first(node, C.PATIENT_ORIENTATION_MODIFIER, "CODE")
         events.append(ProjectionEvent(
             event_uid=uid,
             sop_instance_uid=sop_uid,

@@ -50,3 +50,24 @@ def test_dcmdump_sees_the_codes_the_parser_read(report):
                          check=True, capture_output=True, text=True).stdout
     for code in ("1240000", "102541007", "F-10340", "F-10470", "102536004", "102538003"):
         assert f"[{code}]" in out
+
+
+def test_the_synthetic_interventional_room_reports_supine_head_first_and_a_stray_modifier_is_read():
+    """The demo XA room sends the position in every event (synthetic_studies/sampling.py); a
+    modifier sent beside its Patient Orientation instead of under it is still read."""
+    from pipeline import concepts as C
+    from pipeline.parsing import parse_dose_object
+    from tests.helpers import demo_dataset, round_trip
+
+    _, ds = demo_dataset("tgh-xa1")
+    events = [i for i in ds.ContentSequence if i.ValueType == "CONTAINER"
+              and i.ConceptNameCodeSequence[0].CodeValue == C.IRRADIATION_EVENT_XRAY_DATA.value]
+    orientation = next(i for i in events[0].ContentSequence
+                       if i.ConceptNameCodeSequence[0].CodeValue == C.PATIENT_ORIENTATION.value)
+    stray = orientation.ContentSequence.pop(0)
+    stray.RelationshipType = "CONTAINS"
+    events[0].ContentSequence.append(stray)
+    parsed = parse_dose_object(round_trip(ds), pseudonymiser()).projection_events
+    assert len(parsed) == len(events) > 5
+    assert {(e.patient_orientation, e.patient_orientation_modifier, e.patient_table_relationship)
+            for e in parsed} == {("recumbent", "supine", "headfirst")}
