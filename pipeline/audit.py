@@ -3,7 +3,8 @@
 Tables written (replaced on each run, public interface): ``audit_medians``,
 ``network_reference``, ``dose_alerts``, ``drift_flags``, ``data_alerts`` (the data_check
 tier: feeds that went quiet or thin), ``skin_dose`` (peak skin dose per RF/XA study) and
-``skin_dose_map`` (its cells, for studies at a peak-skin-dose alert); plus ``monthly_medians``
+``skin_dose_map`` (its cells, for studies at a peak-skin-dose alert), ``skin_dose_factor``
+(each study's factors and their sources); plus ``monthly_medians``
 and ``study_estimate`` (SSDE and effective dose) for the dashboards. Every finding carries a
 stable ``item_id`` (the same finding next period has the same id), and each run records its
 period's findings in ``audit_finding`` (kept across runs: new / persisting / resolved).
@@ -275,6 +276,10 @@ _SKIN_DOSE_SCHEMA = pa.schema(
      ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
      ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
      ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
+_SKIN_FACTOR_SCHEMA = pa.schema(
+    [("study_key", pa.string()), ("device_key", pa.string()), ("factor", pa.string()),
+     ("n_events", pa.int64()), ("value_min", pa.float64()), ("value_max", pa.float64()),
+     ("source", pa.string())])
 _SKIN_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
                               ("around_mm", pa.float64()), ("along_mm", pa.float64()),
                               ("dose_mgy", pa.float64())])
@@ -389,12 +394,23 @@ def study_estimates(rows, settings: AuditSettings) -> list[dict]:
     return out
 
 
-def skin_dose_rows(rows, map_threshold_mgy: float | None = None) -> tuple[list[dict], list[dict]]:
+def _added_cu_mm(material: str | None, thickness_mm: float | None) -> float | None:
+    """Copper filtration of an event from its (first) X-Ray Filters item: copper -> its
+    thickness, aluminium only -> 0; otherwise unknown."""
+    name = (material or "").strip().lower()
+    if name in ("copper", "cu") and thickness_mm is not None:
+        return float(thickness_mm)
+    return 0.0 if name in ("aluminum", "aluminium", "al") else None
+
+
+def skin_dose_rows(rows, map_threshold_mgy: float | None = None,
+                   factors: list[dict] | None = None) -> tuple[list[dict], list[dict]]:
     """Per RF/XA study x device: the peak skin dose estimate (pipeline/skin_dose.py).
 
     `rows` are mappings, one per event, in study order (queries/audit/select_skin_dose_events.sql);
     missing values are None. Returns (one row per study, the non-zero cells of the skin-dose map
-    of each study whose PSD reaches `map_threshold_mgy`; none when it is None).
+    of each study whose PSD reaches `map_threshold_mgy`; none when it is None). When `factors`
+    is a list, one row per study x factor (range over the events and source) is appended to it.
     """
     from itertools import groupby
 
@@ -415,7 +431,10 @@ def skin_dose_rows(rows, map_threshold_mgy: float | None = None) -> tuple[list[d
                             if r["collimated_field_area_m2"] is not None else None),
             table_longitudinal_mm=r["table_longitudinal_mm"], table_lateral_mm=r["table_lateral_mm"],
             table_height_mm=r["table_height_mm"],
-            reference_point_definition=r["reference_point_definition"]) for r in group]
+            reference_point_definition=r["reference_point_definition"],
+            added_cu_mm=_added_cu_mm(r.get("filter_material"), r.get("filter_thickness_mm")),
+            patient_orientation_modifier=r.get("patient_orientation_modifier"),
+            patient_table_relationship=r.get("patient_table_relationship")) for r in group]
         result = compute_skin_dose(events, height_m=first["patient_height_m"],
                                    weight_kg=first["patient_weight_kg"])
         out.append({**{k: first[k] for k in ("study_key", "patient_key", "device_key", "site",
@@ -429,6 +448,9 @@ def skin_dose_rows(rows, map_threshold_mgy: float | None = None) -> tuple[list[d
                     "phantom": result.phantom.basis,
                     "factor_sources": "; ".join(f"{k}: {v}" for k, v in result.factors.items()),
                     "uncertainty_note": UNCERTAINTY_NOTE})
+        if factors is not None:
+            factors += [{"study_key": first["study_key"], "device_key": first["device_key"], **f}
+                        for f in result.factor_rows()]
         if map_threshold_mgy is not None and result.psd_mgy >= map_threshold_mgy:
             i, j = result.dose_map_mgy.nonzero()
             cells += [{"study_key": first["study_key"], "device_key": first["device_key"],
@@ -531,11 +553,14 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
         psd_thresholds = [r["threshold"] for r in rules if r["family"] == "peak_skin_dose"]
+        skin_factors: list[dict] = []
         skin, cells = skin_dose_rows(_records(con.execute(
             sql("select_skin_dose_events"), {"date_from": first, "date_to": after})),
-            min(psd_thresholds) if psd_thresholds else None)
+            min(psd_thresholds) if psd_thresholds else None, skin_factors)
         _register_temp(con, "skin_dose", pa.Table.from_pylist(skin, schema=_SKIN_DOSE_SCHEMA))
         _register_temp(con, "skin_dose_map", pa.Table.from_pylist(cells, schema=_SKIN_MAP_SCHEMA))
+        _register_temp(con, "skin_dose_factor",
+                       pa.Table.from_pylist(skin_factors, schema=_SKIN_FACTOR_SCHEMA))
         con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
         con.execute(sql("monthly_medians"), adult)

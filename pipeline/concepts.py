@@ -184,6 +184,19 @@ EXPOSURE_INDEX = _dcm("113845", "Exposure Index")
 TARGET_EXPOSURE_INDEX = _dcm("113846", "Target Exposure Index")
 DEVIATION_INDEX = _dcm("113847", "Deviation Index")
 
+# --- patient position per irradiation event (TID 10003; CID 19, CID 20, CID 21) ----------
+PATIENT_TABLE_RELATIONSHIP = _dcm("113745", "Patient Table Relationship")
+PATIENT_ORIENTATION = _dcm("113743", "Patient Orientation")
+PATIENT_ORIENTATION_MODIFIER = _dcm("113744", "Patient Orientation Modifier")
+RECUMBENT = _sct("102538003", "recumbent")                      # CID 19
+SEMI_ERECT = _sct("102539006", "semi-erect")
+SUPINE = _sct("40199007", "supine")                             # CID 20
+PRONE = _sct("1240000", "prone")
+LEFT_LATERAL_DECUBITUS = _sct("102536004", "left lateral decubitus")
+RIGHT_LATERAL_DECUBITUS = _sct("102535000", "right lateral decubitus")
+HEADFIRST = _sct("102540008", "headfirst")                      # CID 21
+FEET_FIRST = _sct("102541007", "feet-first")
+
 # --- materials (CID 10006 / CID 10016) and anatomy (CID 4030 / CID 4031) ------------------
 ALUMINUM = _sct("12503006", "Aluminum")
 COPPER = _sct("66925006", "Copper")

@@ -182,6 +182,9 @@ class ProjectionEvent:
     table_height_mm: float | None = None
     distance_source_to_rp_mm: float | None = None  # Distance Source to Reference Point (113737)
     reference_point_definition: str | None = None  # per event (TID 10003B), CID 10025 meaning or text
+    patient_orientation: str | None = None       # TID 10003 (113743), CID 19: recumbent | erect | ...
+    patient_orientation_modifier: str | None = None  # (113744), CID 20: supine | prone | ...
+    patient_table_relationship: str | None = None    # (113745), CID 21: headfirst | feet-first | ...
     filter_material: str | None = None
     filter_thickness_mm: float | None = None
     agd_mgy: float | None = None

@@ -2,18 +2,22 @@
 
 Method (after Jones AK, Pasciak AS. Calculating the peak skin dose resulting from
 fluoroscopically guided interventions. Part I: Methods. J Appl Clin Med Phys 2011;12(4):3670):
-the patient is an elliptical cylinder lying supine on the table, head towards +y; each event's
+the patient is an elliptical cylinder lying on the table (supine head-first unless the event
+reports Patient Orientation Modifier / Patient Table Relationship, PS3.16 CID 20 / CID 21:
+prone, lateral decubitus and feet-first turn the phantom, see `patient_rotation`); each event's
 beam is projected from its source position (positioner angles and Distance Source to
 Isocenter, PS3.16 TID 10003C) onto the cells of the phantom's surface that face the source,
 and each cell inside the collimated field receives
 
-    D = Ka,r x (d_RP / d_cell)^2 x BSF(kVp, field side) x f_tissue/air x T_table (if through it)
+    D = Ka,r x (d_RP / d_cell)^2 x BSF(kVp, Cu, field side) x f_tissue/air x T_table (if through it)
 
 where Ka,r is the event's Dose (RP) and d_RP the source-to-reference-point distance (IEC
 60601-2-43 interventional reference point, 15 cm from the isocentre towards the source, unless
 the report defines another). Cell doses add over events; the PSD is the largest cell.
 
-Room frame (mm): origin at the isocentre, x towards the patient's left, y towards the head, z up.
+Room frame (mm): origin at the isocentre, x towards the left of a head-first supine patient, y
+towards the head end of the table, z up. The skin-dose map is unrolled in the patient's own
+frame (front midline via the patient's right; along towards the head) whatever the position.
 PS3.3 C.8.7.5 angles give the detector direction d = (sin a cos b, sin b, cos a cos b) (a: +LAO,
 b: +cranial); the source sits at -SOD x d. Table Height Position is device-specific in DICOM:
 this module takes it as the table-top height relative to the isocentre (positive up), plus a
@@ -30,41 +34,91 @@ typically uncertain by about +-40 % (Jones & Pasciak 2011, from memory) and depe
 
 from __future__ import annotations
 
+import csv
 import math
 from dataclasses import dataclass, field
+from functools import cache
 
 import numpy as np
 
-__all__ = ["BSF_FIELD_SIDES_CM", "BSF_KVP", "BSF_TABLE", "F_TISSUE_AIR", "REFERENCE_ADULT",
-           "SkinDoseEvent", "SkinDoseResult", "SkinDoseSettings", "Phantom", "backscatter_factor",
-           "beam_direction", "compute_skin_dose", "phantom_for", "UNCERTAINTY_NOTE"]
+__all__ = ["BSF_SOURCE", "F_SOURCE", "F_TISSUE_AIR", "REFERENCE_ADULT", "SkinDoseEvent",
+           "SkinDoseResult", "SkinDoseSettings", "Phantom", "backscatter_factor",
+           "backscatter_table", "beam_direction", "compute_skin_dose", "patient_rotation",
+           "phantom_for", "UNCERTAINTY_NOTE"]
 
-# Backscatter factor (ratio of air kerma at the surface with and without the patient) for ICRU
-# tissue, by tube voltage (interventional beam, about 0.1-0.3 mm Cu added filtration) and by
-# side of a square field at the skin. Values from memory, rounded to two decimals, of the shape
-# of the tables Jones & Pasciak 2011 (Part I) draw on (Petoussi-Henss N et al., Phys Med Biol
-# 1998;43:2237-2250, ICRU tissue): BSF rises with field size and beam quality, 1.2-1.6
-# (ICRP Publication 117 gives that range). Not read in the publication: marked from memory.
-BSF_KVP = (60.0, 80.0, 100.0, 120.0)
-BSF_FIELD_SIDES_CM = (10.0, 20.0, 30.0)
-BSF_TABLE = ((1.28, 1.33, 1.34),
-             (1.34, 1.41, 1.43),
-             (1.37, 1.46, 1.48),
-             (1.38, 1.48, 1.50))
-BSF_SOURCE = ("backscatter factor, ICRU tissue, by kVp and field side at the skin: values from "
-              "memory of Petoussi-Henss et al. 1998 as used by Jones & Pasciak 2011 Part I; "
-              "bilinear interpolation, clamped at the table edges")
-# Ratio of mass energy-absorption coefficients, soft tissue to air, over the effective energies
-# of interventional beams (about 40-60 keV): 1.06 (from memory of Hubbell & Seltzer, NISTIR
-# 5632 tables; Jones & Pasciak 2011 use a value of this size).
+# Backscatter factor B (air kerma at the surface of an ICRU-tissue phantom with the phantom
+# over that without it), by tube voltage, added copper filtration (3.1 mm Al inherent) and side
+# of the square field at the skin: Benmakhlouf H, Bouchard H, Fransson A, Andreo P.
+# Backscatter factors and mass energy-absorption coefficient ratios for diagnostic radiology
+# dosimetry. Phys Med Biol 2011;56:7179-7204 (Monte Carlo; the 60-120 kV, 0-0.9 mm Cu rows of
+# its ICRU-tissue table). The numbers were read, through the search tool, from the tabulation
+# distributed with the PySkinDose research code (rvbCMTS/PySkinDose,
+# src/pyskindose/table_data/correction_medium_and_backscatter.csv at commit 3cb23ea, whose
+# loader credits Benmakhlouf et al.), not from the paper itself: check against the paper before
+# clinical use. queries/seeds/skin_backscatter.csv holds them; queries/seeds/skin_dose_factors.md
+# says what was read where. Looked up with scipy's RegularGridInterpolator (linear), clamped at
+# the table's edges; an unknown copper filtration takes the largest B over the tabulated
+# filtrations (an upper bound, said so in the result).
+BSF_SOURCE = ("backscatter factor B(kVp, added Cu, field side at the skin), ICRU tissue: "
+              "Benmakhlouf et al. 2011, Phys Med Biol 56:7179 (60-120 kV, 0-0.9 mm Cu, field "
+              "sides 5-35 cm), as tabulated in the PySkinDose repository (not read in the paper); "
+              "linear interpolation, clamped at the table edges; unknown Cu -> largest B over Cu")
+# Ratio of mass energy-absorption coefficients, ICRU-44 soft tissue to dry air: 1.06. NIST
+# (Hubbell & Seltzer, NIST Standard Reference Database 126, Table 4) gives 1.0514 at 30 keV,
+# 1.0561 at 40 keV, 1.0639 at 50 keV, 1.0733 at 60 keV, 1.0872 at 80 keV (ratios of the
+# tabulated mu_en/rho, read through the search tool from a copy of the NIST tables in the
+# kingtaurus/CTSim repository, physicsdata/materials); 1.06 is the ratio near 45 keV, the
+# effective energy of copper-filtered interventional beams (that energy range: from memory).
 F_TISSUE_AIR = 1.06
-F_SOURCE = ("(mu_en/rho) tissue/air = 1.06 (from memory: Hubbell & Seltzer NISTIR 5632, "
-            "40-60 keV; Jones & Pasciak 2011 Part I)")
+F_SOURCE = ("(mu_en/rho) soft tissue/air = 1.06: NIST SRD 126 (Hubbell & Seltzer), ICRU-44 soft "
+            "tissue over dry air, 1.056 at 40 keV to 1.073 at 60 keV; effective energy of "
+            "interventional beams about 45 keV (from memory)")
 # ICRP Publication 89 reference adult male, 1.76 m and 73 kg (from memory).
 REFERENCE_ADULT = (1.76, 73.0)
 UNCERTAINTY_NOTE = ("an estimate: typically within about +-40 % (Jones & Pasciak 2011, from "
                     "memory), more where the phantom, table height convention or field size "
                     "differ from the patient's; clinical follow-up by the responsible physician")
+# Patient positions the projection supports (PS3.16 CID 20 Patient Orientation Modifier, CID 21
+# Patient Equipment Relationship): rotation of the patient about the table's long axis
+# (degrees; +90 puts the patient's left side down) and whether the head points to -y.
+_ROLL_DEG = {"supine": 0.0, "prone": 180.0, "left lateral decubitus": 90.0,
+             "right lateral decubitus": -90.0}
+_FEET_FIRST = {"headfirst": False, "head first": False, "feet-first": True, "feet first": True}
+
+
+def _seed_path():
+    from queries import ROOT
+    return ROOT / "seeds" / "skin_backscatter.csv"
+
+
+@cache
+def backscatter_table() -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The tabulated backscatter factors (queries/seeds/skin_backscatter.csv).
+
+    Returns
+    -------
+    kvp_kv, added_cu_mm, field_side_cm, bsf
+        The grid axes and B on the grid, shape (n_kvp, n_cu, n_side).
+    """
+    with _seed_path().open(newline="", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f))
+    sides = sorted(float(k.split("_")[2].removesuffix("cm")) for k in rows[0] if k.startswith("bsf_"))
+    kvp = sorted({float(r["kvp_kv"]) for r in rows})
+    cu = sorted({float(r["added_cu_mm"]) for r in rows})
+    values = np.full((len(kvp), len(cu), len(sides)), np.nan)
+    for r in rows:
+        i, j = kvp.index(float(r["kvp_kv"])), cu.index(float(r["added_cu_mm"]))
+        values[i, j] = [float(r[f"bsf_side_{s:g}cm"]) for s in sides]
+    if np.isnan(values).any():
+        raise ValueError(f"{_seed_path()}: the backscatter grid has gaps")
+    return np.array(kvp), np.array(cu), np.array(sides), values
+
+
+@cache
+def _interpolator():
+    from scipy.interpolate import RegularGridInterpolator
+    kvp, cu, side, values = backscatter_table()
+    return RegularGridInterpolator((kvp, cu, side), values, method="linear")
 
 
 @dataclass(frozen=True, slots=True)
@@ -113,6 +167,9 @@ class SkinDoseEvent:
     table_lateral_mm: float | None = None
     table_height_mm: float | None = None
     reference_point_definition: str | None = None
+    added_cu_mm: float | None = None              # copper filtration (X-Ray Filters, TID 10003B)
+    patient_orientation_modifier: str | None = None  # CID 20 meaning: supine, prone, ...
+    patient_table_relationship: str | None = None    # CID 21 meaning: headfirst, feet-first
 
     @property
     def has_geometry(self) -> bool:
@@ -142,6 +199,18 @@ class SkinDoseResult:
     def psd_to_ka_r(self) -> float | None:
         """PSD over the summed reference air kerma."""
         return self.psd_mgy / self.ka_r_total_mgy if self.ka_r_total_mgy > 0 else None
+
+    def factor_rows(self) -> list[dict]:
+        """One row per factor: range over the events' central rays, and its source."""
+        rows = []
+        for name, key in (("inverse_square", "inverse_square"), ("backscatter", "bsf"),
+                          ("f_tissue_air", "f"), ("table_transmission", "table_transmission")):
+            values = [f[key] for f in self.event_factors if key in f]
+            rows.append({"factor": name, "n_events": len(values),
+                         "value_min": min(values) if values else None,
+                         "value_max": max(values) if values else None,
+                         "source": self.factors.get(name, "Jones & Pasciak 2011 Part I (method)")})
+        return rows
 
     @property
     def is_upper_bound(self) -> bool:
@@ -175,29 +244,81 @@ def phantom_for(height_m: float | None, weight_kg: float | None,
     return Phantom(settings.lateral_to_ap_ratio * b, b, h * 1e3, basis)
 
 
-def backscatter_factor(kvp: float | None, field_side_cm: float) -> float:
-    """BSF by bilinear interpolation in `BSF_TABLE` (clamped; kVp unknown -> 80 kV).
+def backscatter_factor(kvp: float | None, field_side_cm: float,
+                       added_cu_mm: float | None = None) -> float:
+    """Backscatter factor B from the tabulated grid (`BSF_SOURCE`), linear, clamped.
 
     Parameters
     ----------
     kvp : float or None
-        Tube voltage of the event.
+        Tube voltage of the event; unknown -> 80 kV (common practice, no source).
     field_side_cm : float
         Side of the (square) field at the skin.
+    added_cu_mm : float or None
+        Added copper filtration; unknown -> the largest B over the tabulated filtrations.
 
     Returns
     -------
     float
     """
-    return float(_bsf(kvp, np.asarray(field_side_cm, dtype=float)))
+    return float(_bsf(kvp, np.asarray(field_side_cm, dtype=float), added_cu_mm))
 
 
-def _bsf(kvp: float | None, side_cm: np.ndarray) -> np.ndarray:
-    """Vectorised over field sides: interpolate the kVp rows, then along the side."""
-    k = 80.0 if kvp is None else float(kvp)
-    table = np.asarray(BSF_TABLE)
-    row = [np.interp(k, BSF_KVP, table[:, c]) for c in range(table.shape[1])]
-    return np.interp(side_cm, BSF_FIELD_SIDES_CM, row)   # np.interp clamps at the ends
+def _bsf(kvp: float | None, side_cm: np.ndarray, cu_mm: float | None) -> np.ndarray:
+    """Vectorised over field sides."""
+    grid_kvp, grid_cu, grid_side, _ = backscatter_table()
+    k = float(np.clip(80.0 if kvp is None else kvp, grid_kvp[0], grid_kvp[-1]))
+    side = np.clip(side_cm, grid_side[0], grid_side[-1])
+    cus = grid_cu if cu_mm is None else [float(np.clip(cu_mm, grid_cu[0], grid_cu[-1]))]
+    f = _interpolator()
+    values = [f(np.stack(np.broadcast_arrays(k, c, side), -1).reshape(-1, 3)) for c in cus]
+    return np.max(values, axis=0).reshape(np.shape(side))
+
+
+def patient_rotation(orientation_modifier: str | None,
+                     table_relationship: str | None) -> tuple[np.ndarray, str]:
+    """Patient frame -> room frame, and a note of what was assumed.
+
+    Patient frame: x towards the patient's left, y towards the head, z anterior. Room frame: the
+    head-first-supine patient's (x towards the table side where that patient's left lies, y
+    towards the head end, z up). Prone turns the patient 180 deg about the table's long axis
+    (the anterior skin faces down, towards an under-table tube); a lateral decubitus turns it
+    90 deg; feet-first turns it 180 deg about the vertical (head towards -y).
+
+    Parameters
+    ----------
+    orientation_modifier : str or None
+        Patient Orientation Modifier term (PS3.16 CID 20): supine, prone, left / right lateral
+        decubitus are modelled; absent or other -> supine, and the note says so.
+    table_relationship : str or None
+        Patient Table Relationship term (CID 21): headfirst or feet-first; absent or other ->
+        head-first, and the note says so.
+
+    Returns
+    -------
+    rotation : ndarray, shape (3, 3)
+        Room coordinates = rotation @ patient coordinates.
+    note : str
+        E.g. ``"prone, feet-first"`` or ``"supine, head-first (orientation not reported:
+        supine assumed; ...)"``.
+    """
+    notes = []
+    modifier = (orientation_modifier or "").strip().lower()
+    relation = (table_relationship or "").strip().lower()
+    if modifier not in _ROLL_DEG:
+        notes.append((f"orientation {orientation_modifier!r} not modelled" if modifier
+                      else "orientation not reported") + ": supine assumed")
+        modifier = "supine"
+    if relation not in _FEET_FIRST:
+        notes.append((f"table relationship {table_relationship!r} not modelled" if relation
+                      else "table relationship not reported") + ": head-first assumed")
+        relation = "headfirst"
+    phi = math.radians(_ROLL_DEG[modifier])
+    roll = np.array([[math.cos(phi), 0.0, math.sin(phi)], [0.0, 1.0, 0.0],
+                     [-math.sin(phi), 0.0, math.cos(phi)]])
+    turn = np.diag([-1.0, -1.0, 1.0]) if _FEET_FIRST[relation] else np.eye(3)
+    label = f"{modifier}, {'feet-first' if _FEET_FIRST[relation] else 'head-first'}"
+    return np.round(turn @ roll, 12), label + (f" ({'; '.join(notes)})" if notes else "")
 
 
 def beam_direction(primary_deg: float, secondary_deg: float) -> np.ndarray:
@@ -259,12 +380,15 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
     theta, along, around = _surface(ph, s.cell_mm)
     a, b = ph.semi_lateral_mm, ph.semi_ap_mm
     cos_t, sin_t = np.cos(theta)[:, None], np.sin(theta)[:, None]
-    normal = np.stack(np.broadcast_arrays(cos_t / a, np.zeros((1, along.size)), sin_t / b), -1)
-    normal /= np.linalg.norm(normal, axis=-1, keepdims=True)
+    # the phantom in the patient frame (x left, y head, z anterior), posterior midline at -pi/2
+    body = np.stack(np.broadcast_arrays(a * cos_t, along[None, :], b * sin_t), -1)
+    normal_body = np.stack(np.broadcast_arrays(cos_t / a, np.zeros((1, along.size)), sin_t / b), -1)
+    normal_body /= np.linalg.norm(normal_body, axis=-1, keepdims=True)
     dose = np.zeros((theta.size, along.size))
     fallback = 0.0
     per_event: list[dict] = []
     rp_notes: set[str] = set()
+    positions: set[str] = set()
     n_geom = 0
     for e in events:
         if not e.has_geometry:
@@ -272,17 +396,22 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
             if e.field_area_cm2 and e.source_to_isocenter_mm and e.source_to_detector_mm:
                 # the field at the reference point, not at the detector
                 side *= (e.source_to_isocenter_mm - s.rp_from_isocentre_mm) / e.source_to_detector_mm
-            bsf = backscatter_factor(e.kvp, side)
+            bsf = backscatter_factor(e.kvp, side, e.added_cu_mm)
             fallback += e.dose_rp_mgy * bsf * F_TISSUE_AIR
             per_event.append({"has_geometry": False, "bsf": bsf, "f": F_TISSUE_AIR})
             continue
         n_geom += 1
+        rotation, position = patient_rotation(e.patient_orientation_modifier,
+                                              e.patient_table_relationship)
+        positions.add(position)
         table_z = (e.table_height_mm if e.table_height_mm is not None else -b) + \
             (s.table_height_offset_mm if e.table_height_mm is not None else 0.0)
         x0 = e.table_lateral_mm or 0.0
         y0 = e.table_longitudinal_mm or 0.0
-        points = np.stack(np.broadcast_arrays(x0 + a * cos_t, y0 + along[None, :],
-                                              table_z + b + b * sin_t), -1)
+        # the rotated ellipse rests on the table top: its lowest point at table_z
+        rest = math.hypot(rotation[2, 0] * a, rotation[2, 2] * b)
+        points = body @ rotation.T + np.array([x0, y0, table_z + rest])
+        normal = normal_body @ rotation.T
         d = beam_direction(e.primary_angle_deg, e.secondary_angle_deg)
         sod = float(e.source_to_isocenter_mm)
         source = -sod * d
@@ -309,7 +438,7 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
             x_cross = source[0] + k * rel[..., 0]
             through = (k > 0) & (k <= 1) & (np.abs(x_cross - x0) <= s.table_half_width_mm)
         trans = np.where(through, s.table_transmission, 1.0)
-        bsf = _bsf(e.kvp, np.where(hit, side_at_t, 100.0) / 10.0)
+        bsf = _bsf(e.kvp, np.where(hit, side_at_t, 100.0) / 10.0, e.added_cu_mm)
         cell = e.dose_rp_mgy * (d_rp / dist) ** 2 * bsf * F_TISSUE_AIR * trans
         dose += np.where(hit, cell, 0.0)
         i, j = np.unravel_index(np.argmax(np.where(hit, cell, -1.0)), hit.shape)
@@ -317,23 +446,33 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
                           "inverse_square": float((d_rp / dist[i, j]) ** 2),
                           "bsf": float(bsf[i, j]), "f": F_TISSUE_AIR,
                           "table_transmission": float(trans[i, j]),
-                          "d_rp_mm": d_rp, "d_skin_mm": float(dist[i, j])})
+                          "d_rp_mm": d_rp, "d_skin_mm": float(dist[i, j]),
+                          "position": position})
     psd = float(dose.max()) + fallback if dose.size else fallback
     ka_r = float(sum(e.dose_rp_mgy for e in events))
     method = (f"elliptical-cylinder phantom {2 * a:.0f} x {2 * b:.0f} mm ({ph.basis}), "
-              f"{s.cell_mm:g} mm cells; Ka,r x inverse square from the reference point "
+              f"{s.cell_mm:g} mm cells; patient {'; '.join(sorted(positions)) or 'n/a'}; "
+              f"Ka,r x inverse square from the reference point "
               f"({'; '.join(sorted(rp_notes)) or 'none'}) x BSF x f x table transmission, "
               "summed per cell, PSD = maximum (Jones & Pasciak 2011 Part I)")
     if n_geom < len(events):
         method += (f"; {len(events) - n_geom} event(s) without geometry added at the reference-"
                    "point value x BSF x f: upper bound")
+    if any(e.added_cu_mm is None for e in events):
+        method += "; copper filtration unknown for some events: largest tabulated BSF used"
     factors = {"backscatter": BSF_SOURCE, "f_tissue_air": F_SOURCE,
                "table_transmission": s.table_transmission_source,
                "phantom": f"{ph.basis}; trunk mass fraction {s.trunk_mass_fraction} and length "
                           f"{s.trunk_length_fraction} x height (from memory), width:thickness "
                           f"{s.lateral_to_ap_ratio} (common practice, no source)",
                "reference_point": "IEC 60601-2-43: 15 cm from the isocentre towards the source "
-                                  "unless the report defines another",
+                                  "unless the report defines another (CID 10025; the IEC text "
+                                  "from memory)",
+               "patient_position": "Patient Orientation Modifier (CID 20) and Patient Table "
+                                   "Relationship (CID 21) per event; absent -> supine head-first; "
+                                   "positioner angles taken in the equipment frame of a "
+                                   "head-first supine patient (an assumption: PS3.3 C.8.7.5 "
+                                   "states them relative to the patient)",
                "table_height": "Table Height Position taken as the table-top height relative "
                                "to the isocentre (device-specific in DICOM; an assumption)",
                "field": "Collimated Field Area taken at the detector plane (Distance Source to "

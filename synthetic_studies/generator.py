@@ -294,6 +294,23 @@ def _filters(e: ProjectionEvent) -> Dataset:
     ])
 
 
+_POSITION = {"supine": C.SUPINE, "prone": C.PRONE, "headfirst": C.HEADFIRST,
+             "feet-first": C.FEET_FIRST}
+
+
+def _patient_position(e: ProjectionEvent) -> list[Dataset]:
+    """TID 10003 Patient Table Relationship (CID 21) and Patient Orientation (CID 19) with its
+    Modifier (CID 20), when the spec carries them."""
+    items = []
+    if e.patient_table_relationship is not None:
+        items.append(code_item(C.PATIENT_TABLE_RELATIONSHIP, _POSITION[e.patient_table_relationship]))
+    if e.patient_orientation_modifier is not None:
+        items.append(code_item(C.PATIENT_ORIENTATION, C.RECUMBENT, children=[
+            code_item(C.PATIENT_ORIENTATION_MODIFIER, _POSITION[e.patient_orientation_modifier],
+                      HAS_CONCEPT_MOD)]))
+    return items
+
+
 def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Dataset:
     children = [
         code_item(C.ACQUISITION_PLANE, _PLANE[e.plane], HAS_CONCEPT_MOD),
@@ -307,6 +324,7 @@ def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Data
         children.append(code_item(C.TARGET_REGION, e.anatomy, children=mods))
     if is_mammo and e.view in _VIEW:
         children.append(code_item(C.IMAGE_VIEW, _VIEW[e.view]))
+    children += _patient_position(e)
     if e.entrance_exposure_mgy is not None:
         children.append(num_item(C.ENTRANCE_EXPOSURE_AT_RP, e.entrance_exposure_mgy, C.UNIT_MGY))
     if e.dap_gy_cm2 is not None:

@@ -322,7 +322,9 @@ def _with_geometry(events: list[ProjectionEvent], rng: np.random.Generator,
                    is_xa: bool) -> list[ProjectionEvent]:
     """Angulation and table positions per event: a C-arm dwells on one working view during
     fluoroscopy (small jitter) and cycles standard views for cine; a fluoroscopy room keeps
-    the tube under the table (0, 0) and follows the contrast down the oesophagus."""
+    the tube under the table (0, 0) and follows the contrast down the oesophagus. The
+    interventional (XA) rooms report the patient position (supine, head first) in every event;
+    the fluoroscopy rooms do not (no random draw either way, so the doses stay as they were)."""
     from dataclasses import replace
 
     out = []
@@ -350,7 +352,9 @@ def _with_geometry(events: list[ProjectionEvent], rng: np.random.Generator,
             table_h = height
         out.append(replace(e, primary_angle_deg=primary, secondary_angle_deg=secondary,
                            table_longitudinal_mm=longitudinal + 0.0, table_lateral_mm=lateral + 0.0,
-                           table_height_mm=table_h + 0.0))
+                           table_height_mm=table_h + 0.0,
+                           patient_orientation_modifier="supine" if is_xa else None,
+                           patient_table_relationship="headfirst" if is_xa else None))
     return out
 
 

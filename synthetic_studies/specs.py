@@ -86,6 +86,9 @@ class ProjectionEvent:
     table_longitudinal_mm: float | None = None
     table_lateral_mm: float | None = None
     table_height_mm: float | None = None
+    # TID 10003 patient position (CID 20 / CID 21 terms); the interventional rooms report it
+    patient_orientation_modifier: str | None = None  # supine | prone
+    patient_table_relationship: str | None = None    # headfirst | feet-first
     filter_material: str | None = None  # Al | Cu | Rh | Mo | Ag
     filter_thickness_mm: float | None = None
     body_part: str | None = None

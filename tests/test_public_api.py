@@ -23,6 +23,7 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.net.completeness", "pipeline.skin_dose", "pipeline.notes", "pipeline.cli.note",
            "pipeline.cli.report", "pipeline.report", "pipeline.report.content",
            "pipeline.report.words", "pipeline.report.render", "pipeline.report.read",
+           "pipeline.report.figures",
            "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey",
            "pipeline.adhoc", "pipeline.dictionary", "pipeline.cli.schema"]
 

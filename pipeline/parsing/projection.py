@@ -18,6 +18,10 @@ _PLANE = {("DCM", "113622"): "single", ("DCM", "113620"): "A", ("DCM", "113621")
 _EVENT_TYPE = {("SCT", "44491008"): "fluoroscopy", ("DCM", "113611"): "stationary",
                ("DCM", "113612"): "stepping", ("DCM", "113613"): "rotational"}
 _SIDE = {("SCT", "7771000"): "L", ("SCT", "24028007"): "R", ("SCT", "51440002"): "B"}
+# patient position terms by code (PS3.16 CID 19 / 20 / 21); other codes keep their meaning
+_POSITION = {(c.scheme_designator, c.value): c.meaning for c in (
+    C.RECUMBENT, C.SEMI_ERECT, C.SUPINE, C.PRONE, C.LEFT_LATERAL_DECUBITUS,
+    C.RIGHT_LATERAL_DECUBITUS, C.HEADFIRST, C.FEET_FIRST)}
 
 
 def _plane(node: Dataset) -> str | None:
@@ -28,6 +32,15 @@ def _plane(node: Dataset) -> str | None:
 def _meaning(node: Dataset | None, code) -> str | None:
     meaning, _ = code_label(first(node, code)) if node is not None else (None, None)
     return meaning
+
+
+def _position(item: Dataset | None) -> str | None:
+    """A CID 19/20/21 code as a term: known codes by code, others by their meaning, lower case."""
+    found = code_value_of(item)
+    if found is None:
+        return None
+    key, meaning = found
+    return _POSITION.get(key) or (meaning.strip().lower() or f"{key[0]}:{key[1]}")
 
 
 def _rp_definition(node: Dataset) -> str | None:
@@ -116,6 +129,10 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
         area = m.value(node, C.COLLIMATED_FIELD_AREA, Quantity.AREA, event_uid=uid)
         if area is None:
             area = _area_from_sides(node, uid, m)
+        orientation = first(node, C.PATIENT_ORIENTATION, "CODE")
+        modifier = first(orientation, C.PATIENT_ORIENTATION_MODIFIER) if orientation else None
+        if modifier is None:   # a modifier sent beside, not under, its Patient Orientation
+            modifier = first(node, C.PATIENT_ORIENTATION_MODIFIER, "CODE")
         events.append(ProjectionEvent(
             event_uid=uid,
             sop_instance_uid=sop_uid,
@@ -155,6 +172,9 @@ def parse_projection_events(root: Dataset, sop_uid: str, m: Measurer) -> list[Pr
                                              Quantity.LENGTH, event_uid=uid),
             reference_point_definition=(_rp_definition(node)
                                         or report_rp.get(_plane(node) or "single")),
+            patient_orientation=_position(orientation),
+            patient_orientation_modifier=_position(modifier),
+            patient_table_relationship=_position(first(node, C.PATIENT_TABLE_RELATIONSHIP, "CODE")),
             filter_material=material,
             filter_thickness_mm=thickness,
             agd_mgy=m.value(node, C.AVERAGE_GLANDULAR_DOSE, Quantity.AIR_KERMA, event_uid=uid, plausible="agd"),

@@ -14,6 +14,7 @@ import datetime as dt
 from dataclasses import dataclass, field
 from typing import Any
 
+from .figures import skin_map_figure
 from .words import ACTION_TIERS, ACTION_WORDS, action_rank, format_value, rule_words
 
 __all__ = ["CAUTIONS", "ReportContent", "ReportInput", "ReportSection", "change_status",
@@ -58,6 +59,7 @@ class ReportInput:
     version: str = ""
     events: list[dict] = field(default_factory=list)   # queries/dashboards/dash_alert_events.sql
     data_checks: list[dict] = field(default_factory=list)  # queries/report/report_data_alerts.sql
+    skin_maps: list[dict] = field(default_factory=list)    # queries/report/report_skin_dose_maps.sql
 
 
 @dataclass(frozen=True)
@@ -195,6 +197,20 @@ def _resolved_lines(resolved: list[dict], rooms: dict[str, tuple[str, str]]) -> 
     return out
 
 
+def _skin_figures(cells: list[dict], study_key: str) -> list[dict]:
+    """The skin-dose map of each of the study's rooms (a study may span two units)."""
+    by_device: dict[str, list[dict]] = {}
+    for c in cells:
+        if c["study_key"] == study_key:
+            by_device.setdefault(c["device_key"], []).append(c)
+    out = []
+    for rows in by_device.values():
+        figure = skin_map_figure(rows, psd_mgy=rows[0]["psd_mgy"], study_label=study_key)
+        out.append({"kind": "skin_map", "figure": figure, "caption": figure.caption,
+                    "method": rows[0]["method"]})
+    return out
+
+
 def report_content(inp: ReportInput) -> ReportContent:
     """The report's sections in reading order (page 1: the executive summary).
 
@@ -234,7 +250,7 @@ def report_content(inp: ReportInput) -> ReportContent:
                                                   if a["study_key"] == entry["study_key"]],
                               "events": [e for e in inp.events
                                          if e["study_key"] == entry["study_key"]],
-                              "figures": []})   # per-study figures (e.g. a skin-dose map) go here
+                              "figures": _skin_figures(inp.skin_maps, entry["study_key"])})
     medians = [{**m, "status": status.get(m["item_id"], ""), "note": inp.notes.get(m["item_id"]),
                 "median_text": format_value(m["median"], m["unit"], m["quantity"]),
                 "reference_text": format_value(m["reference_value"], m["unit"], m["quantity"])}

@@ -29,6 +29,14 @@ def _data_checks(con) -> list[dict]:
     return _rows(con, "report_data_alerts") if exists else []
 
 
+def _skin_maps(con) -> list[dict]:
+    """Skin-dose map cells of the studies at a peak-skin-dose alert; none when the warehouse
+    predates skin_dose_map."""
+    exists = con.execute("select count(*) from information_schema.tables "
+                         "where table_name = 'skin_dose_map'").fetchone()[0]
+    return _rows(con, "report_skin_dose_maps") if exists else []
+
+
 def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> ReportInput:
     """Rows of the last audit in the warehouse (`con`, read-only) and its previous period.
 
@@ -65,7 +73,7 @@ def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> R
             drift=_rows(con, "report_drift"), coverage=_rows(con, "report_coverage"),
             rooms={r.device_key: (r.site_label, r.room_label) for r in devices.itertuples()},
             generated_at=generated_at, version=version, events=_rows(con, "dash_alert_events"),
-            data_checks=_data_checks(con))
+            data_checks=_data_checks(con), skin_maps=_skin_maps(con))
     finally:
         con.unregister("dash_exam_type")
         con.unregister("dash_device")

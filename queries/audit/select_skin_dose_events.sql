@@ -8,7 +8,8 @@ select
     e.distance_source_to_isocenter_mm, e.distance_source_to_detector_mm,
     e.distance_source_to_rp_mm, e.collimated_field_area_m2,
     e.table_longitudinal_mm, e.table_lateral_mm, e.table_height_mm,
-    e.reference_point_definition
+    e.reference_point_definition, e.filter_material, e.filter_thickness_mm,
+    e.patient_orientation_modifier, e.patient_table_relationship
 from study_dose as s
 join irradiation_event as e using (study_key, device_key)
 where s.modality in ('RF', 'XA')

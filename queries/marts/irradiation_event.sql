@@ -6,7 +6,9 @@
 -- entrance_dose_derivation is its (0040,8303): only ESAK is the entrance surface air kerma Ka,e.
 -- Projection geometry (TID 10003B/C): positioner angles in degrees (PS3.3 C.8.7.5 signs),
 -- distances in mm, table positions in mm from a device-specific origin (signed),
--- collimated_field_area_m2 as reported (or Height x Width), reference_point_definition per event.
+-- collimated_field_area_m2 as reported (or Height x Width), reference_point_definition per event;
+-- patient_orientation / _modifier / patient_table_relationship: TID 10003 CID 19 / 20 / 21 terms
+-- (recumbent, supine, prone, headfirst, feet-first, ...) as the event reports them, else null.
 create or replace view irradiation_event as
 select
     event_uid, study_key, device_key, modality, source_kind, sop_instance_uid,
@@ -25,7 +27,9 @@ select
     null::double as table_longitudinal_mm, null::double as table_lateral_mm,
     null::double as table_height_mm, null::double as collimated_field_area_m2,
     null::varchar as filter_material, null::double as filter_thickness_mm,
-    null::varchar as reference_point_definition
+    null::varchar as reference_point_definition,
+    null::varchar as patient_orientation, null::varchar as patient_orientation_modifier,
+    null::varchar as patient_table_relationship
 from stg_ct_event
 union all by name
 select
@@ -45,7 +49,8 @@ select
     distance_source_to_rp_mm,
     table_longitudinal_mm, table_lateral_mm, table_height_mm,
     collimated_field_area_cm2 / 1e4 as collimated_field_area_m2,
-    filter_material, filter_thickness_mm, reference_point_definition
+    filter_material, filter_thickness_mm, reference_point_definition,
+    patient_orientation, patient_orientation_modifier, patient_table_relationship
 from stg_projection_event
 
 -- columns:

@@ -35,6 +35,9 @@ create table if not exists raw_projection_event (
     table_height_mm double,
     distance_source_to_rp_mm double,
     reference_point_definition varchar,
+    patient_orientation varchar,
+    patient_orientation_modifier varchar,
+    patient_table_relationship varchar,
     filter_material varchar,
     filter_thickness_mm double,
     agd_mgy double,
@@ -59,3 +62,6 @@ alter table raw_projection_event add column if not exists table_lateral_mm doubl
 alter table raw_projection_event add column if not exists table_height_mm double;
 alter table raw_projection_event add column if not exists distance_source_to_rp_mm double;
 alter table raw_projection_event add column if not exists reference_point_definition varchar;
+alter table raw_projection_event add column if not exists patient_orientation varchar;
+alter table raw_projection_event add column if not exists patient_orientation_modifier varchar;
+alter table raw_projection_event add column if not exists patient_table_relationship varchar;

@@ -222,3 +222,35 @@ def test_data_checks_lead_page_one(september):
     assert f"feeds that went quiet or thin ({len(checks)})" in page1
     for kind, item in checks:
         assert page1.index(item) < page1.index("1. Patient follow-up"), kind
+
+
+def test_follow_up_page_carries_the_skin_dose_map_with_its_cautions(september):
+    """issue 15: the peak-skin-dose follow-up study's skin-dose map is a figure of the report,
+    on the page of that study, with its PSD and the cautions (an estimate within about +-40 %,
+    follow-up by the responsible physician)."""
+    db, pdf = september
+    with duckdb.connect(str(db), read_only=True) as con:
+        study, psd = con.execute(
+            "select a.study_key, k.psd_mgy from dose_alerts as a join skin_dose as k "
+            "using (study_key, device_key) where a.rule = 'ncrp168_srdl_peak_skin_dose'").fetchone()
+    pages = [_flat(p) for p in _text(pdf).split("\f")]
+    title = f"Skin-dose map, study {study}: peak skin dose {psd / 1000:.2f} Gy (estimate)"
+    (page,) = [p for p in pages if title in p]
+    assert "cells in Gy" in page and f"peak {psd / 1000:.2f} Gy, outlined" in page
+    assert "typically within about ±40 % and depending on the phantom" in page
+    # pdftotext drops a hyphen where the line broke at it ("follow-" / "up")
+    assert "clinical followup by the responsible physician" in page.replace("-", "")
+    assert "along the body, head up (mm)" in page          # an axis label drawn in the SVG
+    assert psd >= 3000.0                                    # NCRP Report 168: 3 Gy (from memory)
+
+
+def test_html_report_holds_the_skin_dose_map_as_inline_svg(september, tmp_path):
+    db, _ = september
+    out = tmp_path / "report.html"
+    result = CliRunner().invoke(app, ["report", "--warehouse", str(db), "--period", "2026-09",
+                                      "--out", str(out), "--format", "html"], terminal_width=200)
+    assert result.exit_code == 0, result.output
+    page = out.read_text(encoding="utf-8")
+    section = page[page.index("Patients needing follow-up"):page.index("Every individual-exam alert")]
+    assert section.count('<svg xmlns="http://www.w3.org/2000/svg" class="skin-map"') == 1
+    assert "Skin-dose map, study" in section and "</svg>" in section
