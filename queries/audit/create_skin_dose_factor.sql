@@ -3,3 +3,13 @@
 -- over the events' central rays (pipeline/skin_dose.py); source: the publication and table the
 -- factor comes from, or "from memory" where it was not read (queries/seeds/skin_dose_factors.md)
 create or replace table skin_dose_factor as select * from incoming_skin_dose_factor
+
+-- columns:
+--   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)
+--   device_key: key of the irradiating device: a hash of manufacturer, model and serial number;
+--     else of the Device Observer UID; else of the equipment module
+--   factor: inverse_square, backscatter, f_tissue_air or table_transmission [1]
+--   n_events: events of the study the factor was applied to
+--   value_min: smallest value of the factor over those events' central rays [1]
+--   value_max: largest value of the factor over those events' central rays [1]
+--   source: the publication and table the factor comes from, or "from memory"

@@ -107,3 +107,6 @@ from stg_projection_event
 --   filter_thickness_mm: X-ray filter thickness
 --   reference_point_definition: Reference Point Definition of the event (e.g. 15 cm from the
 --     isocentre towards the source)
+--   patient_orientation: Patient Orientation (TID 10003, CID 19: e.g. erect, recumbent) as sent
+--   patient_orientation_modifier: Patient Orientation Modifier (CID 20: e.g. supine, prone) as sent
+--   patient_table_relationship: Patient Table Relationship (CID 21: headfirst or feet-first) as sent
