@@ -11,6 +11,7 @@
     ├── ConfigError             -> stop with a one-line message (e.g. no pseudonymisation key)
     │   └── KeyMismatchError    (the key differs from the warehouse's key epoch; nothing loaded)
     ├── WarehouseError          -> stop with a one-line message (cannot open, busy)
+    ├── ExtractError            -> stop; a site extract is damaged, altered or incompatible
     └── ArchiveError            -> stop; transient: a flow may retry (archive down, refused)
 """
 
@@ -20,6 +21,7 @@ __all__ = [
     "ArchiveError",
     "ConfigError",
     "DoseAuditError",
+    "ExtractError",
     "InputError",
     "KeyMismatchError",
     "MalformedReportError",
@@ -83,6 +85,10 @@ class KeyMismatchError(ConfigError):
 
 class WarehouseError(DoseAuditError):
     """The warehouse cannot be opened or is busy; the command stops."""
+
+
+class ExtractError(DoseAuditError):
+    """A site extract (or a request for one) that cannot be used; nothing was written."""
 
 
 class ArchiveError(DoseAuditError):
