@@ -88,27 +88,33 @@ class LakeRelation:
 
     name: str
     partition_by: tuple[str, ...] = ()
+    date_column: str | None = None   # year and month partitions come from this column
+    omitted: tuple[str, ...] = ()    # columns left out of the lake
 
 
-# Partitions by modality, year and month where the relation has them (Hive layout
-# name=value/ folders). Omitted on purpose: source_object.path/detail (file paths),
-# review_note (reviewers' names and free text).
+_MYM = ("modality", "year", "month")
+# Partitioned by modality, year and month where the relation has them (Hive layout
+# name=value/ folders). Left out on purpose: source_object.path and .detail (file paths,
+# messages that quote them), review_note (reviewers' names and free text).
 LAKE_RELATIONS: tuple[LakeRelation, ...] = (
-    LakeRelation("study_dose", ("modality", "year", "month")),
-    LakeRelation("irradiation_event", ("modality", "year", "month")),
-    LakeRelation("audit_observation", ("modality", "year", "month")),
+    LakeRelation("study_dose", _MYM, "study_date"),
+    LakeRelation("irradiation_event", _MYM, "started_at"),
+    LakeRelation("audit_observation", _MYM, "study_date"),
     LakeRelation("device", ("modality",)),
     LakeRelation("value_issue"),
-    LakeRelation("source_object"),
+    LakeRelation("source_object", omitted=("path", "detail")),
     LakeRelation("key_epoch"),
     LakeRelation("pipeline_run"),
     LakeRelation("network_extract"),
-    LakeRelation("audit_medians", ("modality",)),
-    LakeRelation("network_reference", ("modality",)),
-    LakeRelation("dose_alerts", ("modality",)),
+    LakeRelation("audit_medians"),
+    LakeRelation("network_reference"),
+    LakeRelation("dose_alerts", ("year", "month"), "study_date"),
     LakeRelation("drift_flags"),
     LakeRelation("data_alerts"),
-    LakeRelation("monthly_medians", ("modality",)),
+    LakeRelation("monthly_medians"),
+    LakeRelation("study_estimate", ("year", "month"), "study_date"),
+    LakeRelation("skin_dose", _MYM, "study_date"),
+    LakeRelation("audit_finding"),
 )
 
 

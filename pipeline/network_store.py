@@ -28,8 +28,8 @@ from queries import sql
 from . import __version__
 from .errors import ExtractError
 from .network import (EXTRACT_TABLES, LAKE_RELATIONS, MANIFEST_NAME, SCHEMA_VERSION, KeyScope,
-                      Manifest, build_manifest, expected_schema, file_name, parse_manifest,
-                      pseudonymise_table, schema_problem)
+                      LakeRelation, Manifest, build_manifest, expected_schema, file_name,
+                      parse_manifest, pseudonymise_table, schema_problem)
 from .pseudonym import key_fingerprint, make_pseudonymiser
 from .warehouse.connection import connection
 from .warehouse.key_epoch import current_key_epoch
@@ -38,9 +38,6 @@ from .warehouse.load import ensure_schema
 __all__ = ["ExportSummary", "LakeSummary", "MergeSummary", "export_lake", "export_site",
            "merge_extracts", "read_extract"]
 
-_DATE_COLUMNS = {"study_dose": "study_date", "irradiation_event": "started_at",
-                 "audit_observation": "study_date"}
-_LAKE_OMITTED = {"source_object": ("path", "detail")}   # file paths; messages quote paths
 
 
 @dataclass
@@ -129,7 +126,7 @@ def export_site(warehouse: Path, out_dir: Path, *, site: str, date_from: dt.date
         table = tables[spec.name].drop_columns(list(spec.omitted))
         table = pseudonymise_table(table, spec, pseudonymise).cast(expected_schema(spec))
         path = out_dir / file_name(spec.name)
-        pq.write_table(table, path, compression="zstd")
+        pq.write_table(table, path, compression="none")   # plain: reviewable, greppable
         files.append({"table": spec.name, "file": path.name, "rows": table.num_rows,
                       "sha256": _sha256(path)})
     manifest = build_manifest(
@@ -317,11 +314,10 @@ class LakeSummary:
     absent: list[str] = field(default_factory=list)
 
 
-def _lake_table(con: duckdb.DuckDBPyConnection, name: str) -> pa.Table:
-    table = con.table(name).to_arrow_table()
-    table = table.drop_columns([c for c in _LAKE_OMITTED.get(name, ()) if c in table.column_names])
-    if name in _DATE_COLUMNS:
-        when = table.column(_DATE_COLUMNS[name])
+def _lake_table(con: duckdb.DuckDBPyConnection, relation: LakeRelation) -> pa.Table:
+    table = con.table(relation.name).to_arrow_table().drop_columns(list(relation.omitted))
+    if relation.date_column:
+        when = table.column(relation.date_column)
         table = table.append_column("year", pc.year(when).cast(pa.int32()))
         table = table.append_column("month", pc.month(when).cast(pa.int32()))
     return table
@@ -349,7 +345,7 @@ def export_lake(warehouse: Path, out_dir: Path) -> LakeSummary:
             if relation.name not in present:
                 summary.absent.append(relation.name)
                 continue
-            table = _lake_table(con, relation.name)
+            table = _lake_table(con, relation)
             target = out_dir / relation.name
             if target.exists():
                 shutil.rmtree(target)
@@ -364,6 +360,6 @@ def export_lake(warehouse: Path, out_dir: Path) -> LakeSummary:
     (out_dir / "lake.json").write_text(json.dumps({
         "relations": {r.name: {"rows": summary.rows[r.name], "partition_by": list(r.partition_by)}
                       for r in LAKE_RELATIONS if r.name in summary.rows},
-        "omitted_columns": {k: list(v) for k, v in _LAKE_OMITTED.items()},
+        "omitted_columns": {r.name: list(r.omitted) for r in LAKE_RELATIONS if r.omitted},
         "kerma_version": __version__}, indent=2) + "\n", encoding="utf-8")
     return summary

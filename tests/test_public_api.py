@@ -23,7 +23,8 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.net.completeness", "pipeline.skin_dose", "pipeline.notes", "pipeline.cli.note",
            "pipeline.cli.report", "pipeline.report", "pipeline.report.content",
            "pipeline.report.words", "pipeline.report.render", "pipeline.report.read",
-           "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey"]
+           "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey",
+           "pipeline.network", "pipeline.network_store", "pipeline.cli.network"]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -9,6 +9,7 @@ from .app import app
 from . import corpus, ingest, query, exams, reference, audit  # noqa: E402,F401,I001
 from . import listen, pull, run, completeness  # noqa: E402,F401,I001
 from . import note, report, keys, survey  # noqa: E402,F401,I001
+from . import network  # noqa: E402,F401,I001
 
 __all__ = ["app", "main"]
 
