@@ -21,7 +21,6 @@ import pydicom
 import pytest
 from typer.testing import CliRunner
 
-from pipeline.audit import run_audit
 from pipeline.cli import app
 from pipeline.errors import ExtractError
 from pipeline.ingest import ingest
@@ -29,9 +28,7 @@ from pipeline.network import EXTRACT_TABLES, KeyScope, extract_id
 from pipeline.network_store import export_site, merge_extracts
 from tests.helpers import KEY
 
-FIRST, LAST = dt.date(2026, 9, 1), dt.date(2026, 11, 30)
-SITES = {"CIC": "Cobbleford Imaging Centre", "MPH": "Marram Point Hospital",
-         "OVH": "Oxlade Vale Hospital", "TGH": "Tarnwick General Hospital"}
+from tests.network.conftest import FIRST, LAST, SITES
 SITE_KEY = b"marram-point-own-key-0123456789"   # MPH's own key (per-site keys)
 RAW = ("raw_device", "raw_study", "raw_dose_object", "raw_ct_event", "raw_projection_event",
        "raw_accumulated", "raw_value_issue", "raw_site_map", "network_extract")
@@ -52,34 +49,6 @@ def _file_hash(path: Path) -> str:
 def _query(db: Path, text: str) -> pd.DataFrame:
     with duckdb.connect(str(db), read_only=True) as con:
         return con.execute(text).df()
-
-
-@pytest.fixture(scope="module")
-def combined(warehouse, tmp_path_factory) -> Path:
-    """A copy of the session warehouse (all four sites), audited over the three months."""
-    db = tmp_path_factory.mktemp("combined") / "kerma.duckdb"
-    shutil.copy(warehouse[0], db)
-    return db
-
-
-@pytest.fixture(scope="module")
-def extracts(combined, tmp_path_factory) -> dict[str, Path]:
-    """One extract per site over the three months, made with the shared key."""
-    root = tmp_path_factory.mktemp("extracts")
-    return {code: export_site(combined, root / code, site=name, date_from=FIRST, date_to=LAST,
-                              key=KEY, key_scope=KeyScope.NETWORK).out_dir
-            for code, name in SITES.items()}
-
-
-@pytest.fixture(scope="module")
-def network(combined, extracts, tmp_path_factory) -> Path:
-    """The four extracts merged into a network warehouse; both warehouses then audited."""
-    db = tmp_path_factory.mktemp("network") / "network.duckdb"
-    summary = merge_extracts(list(extracts.values()), db)
-    assert len(summary.merged) == 4 and summary.unchanged == []
-    run_audit(combined, date_from=FIRST, date_to=LAST)
-    run_audit(db, date_from=FIRST, date_to=LAST)
-    return db
 
 
 @pytest.fixture(scope="module")
