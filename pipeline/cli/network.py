@@ -10,7 +10,7 @@ from rich.table import Table
 
 from .app import app, console, fail, parse_day
 
-__all__ = ["export_command", "merge_command"]
+__all__ = ["demo_network", "export_command", "merge_command"]
 
 
 @app.command("export")
@@ -92,3 +92,46 @@ def merge_command(
     console.print(f"Merged {len(summary.merged)} extract(s) into {warehouse}; already there "
                   f"(nothing changed): {len(summary.unchanged)}; earlier extracts replaced: "
                   f"{len(summary.replaced)}. Studies in the network warehouse: {summary.n_studies}.")
+
+
+def demo_network(warehouse: Path, out: Path, key_file: Path, date_from, date_to) -> Path:
+    """The demo's network step: export every site of `warehouse`, merge, audit the network.
+
+    The demo warehouse holds the four invented sites under one key, as four site warehouses
+    ingested with a shared network key would; each site's extract is cut from it by site
+    (``device.site``), so the demo does not ingest the corpus a second time.
+    """
+    import re
+    import shutil
+    import time
+
+    from queries import sql
+
+    from ..audit import run_audit
+    from ..network import KeyScope
+    from ..network_store import export_site, merge_extracts
+    from ..pseudonym import load_key
+    from ..warehouse.connection import connection
+
+    started = time.perf_counter()
+    key = load_key(key_file)
+    with connection(warehouse, read_only=True) as con:
+        sites = [r[0] for r in con.execute(sql("select_sites")).fetchall()]
+    folders = []
+    for site in sites:
+        folder = out / "extracts" / re.sub(r"[^a-z0-9]+", "-", site.lower()).strip("-")
+        if folder.exists():
+            shutil.rmtree(folder)    # the demo's own output of an earlier run
+        folders.append(export_site(warehouse, folder, site=site, date_from=date_from,
+                                   date_to=date_to, key=key, key_scope=KeyScope.NETWORK).out_dir)
+    network = out / "network.duckdb"
+    merged = merge_extracts(folders, network)
+    summary = run_audit(network, date_from=date_from, date_to=date_to)
+    console.print(f"{len(folders)} site extracts in {out / 'extracts'} (shared network key); "
+                  f"merged into {network}: {len(merged.merged)} new, {len(merged.unchanged)} "
+                  f"already there, {merged.n_studies} studies. Network audit: "
+                  f"{summary.n_groups} room groups, {len(summary.exceedances)} room medians above "
+                  f"their reference level, individual-exam alerts "
+                  f"{sum(summary.alerts_by_rule.values())} "
+                  f"({time.perf_counter() - started:.1f} s).")
+    return network
