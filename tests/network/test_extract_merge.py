@@ -316,6 +316,21 @@ def test_a_new_extract_of_the_same_site_and_period_replaces_the_earlier(mph_own_
     assert _query(db, "select count(distinct site) as n from study_dose")["n"][0] == 1
 
 
+def test_an_overlapping_extract_of_another_period_adds_no_duplicate(combined, network,
+                                                                    tmp_path):
+    db = tmp_path / "net.duckdb"
+    shutil.copy(network, db)
+    september = export_site(combined, tmp_path / "sep", site=SITES["CIC"], date_from=FIRST,
+                            date_to=dt.date(2026, 9, 30), key=KEY, key_scope=KeyScope.NETWORK)
+    before = _query(db, "select count(*) as n from study_dose")["n"][0]
+    summary = merge_extracts([september.out_dir], db)
+    assert summary.merged == [september.extract_id] and summary.replaced == []
+    assert _query(db, "select count(*) as n from study_dose")["n"][0] == before
+    # the September reports now come from the newer, September-only extract
+    n = _query(db, f"select count(*) as n from raw_dose_object where run_id = '{september.extract_id}'")
+    assert n["n"][0] == september.rows["dose_object"] > 0
+
+
 def test_exporting_unchanged_data_again_gives_the_same_extract(combined, extracts, tmp_path):
     again = export_site(combined, tmp_path / "again", site=SITES["CIC"], date_from=FIRST,
                         date_to=LAST, key=KEY, key_scope=KeyScope.NETWORK)
