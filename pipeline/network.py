@@ -20,6 +20,7 @@ extract, so extracts travel over an authenticated channel.
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import json
 import re
@@ -301,6 +302,13 @@ def parse_manifest(text: str, where: str) -> Manifest:
         key_scope=scope, key_fingerprint=_need(pseudo, "key_fingerprint", str, where),
         pseudonym_scheme=scheme, created_at=str(raw.get("created_at", "")),
         kerma_version=str(raw.get("kerma_version", "")), files=tuple(files))
+    try:
+        first, last = (dt.date.fromisoformat(manifest.date_from),
+                       dt.date.fromisoformat(manifest.date_to))
+    except ValueError as exc:
+        raise ExtractError(f"{where}: period dates must be YYYY-MM-DD ({exc})") from exc
+    if last < first or not manifest.site.strip():
+        raise ExtractError(f"{where}: period ends before it starts, or the site is empty")
     recomputed = extract_id(manifest.site, manifest.date_from, manifest.date_to,
                             manifest.key_fingerprint, files)
     if recomputed != manifest.extract_id:

@@ -46,6 +46,8 @@ def test_the_extract_id_ignores_creation_time_but_not_the_facts():
     (lambda m: m["pseudonymisation"].update(key_scope="both"), "key_scope must be"),
     (lambda m: m["pseudonymisation"].update(scheme="md5"), "scheme 'md5'"),
     (lambda m: m["period"].update(to="2026-10-31"), "manifest was altered"),
+    (lambda m: m["period"].update(to="soon"), "period dates must be YYYY-MM-DD"),
+    (lambda m: m["period"].update(to="2026-08-31"), "period ends before it starts"),
 ])
 def test_a_bad_manifest_gets_one_line_naming_the_folder(change, message):
     manifest = _manifest()
