@@ -42,7 +42,7 @@ PUBLIC_RELATIONS = (
     "audit_medians", "network_reference", "dose_alerts", "data_alerts", "drift_flags",
     "monthly_medians", "study_estimate", "skin_dose", "skin_dose_map", "skin_dose_factor",
     "audit_finding", "audit_period", "review_note", "latest_review_note",
-    "capture_completeness", "capture_missing_studies",
+    "capture_completeness", "capture_missing_studies", "network_extract",
 )
 
 # Longest suffix first: `_mgy_cm` before `_cm`, `_gy_cm2` before `_cm2`.

@@ -12,6 +12,7 @@
     │   └── KeyMismatchError    (the key differs from the warehouse's key epoch; nothing loaded)
     ├── WarehouseError          -> stop with a one-line message (cannot open, busy)
     ├── QueryError              -> `kerma sql` refused or could not run the query; one line
+    ├── ExtractError            -> stop; a site extract is damaged, altered or incompatible
     └── ArchiveError            -> stop; transient: a flow may retry (archive down, refused)
 """
 
@@ -21,6 +22,7 @@ __all__ = [
     "ArchiveError",
     "ConfigError",
     "DoseAuditError",
+    "ExtractError",
     "InputError",
     "KeyMismatchError",
     "MalformedReportError",
@@ -89,6 +91,10 @@ class WarehouseError(DoseAuditError):
 
 class QueryError(DoseAuditError):
     """An ad hoc query was refused (not one SELECT, a write) or failed; nothing was changed."""
+
+
+class ExtractError(DoseAuditError):
+    """A site extract (or a request for one) that cannot be used; nothing was written."""
 
 
 class ArchiveError(DoseAuditError):

@@ -25,7 +25,8 @@ MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models"
            "pipeline.report.words", "pipeline.report.render", "pipeline.report.read",
            "pipeline.report.figures",
            "pipeline.vault", "pipeline.cli.keys", "pipeline.survey", "pipeline.cli.survey",
-           "pipeline.adhoc", "pipeline.dictionary", "pipeline.cli.schema"]
+           "pipeline.adhoc", "pipeline.dictionary", "pipeline.cli.schema",
+           "pipeline.network", "pipeline.network_store", "pipeline.cli.network"]
 
 
 @pytest.mark.parametrize("name", MODULES)

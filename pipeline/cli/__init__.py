@@ -10,6 +10,7 @@ from . import corpus, ingest, query, exams, reference, audit  # noqa: E402,F401,
 from . import listen, pull, run, completeness  # noqa: E402,F401,I001
 from . import note, report, keys, survey  # noqa: E402,F401,I001
 from . import schema  # noqa: E402,F401,I001
+from . import network  # noqa: E402,F401,I001
 
 __all__ = ["app", "main"]
 

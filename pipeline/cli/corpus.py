@@ -61,7 +61,8 @@ def demo(
 
     The monthly flow (Prefect) ingests the corpus, audits its three months and writes the
     dashboards and the committee report beside them; each flow run is recorded in the view
-    ``pipeline_run``.
+    ``pipeline_run``. Then each site's extract is merged into ``network/network.duckdb``,
+    which is audited.
     """
     import datetime as dt
     import secrets
@@ -78,7 +79,7 @@ def demo(
     warehouse = out / "kerma.duckdb"
     key_file = out / "pseudonym.key"
     console.rule("Kerma Ledger demo")
-    console.print("Step 1 of 2: generating the synthetic corpus of the invented "
+    console.print("Step 1 of 3: generating the synthetic corpus of the invented "
                   "Tarnwick Regional Imaging Network (no real patients, sites or devices).")
     started = time.perf_counter()
     summary = write_corpus(corpus, seed=seed, months=3, n_studies=studies, workers=workers)
@@ -94,7 +95,7 @@ def demo(
                       "warehouse; a real site keeps its key in its own secret store).")
     bounds = month_starts(load_scenario().start_date, 3)
     first, last = bounds[0], bounds[-1] - dt.timedelta(days=1)
-    console.print(f"Step 2 of 2: the monthly flow (Prefect) over {first} to {last}: ingest "
+    console.print(f"Step 2 of 3: the monthly flow (Prefect) over {first} to {last}: ingest "
                   f"{corpus} into {warehouse}, audit against the verified published reference "
                   f"levels, write the dashboards.")
     started = time.perf_counter()
@@ -106,6 +107,11 @@ def demo(
     console.print(f"Committee report written: {result.site_index.parent / 'report.pdf'}")
     console.print(f"Monthly flow finished in {time.perf_counter() - started:.1f} s; its runs are "
                   f"in the view pipeline_run.")
+    console.print("Step 3 of 3: the regional network: each site's de-identified extract "
+                  "(kerma export), merged into a network warehouse (kerma merge) and audited "
+                  "there (kerma audit).")
+    from .network import demo_network
+    demo_network(warehouse, out / "network", key_file, first, last)
     console.print(
         "Ask your own questions, e.g.\n"
         f"  .venv/bin/kerma sql --warehouse {warehouse} "

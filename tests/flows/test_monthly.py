@@ -163,6 +163,13 @@ def test_kerma_demo_runs_through_the_monthly_flow(tmp_path):
     assert (out / "site" / "index.html").exists()
     assert "Committee report written" in result.output
     assert (out / "site" / "report.pdf").read_bytes().startswith(b"%PDF-")
+    # step 3: one extract per site, merged into the network warehouse and audited there
+    import duckdb
+    with duckdb.connect(str(out / "network" / "network.duckdb"), read_only=True) as con:
+        n_extracts, n_sites = con.execute("select count(*), count(distinct site) from network_extract").fetchone()
+        n_groups = con.execute("select count(*) from audit_medians").fetchone()[0]
+    assert n_extracts == n_sites == len(list((out / "network" / "extracts").iterdir())) >= 3
+    assert n_groups > 0
 
 
 def test_kerma_schedule_monthly_serves_until_stopped(inbox, tmp_path, key_file):

@@ -1,0 +1,6 @@
+-- merge: drop the rows of replaced extracts (same site and period) and the reports the incoming
+-- extract carries again (the newest extract wins), then add the incoming rows
+delete from raw_projection_event
+where run_id in (select extract_id from replaced_extract)
+   or sop_instance_uid in (select sop_instance_uid from incoming_dose_object);
+insert or ignore into raw_projection_event by name select * from incoming_projection_event
