@@ -61,7 +61,8 @@ def demo(
 
     The monthly flow (Prefect) ingests the corpus, audits its three months and writes the
     dashboards and the committee report beside them; each flow run is recorded in the view
-    ``pipeline_run``. Then each site's extract is merged into ``network/network.duckdb``,
+    ``pipeline_run``. Then each site ingests its folder of the corpus into a warehouse of its
+    own, exports its extract, and the extracts are merged into ``network/network.duckdb``,
     which is audited.
     """
     import datetime as dt
@@ -107,11 +108,11 @@ def demo(
     console.print(f"Committee report written: {result.site_index.parent / 'report.pdf'}")
     console.print(f"Monthly flow finished in {time.perf_counter() - started:.1f} s; its runs are "
                   f"in the view pipeline_run.")
-    console.print("Step 3 of 3: the regional network: each site's de-identified extract "
-                  "(kerma export), merged into a network warehouse (kerma merge) and audited "
-                  "there (kerma audit).")
+    console.print("Step 3 of 3: the regional network: each site ingests into its own warehouse "
+                  "(kerma ingest), exports a de-identified extract (kerma export), the network "
+                  "merges them (kerma merge) and audits the network warehouse (kerma audit).")
     from .network import demo_network
-    demo_network(warehouse, out / "network", key_file, first, last)
+    demo_network(corpus, out / "network", key_file, first, last, workers=workers)
     console.print(
         "Ask your own questions, e.g.\n"
         f"  .venv/bin/kerma sql --warehouse {warehouse} "

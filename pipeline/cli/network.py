@@ -94,12 +94,15 @@ def merge_command(
                   f"{len(summary.replaced)}. Studies in the network warehouse: {summary.n_studies}.")
 
 
-def demo_network(warehouse: Path, out: Path, key_file: Path, date_from, date_to) -> Path:
-    """The demo's network step: export every site of `warehouse`, merge, audit the network.
+def demo_network(corpus: Path, out: Path, key_file: Path, date_from, date_to,
+                 workers: int = 1) -> Path:
+    """The demo's network step: one warehouse per site, its extract, the merge, the network audit.
 
-    The demo warehouse holds the four invented sites under one key, as four site warehouses
-    ingested with a shared network key would; each site's extract is cut from it by site
-    (``device.site``), so the demo does not ingest the corpus a second time.
+    Each folder of the demo corpus holds one invented site's files (``corpus/TGH`` ...); each
+    is ingested into a warehouse of its own (``out/sites/<folder>.duckdb``) with the demo's key,
+    which stands for a shared network key (so patients link across sites). Every site in a
+    site warehouse is exported (``kerma export --key-scope network``), the extracts are merged
+    into ``out/network.duckdb`` (``kerma merge``) and the network is audited (``kerma audit``).
     """
     import re
     import shutil
@@ -108,6 +111,7 @@ def demo_network(warehouse: Path, out: Path, key_file: Path, date_from, date_to)
     from queries import sql
 
     from ..audit import run_audit
+    from ..ingest import ingest
     from ..network import KeyScope
     from ..network_store import export_site, merge_extracts
     from ..pseudonym import load_key
@@ -115,23 +119,30 @@ def demo_network(warehouse: Path, out: Path, key_file: Path, date_from, date_to)
 
     started = time.perf_counter()
     key = load_key(key_file)
-    with connection(warehouse, read_only=True) as con:
-        sites = [r[0] for r in con.execute(sql("select_sites")).fetchall()]
-    folders = []
-    for site in sites:
-        folder = out / "extracts" / re.sub(r"[^a-z0-9]+", "-", site.lower()).strip("-")
-        if folder.exists():
-            shutil.rmtree(folder)    # the demo's own output of an earlier run
-        folders.append(export_site(warehouse, folder, site=site, date_from=date_from,
-                                   date_to=date_to, key=key, key_scope=KeyScope.NETWORK).out_dir)
+    site_dirs = sorted(p for p in corpus.iterdir() if p.is_dir())
+    folders, loaded = [], 0
+    for site_dir in site_dirs:
+        site_warehouse = out / "sites" / f"{site_dir.name.lower()}.duckdb"
+        site_warehouse.parent.mkdir(parents=True, exist_ok=True)
+        loaded += ingest([site_dir], site_warehouse, key, workers=workers).loaded
+        with connection(site_warehouse, read_only=True) as con:
+            sites = [r[0] for r in con.execute(sql("select_sites")).fetchall()]
+        for site in sites:
+            folder = out / "extracts" / re.sub(r"[^a-z0-9]+", "-", site.lower()).strip("-")
+            if folder.exists():
+                shutil.rmtree(folder)    # the demo's own output of an earlier run
+            folders.append(export_site(site_warehouse, folder, site=site, date_from=date_from,
+                                       date_to=date_to, key=key,
+                                       key_scope=KeyScope.NETWORK).out_dir)
     network = out / "network.duckdb"
     merged = merge_extracts(folders, network)
     summary = run_audit(network, date_from=date_from, date_to=date_to)
-    console.print(f"{len(folders)} site extracts in {out / 'extracts'} (shared network key); "
-                  f"merged into {network}: {len(merged.merged)} new, {len(merged.unchanged)} "
-                  f"already there, {merged.n_studies} studies. Network audit: "
-                  f"{summary.n_groups} room groups, {len(summary.exceedances)} room medians above "
-                  f"their reference level, individual-exam alerts "
+    console.print(f"{len(site_dirs)} site warehouses in {out / 'sites'} ({loaded} dose objects "
+                  f"loaded, one shared network key); {len(folders)} site extracts in "
+                  f"{out / 'extracts'}; merged into {network}: {len(merged.merged)} new, "
+                  f"{len(merged.unchanged)} already there, {merged.n_studies} studies. Network "
+                  f"audit: {summary.n_groups} room groups, {len(summary.exceedances)} room medians "
+                  f"above their reference level, individual-exam alerts "
                   f"{sum(summary.alerts_by_rule.values())} "
                   f"({time.perf_counter() - started:.1f} s).")
     return network
