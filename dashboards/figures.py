@@ -8,6 +8,7 @@ empty frame; the page decides what to show instead.
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from collections.abc import Iterable, Mapping
 from typing import Any
@@ -29,6 +30,7 @@ from .theme import (
 )
 
 __all__ = [
+    "DRIFT_COLOUR",
     "INSUFFICIENT_SYMBOL",
     "LOG_SPAN",
     "build_alert_counts",
@@ -45,7 +47,11 @@ LOG_SPAN = 12.0           # use a log axis when the values span more than this f
 INSUFFICIENT_SYMBOL = "circle-open"
 _ROOM_SYMBOLS = ("circle", "square", "diamond", "triangle-up", "triangle-down", "pentagon",
                  "hexagon", "star")
-_REFERENCE_SET_COLOURS = (REFERENCE_COLOUR, PALETTE[6], PALETTE[4])
+# Reference levels and thresholds are black or grey, never a site's colour; sets differ by shape.
+_REFERENCE_SET_MARKS = (("line-ns", REFERENCE_COLOUR), ("x-thin", REFERENCE_COLOUR),
+                        ("cross-thin", NETWORK_COLOUR))
+DRIFT_COLOUR = "#555555"
+_PHANTOM_SHORT = {"head_16cm": "16 cm", "body_32cm": "32 cm", "mixed": "mixed phantoms"}
 _PHANTOMS = {"head_16cm": "16 cm head phantom", "body_32cm": "32 cm body phantom",
              "mixed": "mixed phantoms"}
 
@@ -71,6 +77,14 @@ def _fmt(value: Any, digits: int = 3) -> str:
     magnitude = math.floor(math.log10(abs(v)))
     decimals = max(0, digits - 1 - magnitude)
     return f"{v:,.{decimals}f}"
+
+
+def _stratum_short(stratum: Any) -> str:
+    """' · 15-<30 kg' for 'weight 15-<30 kg' (the band's unit says what it is); '' for none."""
+    if _missing(stratum):
+        return ""
+    kind, _, band = str(stratum).partition(" ")
+    return f" · {band if any(c.isdigit() for c in band) else stratum}"
 
 
 def _phantom_text(phantom: Any) -> str:
@@ -132,11 +146,12 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                      "reference_set", "network_p75", "is_sample_adequate"],
              "build_reference_comparison")
     rows = frame.reset_index(drop=True)
-    exam_axis = [f"{e} ({_phantom_text(p)})" if not _missing(p) else str(e)
+    exam_axis = [f"{e} · {_PHANTOM_SHORT.get(str(p), str(p))}" if not _missing(p) else str(e)
                  for e, p in zip(rows["exam_label"], rows["phantom"], strict=True)]
-    room_axis = [f"{r} · {s} · n {int(n)}" + ("" if bool(a) else " (too few)")
-                 for r, s, n, a in zip(rows["room_label"], rows["site_label"], rows["n"],
-                                       rows["is_sample_adequate"], strict=True)]
+    # short row labels (room and n); the site is the marker's colour, named in the legend
+    strata = rows["stratum"] if "stratum" in rows.columns else [None] * len(rows)
+    room_axis = [f"{r}{_stratum_short(b)} (n {int(n)})"
+                 for r, b, n in zip(rows["room_label"], strata, rows["n"], strict=True)]
     quantity, unit = str(rows["quantity"].iloc[0]), rows["unit"].iloc[0]
     fig = go.Figure()
     # An invisible first trace fixes the category order to the rows' order (exam, then room).
@@ -144,7 +159,9 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                              mode="markers", marker={"opacity": 0}, showlegend=False,
                              hoverinfo="skip", name=""))
     for site in sorted(rows["site_label"].unique()):
-        idx = [i for i in range(len(rows)) if rows["site_label"].iloc[i] == site]
+        # adequate samples first: the legend shows the first point's (filled) marker
+        idx = sorted((i for i in range(len(rows)) if rows["site_label"].iloc[i] == site),
+                     key=lambda i: not bool(rows["is_sample_adequate"].iloc[i]))
         adequate = [bool(rows["is_sample_adequate"].iloc[i]) for i in idx]
         med = [_num(rows["median"].iloc[i]) for i in idx]
         lo = [_num(rows["median_ci_low"].iloc[i]) for i in idx]
@@ -158,8 +175,8 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                     "line": {"color": colour, "width": 2}},
             error_x={"type": "data", "symmetric": False, "color": colour, "thickness": 1.5,
                      "width": 4,
-                     "array": [0.0 if h is None or m is None else _num(h - m) for h, m in zip(hi, med, strict=True)],
-                     "arrayminus": [0.0 if w is None or m is None else _num(m - w) for w, m in zip(lo, med, strict=True)]},
+                     "array": [None if h is None or m is None else _num(h - m) for h, m in zip(hi, med, strict=True)],
+                     "arrayminus": [None if w is None or m is None else _num(m - w) for w, m in zip(lo, med, strict=True)]},
             customdata=[[int(rows["n"].iloc[i]), _fmt(lo[k]), _fmt(hi[k]),
                          "adequate" if adequate[k] else "below the audit minimum"]
                         for k, i in enumerate(idx)],
@@ -170,12 +187,13 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     by_use = rows["reference_set"].dropna().value_counts()
     for k, ref_set in enumerate(sorted(by_use.index, key=lambda v: (-int(by_use[v]), str(v)))):
         sel = rows.index[rows["reference_set"] == ref_set].tolist()
+        symbol, colour = _REFERENCE_SET_MARKS[k % len(_REFERENCE_SET_MARKS)]
         fig.add_trace(go.Scatter(
             name=f"Reference level ({ref_set})", mode="markers",
             x=[_num(rows["reference_value"].iloc[i]) for i in sel],
             y=[[exam_axis[i] for i in sel], [room_axis[i] for i in sel]],
-            marker={"symbol": "line-ns", "size": 22,
-                    "line": {"color": _REFERENCE_SET_COLOURS[k % len(_REFERENCE_SET_COLOURS)], "width": 3}},
+            marker={"symbol": symbol, "size": 22, "color": colour,
+                    "line": {"color": colour, "width": 3}},
             hovertemplate="reference level %{x:.4g} " + unit_label(unit) + f"<extra>{ref_set}</extra>",
         ))
     sel = rows.index[rows["network_p75"].notna()].tolist()
@@ -194,9 +212,14 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     fig.update_xaxes(title={"text": "Room median with 95 % CI: " + axis_title(quantity, unit)
                                     + (", log scale" if log else "")},
                      type="log" if log else "linear", **(_log_ticks(values) if log else {}))
-    fig.update_yaxes(title={"text": "Exam type · room · site (n: exams in the period)"},
-                     type="multicategory", autorange="reversed")
-    return _layout(fig, title, height=max(150, 90 + 26 * len(rows)))
+    fig.update_yaxes(title={"text": "Exam type · room (n: exams in the period)"},
+                     type="multicategory", autorange="reversed", tickfont={"size": 11})
+    fig = _layout(fig, title, height=max(150, 90 + 24 * len(rows)))
+    # the legend above the plot, not beside it: the data area keeps most of the width
+    fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
+                              "yanchor": "bottom"},
+                      margin={"t": 96, "r": 16})
+    return fig
 
 
 # --- distributions --------------------------------------------------------------------------
@@ -248,11 +271,24 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
             f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
         for population in present:
+            colour = POPULATION_COLOURS.get(population, PALETTE[2])
+            single = part[(part["population"] == population) & (part["n"] == 1)]
+            if not single.empty:    # one exam: a point, not a box of five equal quantiles
+                name = f"{population}, a single exam"
+                fig.add_trace(go.Scatter(
+                    name=name, legendgroup=name, showlegend=name not in legend_done, mode="markers",
+                    x=[labels[(s, r)] for s, r in zip(single["site_label"], single["room_label"], strict=True)],
+                    y=[_num(v) for v in single["median"]],
+                    marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
+                            "line": {"color": colour, "width": 2}},
+                    hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
+                ), row=1, col=col)
+                legend_done.add(name)
             for adequate in (True, False):
-                sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)]
+                sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)
+                           & (part["n"] > 1)]
                 if sel.empty:
                     continue
-                colour = POPULATION_COLOURS.get(population, PALETTE[2])
                 name = population if adequate else f"{population}, sample below the audit minimum"
                 fig.add_trace(go.Box(
                     name=name, legendgroup=name, showlegend=name not in legend_done,
@@ -294,8 +330,12 @@ def _alpha(hex_colour: str, alpha: float) -> str:
 
 
 # --- trends -------------------------------------------------------------------------------
-def _month_mid(month: str) -> str:
-    return f"{month}-15"
+def _month_mid(month: str, offset_days: float = 0.0) -> str:
+    """Mid-month as an ISO date-time, moved by `offset_days` (dodging rooms within a month)."""
+    if not offset_days:
+        return f"{month}-15"
+    moment = dt.datetime.fromisoformat(f"{month}-15T12:00:00") + dt.timedelta(days=offset_days)
+    return moment.isoformat(timespec="minutes")
 
 
 def _month_end(month: str) -> str:
@@ -334,6 +374,10 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     for s, r in sorted(set(zip(frame["site_label"], frame["room_label"], strict=True))):
         rooms_by_site.setdefault(s, []).append(r)
     shown: set[str] = set()
+    all_rooms = [(s, r) for s in sorted(rooms_by_site) for r in rooms_by_site[s]]
+    # rooms side by side within a month (dodged), so their interquartile bars never overlap
+    step = min(3.0, 22.0 / max(1, len(all_rooms)))
+    dodge = {room: (i - (len(all_rooms) - 1) / 2.0) * step for i, room in enumerate(all_rooms)}
     for row, (quantity, phantom) in enumerate(panels, start=1):
         part = _panel_rows(frame, quantity, phantom)
         unit = part["unit"].iloc[0]
@@ -347,7 +391,7 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
                 med = [_num(v) for v in series["median"]]
                 fig.add_trace(go.Scatter(
                     name=name, legendgroup=name, showlegend=name not in shown,
-                    mode="lines+markers", x=[_month_mid(m) for m in series["month"]], y=med,
+                    mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in series["month"]], y=med,
                     line={"color": colour, "width": 2, "dash": ("solid", "dot", "dash")[k % 3]},
                     marker={"color": colour, "size": 8, "symbol": _ROOM_SYMBOLS[k % len(_ROOM_SYMBOLS)]},
                     error_y={"type": "data", "symmetric": False, "color": colour, "thickness": 1,
@@ -374,12 +418,12 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         for k, flag in enumerate(ordered.itertuples(index=False)):
             x = f"{flag.change_month}-01"
             fig.add_shape(type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
-                          line={"color": PALETTE[3], "dash": "dashdot", "width": 2})
+                          line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2})
             change = (float(flag.ratio_after_to_before) - 1.0) * 100.0
             fig.add_annotation(x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
                                text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
                                showarrow=False, xanchor="left", yanchor="top", xshift=4,
-                               font={"size": 10, "color": PALETTE[3]}, bgcolor="rgba(255,255,255,0.85)")
+                               font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)")
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
@@ -478,6 +522,8 @@ def build_alert_counts(frame: pd.DataFrame, *, site_colours: Mapping[str, str], 
     """Alerts per rule, stacked by site. Expects rows of ``dash_alert_counts.sql``
     (rule, site_label, n_alerts)."""
     _require(frame, ["rule", "site_label", "n_alerts"], "build_alert_counts")
+    if "rule_text" in frame.columns:    # the rule in plain words (pipeline.report.words)
+        frame = frame.assign(rule=frame["rule_text"])
     rules = sorted(frame["rule"].unique())
     fig = go.Figure()
     for site in sorted(frame["site_label"].unique()):
@@ -518,11 +564,12 @@ def build_file_status(frame: pd.DataFrame, *, title: str) -> go.Figure:
     (status, reason, n_files). Logarithmic when loaded files dwarf the rest."""
     _require(frame, ["status", "reason", "n_files"], "build_file_status")
     labels = [f"{s}: {r}" if r else str(s) for s, r in zip(frame["status"], frame["reason"], strict=True)]
-    colours = {"loaded": PALETTE[2], "duplicate": PALETTE[5], "not_dose": PALETTE[1],
-               "quarantined": PALETTE[3]}
+    # the status is written on each bar's row; colour only separates unused files (grey) from
+    # loaded ones (dark), so no site colour gets a second meaning on the page
+    colours = {"loaded": "#444444"}
     fig = go.Figure(go.Bar(
         orientation="h", y=labels, x=[int(v) for v in frame["n_files"]], name="files",
-        marker={"color": [colours.get(str(s), PALETTE[7]) for s in frame["status"]]},
+        marker={"color": [colours.get(str(s), NETWORK_COLOUR) for s in frame["status"]]},
         text=[str(int(v)) for v in frame["n_files"]], textposition="outside",
         hovertemplate="%{y}: %{x} files<extra></extra>", showlegend=False,
     ))
