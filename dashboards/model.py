@@ -89,6 +89,7 @@ class Column:
     key: str
     label: str
     kind: str = "text"
+    sub: tuple[tuple[str, str], ...] = ()   # (label, key): more values in small type below
 
 
 @dataclass(frozen=True)

@@ -108,11 +108,12 @@ def _table_rows(table: Table) -> list[dict[str, Any]]:
                 low, high = (row[k] for k in c.key.split("..", 1))
                 text = "–" if is_missing(low) or is_missing(high) else \
                     f"{cell_text(low, 'value', row).split(' ')[0]}\u2013{cell_text(high, 'value', row)}"
-                cells.append({"text": text, "cls": "n", "raw": None, "kind": c.kind})
+                cells.append({"text": text, "cls": "n", "raw": None, "kind": c.kind, "sub": []})
                 continue
             value = row[c.key]
             cells.append({"text": cell_text(value, c.kind, row), "cls": _cell_class(c.kind),
-                          "raw": None if is_missing(value) else str(value), "kind": c.kind})
+                          "raw": None if is_missing(value) else str(value), "kind": c.kind,
+                          "sub": [(label, str(row[k])) for label, k in c.sub if not is_missing(row[k])]})
         rows.append({"cells": cells, "flags": table.flags(row) if table.flags else []})
     return rows
 

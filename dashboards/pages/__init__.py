@@ -14,12 +14,8 @@ import pandas as pd
 from ..model import CAUTIONS, PAGES, Context, DataLink, Page, Site, SiteData, Table
 from ..render import render_page
 from ..theme import PALETTE, colour_map
-from .alerts import alerts
+from . import alerts, overview, quality, reference, trends
 from .common import ALERT_COLUMNS, alert_rows, drift_table
-from .overview import overview
-from .quality import data_quality
-from .reference import distributions, reference_levels
-from .trends import sites, trends
 
 __all__ = ["ALERT_COLUMNS", "CAUTIONS", "PAGES", "alert_rows", "build_pages", "build_site"]
 
@@ -48,8 +44,9 @@ def build_pages(data: SiteData, ctx: Context) -> list[Page]:
     """Every page's record, in navigation order."""
     colours = _site_colours(data.devices)
     drift = drift_table(data.drift)
-    return [overview(data, ctx, drift), reference_levels(data, colours), distributions(data),
-            trends(data, colours, drift), sites(data, colours), alerts(data, colours), data_quality(data)]
+    return [overview.overview(data, ctx, drift), reference.reference_levels(data, colours),
+            reference.distributions(data), trends.trends(data, colours, drift),
+            trends.sites(data, colours), alerts.alerts(data, colours), quality.data_quality(data)]
 
 
 def build_site(data: SiteData, ctx: Context) -> Site:

@@ -69,12 +69,14 @@ ALERT_COLUMNS = (
     Column("action_text", "Action"),
     Column("study_date", "Date", "date"), Column("study_key", "Study (pseudonym)", "study"),
     Column("patient_key", "Patient (pseudonym)", "key"), Column("site_label", "Site"),
-    Column("room_label", "Room"), Column("exam_label", "Exam type"), Column("rule_text", "Rule"),
+    Column("room_label", "Room"), Column("exam_label", "Exam type"),
+    # the source says "from memory" when the threshold is not verified (CSV: threshold_verified)
+    Column("rule_text", "Rule (source of the threshold; how the value was computed)",
+           sub=(("Source", "source"), ("Value", "method"))),
     Column("quantity", "Quantity", "quantity"), Column("value_text", "Value", "text_num"),
     Column("threshold_text", "Threshold", "text_num"),
-    Column("factor", "× threshold", "ratio"), Column("method", "How the value was computed", "long"),
-    Column("source", "Source of the threshold", "long"),   # says "from memory" when not verified
-    Column("latest_note", "Latest review note", "long"), Column("item_id", "Item", "key"),
+    Column("factor", "× threshold", "ratio"),
+    Column("latest_note", "Latest review note"), Column("item_id", "Item", "key"),
 )
 
 
