@@ -257,11 +257,12 @@ def test_a_description_with_a_script_tag_is_escaped_on_the_page(marts):
 
 
 def test_public_api():
+    from dashboards.figures import common as figure_common, counts, levels, series
     from dashboards.pages import alerts, common, overview, quality, reference, trends
 
     assert dashboards.__all__ == ["write_site"]
     for module in (figures, model, pages, render, site_module, theme, alerts, common, overview,
-                   quality, reference, trends):
+                   quality, reference, trends, figure_common, counts, levels, series):
         assert sorted(module.__all__) == sorted(set(module.__all__))
         assert all(hasattr(module, name) for name in module.__all__)
 
