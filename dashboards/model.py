@@ -97,7 +97,8 @@ class Table:
     """A table on a page; `rows` is written in full as `<name>.csv` beside the page.
 
     `note` is the key of a note in the page's template (shown under the caption); `flags`
-    gives the words of the flag column of a row.
+    gives the words of the flag column of a row; a "study" cell links to the study's details
+    on the alerts page when its key is in `details`.
     """
 
     name: str
@@ -107,6 +108,7 @@ class Table:
     note: str = ""
     max_rows: int = MAX_TABLE_ROWS
     flags: Callable[[pd.Series], list[str]] | None = None
+    details: frozenset[str] = frozenset()   # study keys with a details section (kind "study")
 
 
 @dataclass(frozen=True)

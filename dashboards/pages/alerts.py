@@ -12,9 +12,11 @@ from ..model import MAX_TABLE_ROWS, Block, Column, DataLink, Note, Page, Plot, S
 from ..render import cell_text
 from .common import ALERT_COLUMNS, alert_rows, empty
 
-__all__ = ["EVENT_COLUMNS", "MAX_STUDY_EVENTS", "StudyDetail", "alerts", "rule_counts", "study_details"]
+__all__ = ["EVENT_COLUMNS", "MAX_DETAIL_STUDIES", "MAX_STUDY_EVENTS", "StudyDetail", "alerts",
+           "detail_studies", "rule_counts", "study_details"]
 
-MAX_STUDY_EVENTS = 60   # events listed per study on the page; alert-events.csv has all of them
+MAX_STUDY_EVENTS = 40    # events listed per study on the page; alert-events.csv has all of them
+MAX_DETAIL_STUDIES = 60  # studies with details on the page (the most urgent first)
 
 EVENT_COLUMNS = (
     Column("started_at", "Started", "datetime"), Column("event_type", "Event type"),
@@ -38,11 +40,20 @@ class StudyDetail:
     n_events: int
 
 
+def detail_studies(listing: pd.DataFrame) -> list[str]:
+    """The studies that get a details section: the first ``MAX_DETAIL_STUDIES`` distinct
+    studies of the alert list in its order (most urgent first)."""
+    if listing.empty:
+        return []
+    return [str(k) for k in listing["study_key"].head(MAX_TABLE_ROWS).drop_duplicates().head(MAX_DETAIL_STUDIES)]
+
+
 def study_details(listing: pd.DataFrame, events: pd.DataFrame) -> list[StudyDetail]:
-    """A detail per study of the alerts shown on the page (in their order), each with up to
+    """A detail per study of ``detail_studies`` (in their order), each with up to
     ``MAX_STUDY_EVENTS`` events (protocol, CTDIvol and DLP per CT acquisition, DAP and Ka,r
     per projection event)."""
-    shown = listing.head(MAX_TABLE_ROWS)
+    keys = detail_studies(listing)
+    shown = listing[listing["study_key"].isin(keys)] if keys else listing.head(0)
     by_study = {k: g for k, g in events.groupby("study_key", sort=False)} if not events.empty else {}
     out = []
     for key, fired in shown.groupby("study_key", sort=False):
@@ -94,13 +105,15 @@ def alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
                     Column("n_studies", "Studies", "int")))
     listing_rows = alert_rows(data.alerts)
     listing = Table("alerts", "Every alert, patient follow-up first, then furthest beyond its threshold",
-                    listing_rows, ALERT_COLUMNS, note="alert-list")
+                    listing_rows, ALERT_COLUMNS, note="alert-list",
+                    details=frozenset(detail_studies(listing_rows)))
     details = study_details(listing_rows, data.alert_events)
     sections = [Section("counts", "By rule and site", (*blocks, counts)),
                 Section("list", "Alert list", (listing,)),
                 Section("events", "Study details: the events of each alerted study",
                         (Note("studies", {"studies": details, "columns": EVENT_COLUMNS,
-                                          "max_events": MAX_STUDY_EVENTS}),
+                                          "n_studies": int(listing_rows["study_key"].nunique())
+                                          if not listing_rows.empty else 0}),
                          DataLink("alert-events", "irradiation events of every study with an alert",
                                   data.alert_events)))]
     if not data.skin_dose_maps.empty:

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from ..model import Block, Column, Context, Note, Page, Section, SiteData, Table
+from .alerts import detail_studies
 from .common import ALERT_COLUMNS, DATA_ALERT_COLUMNS, NO_DATA, ROOM_COLUMNS, alert_rows, empty, \
     first_int, room_flags
 
@@ -97,8 +98,10 @@ def overview(data: SiteData, ctx: Context, drift: Table) -> Page:
                   Column("version", "Version"), Column("effective_date", "Effective", "date"),
                   Column("citation_title", "Source"), Column("is_verified", "Verified", "bool"),
                   Column("n_groups", "Groups compared", "int")))
+    listing = alert_rows(data.alerts)
     alerts = Table("overview-top-alerts", "The ten most urgent alerts (patient follow-up first)",
-                   alert_rows(data.alerts).head(10), ALERT_COLUMNS, note="top-alerts")
+                   listing.head(10), ALERT_COLUMNS, note="top-alerts",
+                   details=frozenset(detail_studies(listing)))
     title = "Monthly dose audit: overview" if ctx.is_one_month else "Dose audit of the period: overview"
     return Page(
         "index.html", "Overview", title,
