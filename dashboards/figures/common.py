@@ -122,10 +122,39 @@ def _panel_rows(frame: pd.DataFrame, quantity: str, phantom: Any) -> pd.DataFram
     return frame[(frame["quantity"] == quantity) & same_phantom]
 
 
+def _min_s(seconds: float) -> str:
+    total = round(seconds)
+    return f"{total // 60}:{total % 60:02d}"
+
+
+def _value_ticks(values: Iterable[Any], unit: Any, log: bool) -> dict[str, Any]:
+    """Ticks of a value axis: full values on a log axis; fluoroscopy time (unit s) as min:s at
+    whole minutes (linear) or at the log ticks."""
+    if unit != "s":
+        return _log_ticks(values) if log else {}
+    positive = [float(v) for v in values if not _missing(v) and float(v) > 0]
+    if not positive:
+        return {}
+    if log:   # whole seconds, then whole minutes
+        lo, hi = min(positive) / 1.3, max(positive) * 1.3
+        ticks = [float(t) for t in (1, 2, 5, 10, 15, 30, 60, 120, 300, 600, 900, 1800, 3600, 7200, 14400)
+                 if lo <= t <= hi]
+        return {"tickvals": ticks, "ticktext": [_min_s(t) for t in ticks]}
+    hi = max(positive)
+    step = next((m for m in (30, 60, 120, 300, 600, 900, 1800, 3600, 7200) if hi / m <= 8), 14400)
+    ticks = [float(step * k) for k in range(int(hi // step) + 2)]
+    return {"tickvals": ticks, "ticktext": [_min_s(t) for t in ticks]}
+
+
+def _unit_text(unit: Any) -> str:
+    """Unit on an axis title: 'min:s' for a time in seconds (ticks in min:s)."""
+    return "min:s" if unit == "s" else unit_label(unit)
+
+
 def _panel_axis_title(quantity: str, unit: Any, phantom: Any, log: bool, prefix: str = "") -> str:
     """'CTDIvol, 16 cm head phantom (mGy), log scale'."""
     name = quantity_name(quantity) + (f", {_phantom_text(phantom)}" if phantom else "")
-    return f"{prefix}{name} ({unit_label(unit)})" + (", log scale" if log else "")
+    return f"{prefix}{name} ({_unit_text(unit)})" + (", log scale" if log else "")
 
 
 def _alpha(hex_colour: str, alpha: float) -> str:

@@ -13,7 +13,7 @@ from ..theme import (
     PALETTE,
     POPULATION_COLOURS,
     REFERENCE_COLOUR,
-    axis_title,
+    quantity_name,
     unit_label,
 )
 from .common import (
@@ -24,7 +24,8 @@ from .common import (
     _alpha,
     _fmt,
     _layout,
-    _log_ticks,
+    _unit_text,
+    _value_ticks,
     _missing,
     _num,
     _panel_axis_title,
@@ -118,9 +119,9 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     values = [*rows["median_ci_low"], *rows["median_ci_high"], *rows["median"],
               *rows["reference_value"], *rows["network_p75"]]
     log = _wants_log(values)
-    fig.update_xaxes(title={"text": "Room median with 95 % CI: " + axis_title(quantity, unit)
+    fig.update_xaxes(title={"text": "Room median with 95 % CI: " + f"{quantity_name(quantity)} ({_unit_text(unit)})"
                                     + (", log scale" if log else "")},
-                     type="log" if log else "linear", **(_log_ticks(values) if log else {}))
+                     type="log" if log else "linear", **_value_ticks(values, unit, log))
     fig.update_yaxes(title={"text": "Exam type · room (n: exams in the period)"},
                      type="multicategory", autorange="reversed", tickfont={"size": 11})
     fig = _layout(fig, title, height=max(150, 90 + 24 * len(rows)))
@@ -204,7 +205,7 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         values = [*part["p05"], *part["p95"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, phantom, log)},
-                         type="log" if log else "linear", **(_log_ticks(values) if log else {}),
+                         type="log" if log else "linear", **_value_ticks(values, unit, log),
                          row=1, col=col)
         fig.update_xaxes(title={"text": "Room · site (n adult / paediatric exams)"}, type="category",
                          row=1, col=col)

@@ -30,6 +30,7 @@ from .common import (
     _panels,
     _require,
     _site_colour,
+    _value_ticks,
     _wants_log,
 )
 
@@ -134,7 +135,7 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
-                         type="log" if log else "linear", **(_log_ticks(values) if log else {}),
+                         type="log" if log else "linear", **_value_ticks(values, unit, log),
                          row=row, col=1)
         fig.update_xaxes(title={"text": "Month of study (calendar month)"}, type="date",
                          tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],

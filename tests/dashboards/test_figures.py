@@ -267,3 +267,13 @@ def test_log_axes_label_ticks_with_full_values():
     wide.loc[2, ["median", "median_ci_low", "median_ci_high", "network_p75"]] = [20.0, 15.0, 25.0, 22.0]
     x = figures.build_reference_comparison(wide, site_colours=SITES, title="t").layout.xaxis
     assert list(x.ticktext) == ["20", "50", "100", "200", "500", "1,000"]
+
+
+def test_fluoroscopy_time_axes_read_min_s():
+    rows = _room_medians().assign(quantity="fluoro_time", unit="s")
+    rows[["median", "median_ci_low", "median_ci_high", "reference_value", "network_p75"]] = [
+        [300.0, 240.0, 360.0, 600.0, 420.0], [700.0, None, None, 600.0, 420.0],
+        [250.0, 200.0, 290.0, None, 260.0]]
+    axis = figures.build_reference_comparison(rows, site_colours=SITES, title="t").layout.xaxis
+    assert axis.title.text.endswith("Fluoroscopy time (min:s)")
+    assert list(axis.ticktext[:4]) == ["0:00", "2:00", "4:00", "6:00"] and axis.tickvals[1] == 120.0
