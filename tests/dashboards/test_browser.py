@@ -184,3 +184,20 @@ def test_dates_never_wrap(wide, site):
                            "e.getBoundingClientRect().height])")
     assert len(styles) > 10
     assert {s for s, _, _ in styles} == {"nowrap"}
+
+
+def test_print_media_keeps_study_details_and_reference_table_whole(browser, site):
+    """Print media: no scroll box on the reference-levels table or the study details, and the
+    date cells still never wrap."""
+    for page in ("reference-levels.html", "alerts.html"):
+        browser.open(site / page)
+        browser.call("Emulation.setEmulatedMedia", media="print")
+        try:
+            overflow = browser.evaluate(
+                "Array.from(document.querySelectorAll('.scroll')).map(e => getComputedStyle(e).overflowX)")
+            dates = browser.evaluate(
+                "Array.from(document.querySelectorAll('td.date')).map(e => getComputedStyle(e).whiteSpace)")
+        finally:
+            browser.call("Emulation.setEmulatedMedia", media="")
+        assert overflow and set(overflow) == {"visible"}, page
+        assert set(dates) <= {"nowrap"}, page

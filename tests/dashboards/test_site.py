@@ -348,3 +348,35 @@ def test_titles_follow_the_period(site):
     """The session site covers Sep-Nov 2026: not a calendar month, so never titled "Monthly"."""
     index = _html(site, "index.html")
     assert "<h1>Dose audit of the period: overview</h1>" in index and "Monthly dose audit" not in index
+
+
+def _plot_data(html: str) -> list[tuple[str, list]]:
+    """(div id, traces) of every Plotly.newPlot call in a page."""
+    decoder, out = json.JSONDecoder(), []
+    for match in re.finditer(r'Plotly\.newPlot\(\s*"([^"]+)",\s*', html):
+        data, _ = decoder.raw_decode(html, match.end())
+        out.append((match.group(1), data))
+    return out
+
+
+def test_reference_plots_row_labels_are_short_and_the_site_is_in_the_legend(site, marts):
+    data = marts[0]
+    sites = set(data.devices["site_label"])
+    plots = _plot_data(_html(site, "reference-levels.html"))
+    assert len(plots) > 5
+    for div_id, traces in plots:
+        rows = {label for t in traces if isinstance(t.get("y"), list) and len(t["y"]) == 2
+                for label in t["y"][1]}
+        assert rows and all(re.fullmatch(r"\S+( · [^()]+)? \(n \d+\)", r) for r in rows), (div_id, rows)
+        assert not any(s in r for s in sites for r in rows), div_id
+        names = {t.get("name") for t in traces}
+        assert names & sites, div_id                       # the legend names the sites
+
+
+def test_single_exam_groups_are_points_on_the_distribution_page(site):
+    dist = pd.read_csv(site / "distributions.csv")
+    assert (dist["n"] == 1).any()          # the 320-study corpus has single-exam paediatric groups
+    traces = [t for _, ts in _plot_data(_html(site, "distributions.html")) for t in ts]
+    points = [t for t in traces if t.get("type") == "scatter" and t.get("name", "").endswith("a single exam")]
+    assert points and all(t["mode"] == "markers" for t in points)
+    assert sum(len(t["y"]) for t in points) == int((dist["n"] == 1).sum())
