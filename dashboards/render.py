@@ -79,6 +79,8 @@ def cell_text(value: Any, kind: str, row: Any = None) -> str:
         return quantity_name(str(value))
     if kind == "bool":
         return "yes" if bool(value) else "no"
+    if kind == "long":   # ids and set names may break after an underscore (zero-width space)
+        return str(value).replace("_", "_\u200b")
     return str(value)
 
 

@@ -122,9 +122,9 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     fig.update_xaxes(title={"text": "Room median with 95 % CI: " + f"{quantity_name(quantity)} ({_unit_text(unit)})"
                                     + (", log scale" if log else "")},
                      type="log" if log else "linear", **_value_ticks(values, unit, log))
-    fig.update_yaxes(title={"text": "Exam type · room (n: exams in the period)"},
+    fig.update_yaxes(title={"text": "Exam type · room (n exams)"},
                      type="multicategory", autorange="reversed", tickfont={"size": 11})
-    fig = _layout(fig, title, height=max(150, 90 + 24 * len(rows)))
+    fig = _layout(fig, title, height=max(200, 90 + 24 * len(rows)))
     # the legend above the plot, not beside it: the data area keeps most of the width
     fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
                               "yanchor": "bottom"},
