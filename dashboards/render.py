@@ -36,18 +36,27 @@ def _sig(value: float, digits: int = 3) -> str:
     return f"{value:,.{decimals}f}".replace(",", "\u2009")
 
 
-def _min_s(seconds: float) -> str:
-    total = round(seconds)
-    return f"{total // 60}:{total % 60:02d}"
-
-
 def cell_text(value: Any, kind: str, row: Any = None) -> str:
     """Display text of one value (plain text; the template escapes it).
 
+    Parameters
+    ----------
+    value
+        The cell's value; SQL NULL shows as an en dash.
+    kind
+        How to format it (``dashboards.model.Column.kind``).
+    row
+        The whole row, for kinds that need its ``unit`` and ``quantity`` ("value").
+
+    Returns
+    -------
+    str
+        The text shown; fluoroscopy time as min:s (``pipeline.report.words.format_value``).
+
     >>> cell_text(4080.0, "value", {"unit": "s", "quantity": "fluoro_time"})
     '68:00 min:s'
-    >>> cell_text(12345, "int")
-    '12\u200934\u2009345'
+    >>> cell_text(1.234, "ratio")
+    '1.23'
     """
     if is_missing(value):
         return "–"
@@ -58,7 +67,8 @@ def cell_text(value: Any, kind: str, row: Any = None) -> str:
     if kind == "value":
         unit = None if row is None or is_missing(row.get("unit")) else str(row.get("unit"))
         if unit == "s" or (row is not None and row.get("quantity") == "fluoro_time"):
-            return f"{_min_s(float(value))} min:s"
+            from pipeline.report.words import format_value   # the report's min:s, shared
+            return format_value(float(value), "s", "fluoro_time")
         return _sig(float(value)) + (f" {unit_label(unit)}" if unit else "")
     if kind == "ratio":
         return f"{float(value):.2f}"
