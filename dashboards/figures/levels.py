@@ -128,7 +128,10 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     # the legend above the plot, not beside it: the data area keeps most of the width
     fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
                               "yanchor": "bottom"},
-                      margin={"t": 96, "r": 16})
+                      margin={"t": 96, "r": 16, "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))})
+    # a fixed left margin from the labels' length: plotly's automargin re-lays out every
+    # multicategory plot several times, the main cost of drawing this page
+    fig.update_yaxes(automargin=False)
     return fig
 
 
