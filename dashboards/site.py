@@ -22,7 +22,8 @@ from plotly.offline import get_plotlyjs
 
 from queries import sql
 
-from .pages import PLOTLY_JS, Context, SiteData, build_site
+from .model import PLOTLY_JS, Context, SiteData
+from .pages import build_site
 
 __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
 
@@ -101,6 +102,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
     params = {**bounds, "adult_min_age": adult_min_age if adult_min_age is not None
               else AuditSettings().adult_min_age_years}
+    con.register("dash_period_file", q("dash_period_files", **params))
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
@@ -121,8 +123,10 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         **_capture_frames(con, q),
         skin_dose_maps=q("dash_skin_dose_maps"),
         alert_events=q("dash_alert_events"),
+        device_studies=q("dash_device_studies", **params),
     )
-    for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point"):
+    for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
+                 "dash_period_file"):
         con.unregister(name)
     return data, label, first, last, q("dash_reference_sets")
 

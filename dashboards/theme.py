@@ -58,6 +58,7 @@ QUANTITY_NAMES: dict[str, str] = {
     "entrance_dose": "Entrance dose",
     "effective_dose": "Effective dose (estimate)",
     "ssde": "SSDE",
+    "peak_skin_dose": "Peak skin dose (estimate)",
 }
 QUANTITY_LONG: dict[str, str] = {
     "dlp": "Dose-length product (DLP)",
@@ -70,6 +71,7 @@ QUANTITY_LONG: dict[str, str] = {
     "entrance_dose": "Entrance dose from image headers (not Ka,e unless derived as ESAK)",
     "effective_dose": "Effective dose (population-average estimate)",
     "ssde": "Size-specific dose estimate (SSDE)",
+    "peak_skin_dose": "Peak skin dose (estimate, NCRP 168)",
 }
 
 _UNITS: dict[str, str] = {

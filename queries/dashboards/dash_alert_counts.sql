@@ -1,10 +1,16 @@
--- grain: one row per alert rule x site: number of alerts and of distinct studies
+-- grain: one row per alert rule x site: number of alerts and of distinct studies, with the
+-- rule's family, quantity, unit and fixed threshold (NULL when computed per room) for its
+-- plain words
 select
     a.rule,
+    any_value(a.family) as family,
+    any_value(a.quantity) as quantity,
+    any_value(a.unit) as unit,
+    case when count(distinct a.threshold) = 1 then max(a.threshold) end as threshold,
     coalesce(d.site_label, a.site, '(site not known)') as site_label,
     count(*) as n_alerts,
     count(distinct a.study_key) as n_studies
 from dose_alerts as a
 left join dash_device as d on d.device_key = a.device_key
-group by all
+group by a.rule, coalesce(d.site_label, a.site, '(site not known)')
 order by a.rule, site_label

@@ -1,4 +1,5 @@
--- grain: one row: the headline counts of the audit period (each links to its page)
+-- grain: one row: the headline counts of the audit period (each links to its page); files are
+-- those of the period (dash_period_file, the frame of dash_period_files.sql)
 select
     (select count(distinct study_key) from study_dose
       where study_date >= $date_from and study_date < $date_to) as n_studies,
@@ -24,6 +25,6 @@ select
     (select count(*) from dose_alerts) as n_alerts,
     (select count(distinct study_key) from dose_alerts) as n_alert_studies,
     (select count(*) from drift_flags) as n_drift_flags,
-    (select count(*) from source_object) as n_files,
-    (select count(*) filter (where status = 'quarantined') from source_object) as n_quarantined,
-    (select count(*) filter (where status = 'not_dose') from source_object) as n_not_dose
+    (select count(*) from dash_period_file) as n_files,
+    (select count(*) filter (where status = 'quarantined') from dash_period_file) as n_quarantined,
+    (select count(*) filter (where status = 'not_dose') from dash_period_file) as n_not_dose

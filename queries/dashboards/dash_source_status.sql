@@ -1,9 +1,10 @@
--- grain: one row per file status x reason over every ingest run in the warehouse (source_object)
+-- grain: one row per file status x reason over the files of the audit period (dash_period_file,
+-- the frame of dash_period_files.sql)
 with
 counted as (
     select status, coalesce(reason, '') as reason, count(*) as n_files,
            sum(size_bytes) as size_bytes
-    from source_object
+    from dash_period_file
     group by status, coalesce(reason, '')
 )
 select status, reason, n_files, size_bytes

@@ -57,9 +57,29 @@ def test_reference_comparison_marks_insufficient_samples_with_open_marker_and_la
     assert list(south.marker.symbol) == [figures.INSUFFICIENT_SYMBOL]
     north = next(t for t in fig.data if t.name == "North Site")
     assert list(north.marker.symbol) == ["circle", "circle"]
-    rooms = list(south.y[1])
-    assert rooms == ["CT-B · South Site · n 7 (too few)"]
-    assert all("too few" not in r for r in north.y[1])
+    # short row labels: room and n; the site is named only in the legend (issue 11 review)
+    assert list(south.y[1]) == ["CT-B (n 7)"] and list(north.y[1]) == ["CT-A (n 40)", "CT-A (n 25)"]
+    labels = [label for t in fig.data if t.y is not None for label in t.y[1]]
+    assert labels and not any("Site" in label for label in labels)
+    # the legend sits above the plot (horizontal), leaving the width to the data
+    assert fig.layout.legend.orientation == "h" and fig.layout.legend.yanchor == "bottom"
+
+
+def test_reference_comparison_band_in_label_and_single_exam_without_interval():
+    rows = _room_medians().assign(stratum=["weight 15-<30 kg", None, None])
+    rows.loc[1, "n"] = 1
+    fig = figures.build_reference_comparison(rows, site_colours=SITES, title="t")
+    north = next(t for t in fig.data if t.name == "North Site")
+    south = next(t for t in fig.data if t.name == "South Site")
+    assert north.y[1][0] == "CT-A · 15-<30 kg (n 40)" and list(south.y[1]) == ["CT-B (n 1)"]
+    assert list(south.error_x.array) == [None] and list(south.error_x.arrayminus) == [None]
+
+
+def test_thresholds_are_black_or_grey_never_a_site_colour():
+    fig = figures.build_reference_comparison(_room_medians(), site_colours=SITES, title="t")
+    marks = [t for t in fig.data if t.name and t.name.startswith(("Reference level", "Network"))]
+    colours = {t.marker.line.color for t in marks}
+    assert colours and colours <= {"#111111", "#7a7a7a"} and not colours & set(SITES.values())
 
 
 def test_reference_comparison_uses_log_axis_only_for_wide_spans():
@@ -122,10 +142,31 @@ def test_trend_marks_drift_flag_at_its_month_and_draws_reference():
     assert list(series.x) == ["2026-09-15", "2026-10-15", "2026-11-15"]
     assert list(series.y) == [0.09, 0.05, 0.048]
     drift_lines = [s for s in fig.layout.shapes if s.x0 == "2026-10-01"]
-    assert len(drift_lines) == 1 and drift_lines[0].line.color == PALETTE[3]
+    # one meaning per colour: the drift flag is grey, not a site's colour
+    assert len(drift_lines) == 1 and drift_lines[0].line.color == figures.DRIFT_COLOUR
+    assert figures.DRIFT_COLOUR not in PALETTE
     assert any(a.text == "drift flag: DR-1 -47 % from Oct 2026" for a in fig.layout.annotations)
     assert [s.y0 for s in fig.layout.shapes if s.y0 == s.y1] == [0.1]
     assert _axis_titles(fig) == ["Month of study (calendar month)", "Median DAP (Gy·cm²)"]
+
+
+def test_trend_bars_are_dodged_per_room_within_a_month():
+    two = pd.concat([_monthly(), _monthly().assign(room_label="DR-2", site_label="South Site")])
+    fig = figures.build_trend(two, pd.DataFrame(), site_colours=SITES, title="t")
+    first, second = ([t for t in fig.data if t.name == name][0] for name in ("DR-1 · North Site",
+                                                                             "DR-2 · South Site"))
+    # 3 days apart, centred on mid-month (the month axis keeps its mid-month ticks)
+    assert list(first.x) == ["2026-09-14T00:00", "2026-10-14T00:00", "2026-11-14T00:00"]
+    assert list(second.x) == ["2026-09-17T00:00", "2026-10-17T00:00", "2026-11-17T00:00"]
+
+
+def test_distribution_draws_a_single_exam_as_a_point():
+    rows = _distribution()
+    rows.loc[1, ["n", "p05", "p25", "median", "p75", "p95"]] = [1, 28.0, 28.0, 28.0, 28.0, 28.0]
+    fig = figures.build_distribution(rows, title="t")
+    points = [t for t in fig.data if isinstance(t, go.Scatter)]
+    assert [(p.name, p.mode, list(p.y)) for p in points] == [("paediatric, a single exam", "markers", [28.0])]
+    assert all("paediatric" not in b.name for b in fig.data if isinstance(b, go.Box))
 
 
 def test_trend_without_drift_has_no_drift_marks():
@@ -226,3 +267,13 @@ def test_log_axes_label_ticks_with_full_values():
     wide.loc[2, ["median", "median_ci_low", "median_ci_high", "network_p75"]] = [20.0, 15.0, 25.0, 22.0]
     x = figures.build_reference_comparison(wide, site_colours=SITES, title="t").layout.xaxis
     assert list(x.ticktext) == ["20", "50", "100", "200", "500", "1,000"]
+
+
+def test_fluoroscopy_time_axes_read_min_s():
+    rows = _room_medians().assign(quantity="fluoro_time", unit="s")
+    rows[["median", "median_ci_low", "median_ci_high", "reference_value", "network_p75"]] = [
+        [300.0, 240.0, 360.0, 600.0, 420.0], [700.0, None, None, 600.0, 420.0],
+        [250.0, 200.0, 290.0, None, 260.0]]
+    axis = figures.build_reference_comparison(rows, site_colours=SITES, title="t").layout.xaxis
+    assert axis.title.text.endswith("Fluoroscopy time (min:s)")
+    assert list(axis.ticktext[:4]) == ["0:00", "2:00", "4:00", "6:00"] and axis.tickvals[1] == 120.0

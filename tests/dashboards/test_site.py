@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-from html import escape
+from markupsafe import escape  # the escaping Jinja2 applies
 import re
 import shutil
 from pathlib import Path
@@ -14,7 +14,7 @@ import pytest
 from plotly.offline import get_plotlyjs
 
 import dashboards
-from dashboards import figures, pages, site as site_module, theme
+from dashboards import figures, model, pages, render, site as site_module, theme
 from dashboards.pages import CAUTIONS, PAGES
 from dashboards.site import write_site
 
@@ -123,7 +123,7 @@ def test_insufficient_samples_are_marked_on_the_pages(site):
     assert n_small > 0     # the 320-study corpus has many small groups
     html = _html(site, "reference-levels.html")
     assert html.count(">too few<") == n_small          # the flag column of the table
-    assert "(too few)" in html                          # the room labels of the figures
+    assert '"circle-open"' in html                      # open markers in the figures
     assert "sample below the audit minimum" in _html(site, "distributions.html")
 
 
@@ -224,18 +224,45 @@ def test_empty_audit_period_still_writes_every_page(audited, tmp_path):
     html = (out / "reference-levels.html").read_text(encoding="utf-8")
     assert "No exam in the period maps to a standard exam type" in html
     assert "No individual-exam alert fired in the period." in (out / "alerts.html").read_text(encoding="utf-8")
+    # data-quality counts are for the period: no file of 2031 was received
+    assert pd.read_csv(out / "dq-file-status.csv").empty
+    index = (out / "index.html").read_text(encoding="utf-8")
+    assert "of 0 files of the period" in index
 
 
 def test_text_from_the_warehouse_is_escaped():
     frame = pd.DataFrame({"study_description": ["<script>alert(1)</script> & co"]})
-    table = pages.Table("t", "cap", frame, (pages.Column("study_description", "Description"),))
-    markup = pages._render_table(table)
+    table = model.Table("t", "cap", frame, (model.Column("study_description", "Description"),))
+    markup = render.render_table(table)
     assert "<script>" not in markup and "&lt;script&gt;alert(1)&lt;/script&gt; &amp; co" in markup
 
 
+def test_a_description_with_a_script_tag_is_escaped_on_the_page(marts):
+    """Jinja2 autoescaping: a study description and a room label from the warehouse never
+    become markup on a rendered page."""
+    import dataclasses
+
+    data, label, first, last, sets = marts
+    evil = "<script>alert('x')</script>"
+    unmapped = data.unmapped.copy()
+    assert len(unmapped) > 0
+    unmapped.loc[unmapped.index[0], "study_description"] = evil
+    rooms = data.device_studies.copy()
+    rooms.loc[rooms.index[0], "room_label"] = evil
+    ctx = model.Context(period=label, date_from=first, date_to=last, reference_sets=sets,
+                        generated_at=GENERATED_AT)
+    built = pages.build_site(dataclasses.replace(data, unmapped=unmapped, device_studies=rooms), ctx)
+    html = built.pages["data-quality.html"]
+    assert evil not in html and html.count("&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt;") == 2
+
+
 def test_public_api():
+    from dashboards.figures import common as figure_common, counts, levels, series
+    from dashboards.pages import alerts, common, overview, quality, reference, trends
+
     assert dashboards.__all__ == ["write_site"]
-    for module in (figures, pages, site_module, theme):
+    for module in (figures, model, pages, render, site_module, theme, alerts, common, overview,
+                   quality, reference, trends, figure_common, counts, levels, series):
         assert sorted(module.__all__) == sorted(set(module.__all__))
         assert all(hasattr(module, name) for name in module.__all__)
 
@@ -255,7 +282,7 @@ def test_overview_leads_with_the_patient_to_follow_up(site):
     body = alerts[alerts.index('id="table-alerts"'):]
     assert "ncrp168_srdl" not in body and "aapm_ct_notification" not in body
     assert re.search(r"\d+:\d\d min:s", body)                      # fluoroscopy time in min:s
-    assert '<span class="nowrap">2026-' in body                    # dates never wrap
+    assert '<td class="date">2026-' in body                         # dates never wrap (CSS nowrap)
 
 
 def test_alerts_page_drills_down_to_the_study_events(site):
@@ -264,10 +291,92 @@ def test_alerts_page_drills_down_to_the_study_events(site):
     assert set(events["study_key"]) == set(alerts["study_key"])
     xa = events[events["dose_rp_mgy"].notna()]
     assert xa.groupby("study_key")["dose_rp_mgy"].sum().max() > 5000   # the 6.2 Gy PCI, per event
-    assert "Study details: the events of each alerted study" in _html(site, "alerts.html")
+    html = _html(site, "alerts.html")
+    assert "Study details: the events of each alerted study" in html
+    # every study link of the alert list goes to that study's own details, with its events
+    listing = html[html.index('id="table-alerts"'):html.index('id="events"')]
+    links = set(re.findall(r'href="alerts\.html#(study-[0-9a-f]+)"', listing))
+    from dashboards.pages.alerts import MAX_DETAIL_STUDIES
+    expected = list(dict.fromkeys(alerts["study_key"]))[:MAX_DETAIL_STUDIES]
+    assert links == {f"study-{k}" for k in expected}
+    for anchor in links:
+        assert html.count(f'id="{anchor}"') == 1
+    pci = alerts.loc[alerts["rule"].str.contains("ncrp168"), "study_key"].iloc[0]
+    detail = html[html.index(f'id="study-{pci}"'):]
+    detail = detail[:detail.index("</table>")]
+    n_events = int((events["study_key"] == pci).sum())
+    assert detail.count("<tr>") == 1 + min(n_events, 40)      # header + the events shown
+    assert "Coronary" in detail or "fluoro" in detail.lower()
+    # the overview's ten most urgent alerts link to the same details
+    index = _html(site, "index.html")
+    assert f'href="alerts.html#study-{pci}"' in index
+
+
+def test_overview_tiles_link_to_their_own_detail_sections(site):
+    index = _html(site, "index.html")
+    glance = index[index.index('id="glance"'):index.index('id="findings"')]
+    hrefs = re.findall(r'<a class="tile[^"]*" href="([^"]+)"', glance)
+    assert len(hrefs) == 9 and len(set(hrefs)) == 9          # each tile its own detail
+    for href in hrefs:
+        page, _, anchor = href.partition("#")
+        assert anchor, f"tile {href} links to a page, not to its detail section"
+        assert f'id="{anchor}"' in _html(site, page), href
+
+
+def test_reference_table_values_carry_units_and_fluoroscopy_time_in_min_s(site):
+    html = _html(site, "reference-levels.html")
+    table = html[html.index('id="table-reference-room-medians"'):]
+    table = table[:table.index("</table>")]
+    medians = pd.read_csv(site / "reference-room-medians.csv")
+    assert (medians["quantity"] == "fluoro_time").any()
+    assert re.search(r"\d+:\d\d min:s", table) and " mGy·cm<" in table
+    assert "What the comparison means" not in table             # the CSV keeps that column
+    assert "reference_scope_note" in medians.columns
+
+
+def test_alert_counts_read_rules_in_plain_words(site):
+    html = _html(site, "alerts.html")
+    counts = pd.read_csv(site / "alerts-by-rule.csv")
+    assert counts["rule"].str.startswith("aapm_ct_notification").any()
+    main = html[:html.index("<footer")]
+    assert "aapm_ct_notification" not in main and "ncrp168_" not in main
+    # the words the committee report uses (pipeline.report.words, one shared mapping)
+    assert "CT dose-check notification, adult head, 80 mGy" in main
 
 
 def test_titles_follow_the_period(site):
     """The session site covers Sep-Nov 2026: not a calendar month, so never titled "Monthly"."""
     index = _html(site, "index.html")
     assert "<h1>Dose audit of the period: overview</h1>" in index and "Monthly dose audit" not in index
+
+
+def _plot_data(html: str) -> list[tuple[str, list]]:
+    """(div id, traces) of every Plotly.newPlot call in a page."""
+    decoder, out = json.JSONDecoder(), []
+    for match in re.finditer(r'Plotly\.newPlot\(\s*"([^"]+)",\s*', html):
+        data, _ = decoder.raw_decode(html, match.end())
+        out.append((match.group(1), data))
+    return out
+
+
+def test_reference_plots_row_labels_are_short_and_the_site_is_in_the_legend(site, marts):
+    data = marts[0]
+    sites = set(data.devices["site_label"])
+    plots = _plot_data(_html(site, "reference-levels.html"))
+    assert len(plots) > 5
+    for div_id, traces in plots:
+        rows = {label for t in traces if isinstance(t.get("y"), list) and len(t["y"]) == 2
+                for label in t["y"][1]}
+        assert rows and all(re.fullmatch(r"\S+( · [^()]+)? \(n \d+\)", r) for r in rows), (div_id, rows)
+        assert not any(s in r for s in sites for r in rows), div_id
+        names = {t.get("name") for t in traces}
+        assert names & sites, div_id                       # the legend names the sites
+
+
+def test_single_exam_groups_are_points_on_the_distribution_page(site):
+    dist = pd.read_csv(site / "distributions.csv")
+    assert (dist["n"] == 1).any()          # the 320-study corpus has single-exam paediatric groups
+    traces = [t for _, ts in _plot_data(_html(site, "distributions.html")) for t in ts]
+    points = [t for t in traces if t.get("type") == "scatter" and t.get("name", "").endswith("a single exam")]
+    assert points and all(t["mode"] == "markers" for t in points)
+    assert sum(len(t["y"]) for t in points) == int((dist["n"] == 1).sum())

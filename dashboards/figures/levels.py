@@ -1,0 +1,217 @@
+"""Reference-level comparison and distributions (box summaries computed in SQL)."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+import pandas as pd
+import plotly.graph_objects as go
+from plotly.subplots import make_subplots
+
+from ..theme import (
+    NETWORK_COLOUR,
+    PALETTE,
+    POPULATION_COLOURS,
+    REFERENCE_COLOUR,
+    quantity_name,
+    unit_label,
+)
+from .common import (
+    INSUFFICIENT_SYMBOL,
+    _PHANTOM_SHORT,
+    _POPULATION_ORDER,
+    _REFERENCE_SET_MARKS,
+    _alpha,
+    _fmt,
+    _layout,
+    _unit_text,
+    _value_ticks,
+    _missing,
+    _num,
+    _panel_axis_title,
+    _panel_rows,
+    _panels,
+    _require,
+    _site_colour,
+    _stratum_short,
+    _wants_log,
+)
+
+__all__ = ["build_distribution", "build_reference_comparison"]
+
+
+# --- reference-level comparison -----------------------------------------------------------
+def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str, str],
+                               title: str) -> go.Figure:
+    """Room medians with their 95 % CI against the reference level and the network's 75th percentile.
+
+    Expects rows of ``dash_room_medians.sql`` for one quantity and population: exam_label,
+    phantom, site_label, room_label, n, median, median_ci_low, median_ci_high, unit, quantity,
+    reference_value, reference_set, network_p75, is_sample_adequate. One row per room per
+    exam type on a two-level axis (exam type, then room). A room whose sample is below the
+    audit's minimum is drawn with an open marker and labelled "too few".
+    """
+    _require(frame, ["exam_label", "phantom", "site_label", "room_label", "n", "median",
+                     "median_ci_low", "median_ci_high", "unit", "quantity", "reference_value",
+                     "reference_set", "network_p75", "is_sample_adequate"],
+             "build_reference_comparison")
+    rows = frame.reset_index(drop=True)
+    exam_axis = [f"{e} · {_PHANTOM_SHORT.get(str(p), str(p))}" if not _missing(p) else str(e)
+                 for e, p in zip(rows["exam_label"], rows["phantom"], strict=True)]
+    # short row labels (room and n); the site is the marker's colour, named in the legend
+    strata = rows["stratum"] if "stratum" in rows.columns else [None] * len(rows)
+    room_axis = [f"{r}{_stratum_short(b)} (n {int(n)})"
+                 for r, b, n in zip(rows["room_label"], strata, rows["n"], strict=True)]
+    quantity, unit = str(rows["quantity"].iloc[0]), rows["unit"].iloc[0]
+    fig = go.Figure()
+    # An invisible first trace fixes the category order to the rows' order (exam, then room).
+    fig.add_trace(go.Scatter(x=[_num(v) for v in rows["median"]], y=[exam_axis, room_axis],
+                             mode="markers", marker={"opacity": 0}, showlegend=False,
+                             hoverinfo="skip", name=""))
+    for site in sorted(rows["site_label"].unique()):
+        # adequate samples first: the legend shows the first point's (filled) marker
+        idx = sorted((i for i in range(len(rows)) if rows["site_label"].iloc[i] == site),
+                     key=lambda i: not bool(rows["is_sample_adequate"].iloc[i]))
+        adequate = [bool(rows["is_sample_adequate"].iloc[i]) for i in idx]
+        med = [_num(rows["median"].iloc[i]) for i in idx]
+        lo = [_num(rows["median_ci_low"].iloc[i]) for i in idx]
+        hi = [_num(rows["median_ci_high"].iloc[i]) for i in idx]
+        colour = _site_colour(site_colours, site)
+        fig.add_trace(go.Scatter(
+            name=site, legendgroup=site, mode="markers",
+            x=med, y=[[exam_axis[i] for i in idx], [room_axis[i] for i in idx]],
+            marker={"color": colour, "size": 10,
+                    "symbol": ["circle" if a else INSUFFICIENT_SYMBOL for a in adequate],
+                    "line": {"color": colour, "width": 2}},
+            error_x={"type": "data", "symmetric": False, "color": colour, "thickness": 1.5,
+                     "width": 4,
+                     "array": [None if h is None or m is None else _num(h - m) for h, m in zip(hi, med, strict=True)],
+                     "arrayminus": [None if w is None or m is None else _num(m - w) for w, m in zip(lo, med, strict=True)]},
+            customdata=[[int(rows["n"].iloc[i]), _fmt(lo[k]), _fmt(hi[k]),
+                         "adequate" if adequate[k] else "below the audit minimum"]
+                        for k, i in enumerate(idx)],
+            hovertemplate=("%{y}<br>median %{x:.4g} " + unit_label(unit)
+                           + "<br>95 % CI %{customdata[1]} to %{customdata[2]}"
+                           + "<br>n %{customdata[0]} (%{customdata[3]})<extra>" + site + "</extra>"),
+        ))
+    by_use = rows["reference_set"].dropna().value_counts()
+    for k, ref_set in enumerate(sorted(by_use.index, key=lambda v: (-int(by_use[v]), str(v)))):
+        sel = rows.index[rows["reference_set"] == ref_set].tolist()
+        symbol, colour = _REFERENCE_SET_MARKS[k % len(_REFERENCE_SET_MARKS)]
+        fig.add_trace(go.Scatter(
+            name=f"Reference level ({ref_set})", mode="markers",
+            x=[_num(rows["reference_value"].iloc[i]) for i in sel],
+            y=[[exam_axis[i] for i in sel], [room_axis[i] for i in sel]],
+            marker={"symbol": symbol, "size": 22, "color": colour,
+                    "line": {"color": colour, "width": 3}},
+            hovertemplate="reference level %{x:.4g} " + unit_label(unit) + f"<extra>{ref_set}</extra>",
+        ))
+    sel = rows.index[rows["network_p75"].notna()].tolist()
+    if sel:
+        fig.add_trace(go.Scatter(
+            name="Network 75th percentile of room medians", mode="markers",
+            x=[_num(rows["network_p75"].iloc[i]) for i in sel],
+            y=[[exam_axis[i] for i in sel], [room_axis[i] for i in sel]],
+            marker={"symbol": "diamond-tall-open", "size": 12,
+                    "line": {"color": NETWORK_COLOUR, "width": 2}, "color": NETWORK_COLOUR},
+            hovertemplate="network 75th percentile %{x:.4g} " + unit_label(unit) + "<extra></extra>",
+        ))
+    values = [*rows["median_ci_low"], *rows["median_ci_high"], *rows["median"],
+              *rows["reference_value"], *rows["network_p75"]]
+    log = _wants_log(values)
+    fig.update_xaxes(title={"text": "Room median with 95 % CI: " + f"{quantity_name(quantity)} ({_unit_text(unit)})"
+                                    + (", log scale" if log else "")},
+                     type="log" if log else "linear", **_value_ticks(values, unit, log))
+    fig.update_yaxes(title={"text": "Exam type · room (n exams)"},
+                     type="multicategory", autorange="reversed", tickfont={"size": 11})
+    fig = _layout(fig, title, height=max(200, 90 + 24 * len(rows)))
+    # the legend above the plot, not beside it: the data area keeps most of the width
+    fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
+                              "yanchor": "bottom"},
+                      margin={"t": 96, "r": 16, "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))})
+    # a fixed left margin from the labels' length: plotly's automargin re-lays out every
+    # multicategory plot several times, the main cost of drawing this page
+    fig.update_yaxes(automargin=False)
+    return fig
+
+
+
+
+# --- distributions --------------------------------------------------------------------------
+def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
+    """Box per room and population from precomputed order statistics, one panel per quantity.
+
+    Expects rows of ``dash_distribution.sql`` for one exam type: quantity, unit, phantom,
+    population, site_label, room_label, n, p05, p25, median, p75, p95, reference_value,
+    reference_set, is_sample_adequate. Box: interquartile range and median; whiskers: 5th
+    and 95th percentiles. A group below the audit minimum is drawn unfilled in grey. The
+    reference level is a dashed line with its value and set written on it.
+    """
+    _require(frame, ["quantity", "unit", "phantom", "population", "site_label", "room_label",
+                     "n", "p05", "p25", "median", "p75", "p95", "reference_value",
+                     "reference_set", "is_sample_adequate"], "build_distribution")
+    panels = _panels(frame)
+    fig = make_subplots(rows=1, cols=len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
+    legend_done: set[str] = set()
+    for col, (quantity, phantom) in enumerate(panels, start=1):
+        part = _panel_rows(frame, quantity, phantom)
+        unit = part["unit"].iloc[0]
+        rooms = sorted({(s, r) for s, r in zip(part["site_label"], part["room_label"], strict=True)})
+        counts = {room: {} for room in rooms}
+        for s, r, pop, n in zip(part["site_label"], part["room_label"], part["population"], part["n"], strict=True):
+            counts[(s, r)][pop] = int(n)
+        # adult, paediatric, unknown age (its own group), all (mammography: no age split)
+        present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
+        labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
+            f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
+        for population in present:
+            colour = POPULATION_COLOURS.get(population, PALETTE[2])
+            single = part[(part["population"] == population) & (part["n"] == 1)]
+            if not single.empty:    # one exam: a point, not a box of five equal quantiles
+                name = f"{population}, a single exam"
+                fig.add_trace(go.Scatter(
+                    name=name, legendgroup=name, showlegend=name not in legend_done, mode="markers",
+                    x=[labels[(s, r)] for s, r in zip(single["site_label"], single["room_label"], strict=True)],
+                    y=[_num(v) for v in single["median"]],
+                    marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
+                            "line": {"color": colour, "width": 2}},
+                    hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
+                ), row=1, col=col)
+                legend_done.add(name)
+            for adequate in (True, False):
+                sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)
+                           & (part["n"] > 1)]
+                if sel.empty:
+                    continue
+                name = population if adequate else f"{population}, sample below the audit minimum"
+                fig.add_trace(go.Box(
+                    name=name, legendgroup=name, showlegend=name not in legend_done,
+                    offsetgroup=population, alignmentgroup=f"panel{col}",
+                    x=[labels[(s, r)] for s, r in zip(sel["site_label"], sel["room_label"], strict=True)],
+                    q1=[_num(v) for v in sel["p25"]], median=[_num(v) for v in sel["median"]],
+                    q3=[_num(v) for v in sel["p75"]], lowerfence=[_num(v) for v in sel["p05"]],
+                    upperfence=[_num(v) for v in sel["p95"]],
+                    marker={"color": colour},
+                    line={"color": colour, "width": 1.5},
+                    fillcolor=_alpha(colour, 0.35) if adequate else "rgba(255,255,255,0)",
+                    hoverinfo="x+y", boxpoints=False,
+                ), row=1, col=col)
+                legend_done.add(name)
+        refs = part.dropna(subset=["reference_value"])
+        for (value, ref_set, population) in sorted(
+                {(float(v), str(s), str(p)) for v, s, p in
+                 zip(refs["reference_value"], refs["reference_set"], refs["population"], strict=True)}):
+            fig.add_hline(y=value, line={"color": REFERENCE_COLOUR, "dash": "dash", "width": 2},
+                          annotation_text=f"Reference level {_fmt(value)} {unit_label(unit)} ({population}, {ref_set})",
+                          annotation_position="top left", annotation_font={"size": 10},
+                          row=1, col=col)
+        values = [*part["p05"], *part["p95"], *refs["reference_value"]]
+        log = _wants_log(values)
+        fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, phantom, log)},
+                         type="log" if log else "linear", **_value_ticks(values, unit, log),
+                         row=1, col=col)
+        fig.update_xaxes(title={"text": "Room · site (n adult / paediatric exams)"}, type="category",
+                         row=1, col=col)
+    fig.update_layout(boxmode="group")
+    width_rooms = max(len(set(zip(frame["site_label"], frame["room_label"], strict=True))), 2)
+    return _layout(fig, title, height=380 + 12 * width_rooms)
