@@ -141,8 +141,9 @@ def demo_network(corpus: Path, out: Path, key_file: Path, date_from, date_to,
                   f"loaded, one shared network key); {len(folders)} site extracts in "
                   f"{out / 'extracts'}; merged into {network}: {len(merged.merged)} new, "
                   f"{len(merged.unchanged)} already there, {merged.n_studies} studies. Network "
-                  f"audit: {summary.n_groups} room groups, {len(summary.exceedances)} room medians "
-                  f"above their reference level, individual-exam alerts "
+                  f"audit: {summary.n_groups} room groups, {len(summary.exceedances)} room "
+                  f"median{'' if len(summary.exceedances) == 1 else 's'} above a reference "
+                  f"level, individual-exam alerts "
                   f"{sum(summary.alerts_by_rule.values())} "
                   f"({time.perf_counter() - started:.1f} s).")
     return network
