@@ -108,6 +108,7 @@ def demo(
     console.print(f"Committee report written: {result.site_index.parent / 'report.pdf'}")
     console.print(f"Monthly flow finished in {time.perf_counter() - started:.1f} s; its runs are "
                   f"in the view pipeline_run.")
+    _demo_vault(out, corpus, warehouse, key_file)
     console.print("Step 3 of 3: the regional network: each site ingests into its own warehouse "
                   "(kerma ingest), exports a de-identified extract (kerma export), the network "
                   "merges them (kerma merge) and audits the network warehouse (kerma audit).")
@@ -118,3 +119,32 @@ def demo(
         f"  .venv/bin/kerma sql --warehouse {warehouse} "
         "\"select exam_type, quantity, site, n, median, reference_value, ratio_to_reference "
         "from audit_medians where is_above_reference\"")
+
+
+def _demo_vault(out: Path, corpus: Path, warehouse: Path, key_file: Path) -> None:
+    """The demo's re-identification vault: a key pair, the sealed identifiers, the command.
+
+    In the demo both key files sit in ``keyholder/`` beside the outputs; at a real site the
+    private key stays with the key holder and only the public key reaches the ingest machine.
+    """
+    from queries import sql
+
+    from ..pseudonym import load_key
+    from ..vault import PUBLIC_KEY_NAME, init_keys, seal_studies
+    from ..warehouse.connection import connection
+
+    keyholder = out / "keyholder"
+    if not (keyholder / PUBLIC_KEY_NAME).exists():
+        init_keys(keyholder)
+    vault = out / "vault.jsonl"
+    n = seal_studies([corpus], vault, keyholder / PUBLIC_KEY_NAME, load_key(key_file),
+                     warehouse=warehouse)
+    with connection(warehouse, read_only=True) as con:
+        row = con.execute(sql("select_first_follow_up_study")).fetchone()
+    console.print(f"Re-identification vault {vault}: {n} new studies sealed for the key holder "
+                  f"(demo keys in {keyholder}; at a site the private key never leaves its holder).")
+    if row:
+        console.print("The key holder names the patient needing follow-up (the access is "
+                      f"logged in {vault}.access.log):\n  .venv/bin/kerma reidentify {row[0]} "
+                      f"--vault {vault} --private-key {keyholder / 'reidentify-private.key'} "
+                      "--reason \"skin follow-up after a high-dose procedure\" --by \"demo MPE\"")

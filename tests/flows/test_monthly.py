@@ -170,6 +170,19 @@ def test_kerma_demo_runs_through_the_monthly_flow(tmp_path):
         n_groups = con.execute("select count(*) from audit_medians").fetchone()[0]
     assert n_extracts == n_sites == len(list((out / "network" / "extracts").iterdir())) >= 3
     assert n_groups > 0
+    # one warehouse per site, each ingested from its own folder of the corpus
+    site_warehouses = sorted((out / "network" / "sites").glob("*.duckdb"))
+    assert [p.stem for p in site_warehouses] == sorted(
+        p.name.lower() for p in (out / "corpus").iterdir() if p.is_dir())
+    # the re-identification vault holds one sealed entry per study and no plaintext identifier
+    import pandas as pd
+    vault = (out / "vault.jsonl").read_bytes()
+    studies = pd.read_parquet(out / "corpus" / "studies.parquet")
+    assert 0 < vault.count(b"\n") <= len(studies)
+    for column in ("patient_id", "accession_number"):
+        if column in studies:
+            assert not any(str(v).encode() in vault for v in studies[column].dropna()), column
+    assert "Re-identification vault" in result.output
 
 
 def test_kerma_schedule_monthly_serves_until_stopped(inbox, tmp_path, key_file):
