@@ -57,3 +57,10 @@ def test_issue_16_exports():
     assert "key_fingerprint" in pseudonym.__all__ and "KeyMismatchError" in errors.__all__
     assert issubclass(errors.KeyMismatchError, errors.ConfigError)   # stops with exit 2
     assert {"NO_DATA", "print_data_checks"} <= set(audit.__all__)
+
+
+def test_issue_14_exports():
+    from pipeline import audit
+    from pipeline.metrics import drift
+    assert {"audit_is_current", "AUDIT_MEMORY_LIMIT"} <= set(audit.__all__)
+    assert {"best_change_points", "drift_flags", "SERIES_KEYS"} <= set(drift.__all__)
