@@ -158,6 +158,7 @@ def one(n: int, dashboards: bool) -> dict:
                 print(f"       {name:<40}{size / 1024:10.0f} KiB")
             pages = {k: v for k, v in sizes.items() if k.endswith(".html")}
             out.update(site_s=seconds, largest_kib=max(pages.values()) / 1024 if pages else None)
+            shutil.rmtree(CACHE / f"site-{n}-{os.getpid()}", ignore_errors=True)
     for p in (work, work.with_name(work.name + ".wal")):
         p.unlink(missing_ok=True)
     shutil.rmtree(work.with_name(work.name + ".tmp"), ignore_errors=True)  # DuckDB spill folder
