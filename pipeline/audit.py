@@ -15,6 +15,7 @@ from __future__ import annotations
 import datetime as dt
 import tomllib
 from dataclasses import dataclass, field
+from functools import cache
 from importlib import resources
 from pathlib import Path
 
@@ -24,12 +25,14 @@ from queries import sql
 
 from .errors import ConfigError
 from .exams import load_exam_rules, load_indication_rules, rule_rows
-from .metrics import detect_drift, median_ci_ranks
+from .metrics import median_ci_ranks
+from .metrics.dose_check import METHOD_BY_POSITION, METHOD_UPPER_BOUND
 from .warehouse.connection import connection
 from .warehouse.load import ensure_schema, replace_exam_rules
 
-__all__ = ["AuditSettings", "AuditSummary", "load_alert_rules", "load_audit_settings",
-           "period_bounds", "period_length", "previous_period", "run_audit", "skin_dose_rows"]
+__all__ = ["AUDIT_MEMORY_LIMIT", "AuditSettings", "AuditSummary", "audit_is_current",
+           "load_alert_rules", "load_audit_settings", "period_bounds", "period_length",
+           "previous_period", "run_audit", "skin_dose_rows"]
 
 
 def _default_min_sample() -> dict[str, int]:
@@ -286,6 +289,22 @@ _SKIN_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.stri
 _BAND_SCHEMA = pa.schema([("basis", pa.string()), ("stratum", pa.string()), ("low", pa.float64()),
                           ("high", pa.float64()), ("source", pa.string())])
 _CI_SCHEMA = pa.schema([("n", pa.int64()), ("lower_rank", pa.int64()), ("upper_rank", pa.int64())])
+_K_SCHEMA = pa.schema([("exam_type", pa.string()), ("patient_age_years", pa.float64()),
+                       ("k_msv_per_mgy_cm", pa.float64()), ("basis", pa.string()),
+                       ("source", pa.string())])
+_FIT_SCHEMA = pa.schema([("phantom", pa.string()), ("a", pa.float64()), ("b_per_cm", pa.float64()),
+                         ("d_min_cm", pa.float64()), ("d_max_cm", pa.float64()),
+                         ("usable", pa.bool_())])
+# Relations the audit reads many times, computed once per run into temporary tables that hide
+# the views of the same name for the run's connection (queries/audit/materialise_*.sql), in
+# dependency order.
+_MATERIALISED = ("stg_exam_text", "stg_exam_match", "irradiation_event", "study_dose",
+                 "audit_observation")
+# DuckDB working memory of an audit run: beyond it, sorts, joins and the temporary tables above
+# spill to the temp directory beside the warehouse, so memory stays flat however much history
+# the warehouse holds (common practice, no source: half of a small 2-core, 4 GiB machine's RAM
+# leaves room for Python and the OS).
+AUDIT_MEMORY_LIMIT = "1GB"
 
 
 def _register_temp(con, name: str, table: pa.Table) -> None:
@@ -313,26 +332,6 @@ def _records(cursor) -> list[dict]:
     return [dict(zip(columns, row)) for row in cursor.fetchall()]
 
 
-def _accumulated_ctdivol(con, first: dt.date, after: dt.date) -> list[dict]:
-    """Per CT study: CTDIvol accumulated at a table position (NEMA XR 25), from the scanning
-    ranges when the warehouse has them (TID 10014), else the labelled upper bound."""
-    from itertools import groupby
-
-    from .metrics import accumulated_ctdivol_by_position
-
-    has_positions = all(con.execute(sql("has_column"), {"relation": "irradiation_event", "column": c}
-                                    ).fetchone()[0]
-                        for c in ("top_z_scanning_length_mm", "bottom_z_scanning_length_mm"))
-    query = "select_ct_dose_check_events" + ("_with_positions" if has_positions else "")
-    rows = con.execute(sql(query), {"date_from": first, "date_to": after}).fetchall()
-    out = []
-    for (study_key, device_key), events in groupby(rows, key=lambda r: (r[0], r[1])):
-        value, method = accumulated_ctdivol_by_position((c, a, b) for _, _, c, a, b in events)
-        out.append({"study_key": study_key, "device_key": device_key,
-                    "accumulated_ctdivol_mgy": value, "method": method})
-    return out
-
-
 def _history_from(first: dt.date, months: int) -> dt.date:
     """Start of the feed history: whole 7-day weeks ending the day before `first`, within `months`."""
     days = (first - _months_before(first, months)).days
@@ -345,53 +344,58 @@ def _months_before(day: dt.date, months: int) -> dt.date:
         dt.date(index // 12, index % 12 + 1, min(day.day, 28))
 
 
-def study_estimates(rows, settings: AuditSettings) -> list[dict]:
-    """Per CT study: effective-dose estimate E = k x DLP (region from the exam type, k by age;
-    a population-average quantity, not an individual's risk) and SSDE (reported by the device,
-    else AAPM Report 204 fit at the water-equivalent diameter, AAPM Report 220).
-
-    `rows` are mappings (one per CT study, columns of queries/audit/select_ct_for_estimates.sql)
-    whose missing values are None, never NaN: a study no exam rule maps has exam_type None and
-    gets no effective-dose estimate (its region is unknown), but still its SSDE.
-    """
+def _effective_dose_factors(con, after: dt.date, settings: AuditSettings) -> pa.Table:
+    """k (mSv per mGy.cm) for each exam type x patient age of the CT studies up to the period end:
+    pipeline.reference.effective_dose_msv of 1 mGy.cm (an unknown age takes the adult
+    coefficient; no row where no coefficient applies, e.g. an exam type without a body region)."""
     from .exams import EXAM_TYPES
-    from .reference import UnverifiedReferenceError, effective_dose_msv, ssde_conversion_factor
+    from .reference import UnverifiedReferenceError, effective_dose_msv
 
-    out = []
-    for r in rows:
-        exam = EXAM_TYPES.get(r["exam_type"]) if r["exam_type"] is not None else None
-        dlp, age = r["dlp_total_mgy_cm"], r["patient_age_years"]
-        e = k = basis = source = None
-        if exam and exam.region and dlp is not None:
-            try:
-                e, basis, source = effective_dose_msv(float(dlp), exam.region,
-                                                      age if age is not None else 40.0,
-                                                      basis=settings.effective_dose_basis)
-                k = e / dlp if dlp else None
-                if age is None:
-                    source += " (age unknown: adult coefficient)"
-            except (ValueError, UnverifiedReferenceError):
-                e = None
-        ssde, method = None, None
-        dw, ctdivol = r["water_equivalent_diameter_mm"], r["ctdivol_mgy"]
-        if r["reported_ssde_mgy"] is not None:
-            ssde, method = float(r["reported_ssde_mgy"]), "reported by the device (TID 10013)"
-        elif dw is not None and r["ctdi_phantom"] in ("head_16cm", "body_32cm") and ctdivol is not None:
-            try:
-                f = ssde_conversion_factor(dw / 10.0, r["ctdi_phantom"],
-                                           include_unverified=settings.ssde_use_unverified_fit)
-                ssde = f * ctdivol
-                method = (f"AAPM Report 204 fit at Dw {dw:.0f} mm "
-                          f"(AAPM Report 220), f = {f:.3f}; fit corroborated by secondary sources")
-            except (ValueError, UnverifiedReferenceError):
-                ssde = None
-        out.append({"study_key": r["study_key"], "patient_key": r["patient_key"],
-                    "device_key": r["device_key"], "exam_type": r["exam_type"],
-                    "study_date": r["study_date"], "dlp_total_mgy_cm": dlp,
-                    "effective_dose_msv": e, "k_msv_per_mgy_cm": k,
-                    "effective_dose_basis": basis, "effective_dose_source": source,
-                    "ssde_mgy": ssde, "ssde_method": method})
-    return out
+    rows = []
+    for exam_type, age in con.execute(sql("select_ct_exam_ages"), {"date_to": after}).fetchall():
+        exam = EXAM_TYPES.get(exam_type)
+        if not (exam and exam.region):
+            continue
+        try:
+            k, basis, source = effective_dose_msv(1.0, exam.region, age if age is not None else 40.0,
+                                                  basis=settings.effective_dose_basis)
+        except (ValueError, UnverifiedReferenceError):
+            continue
+        rows.append({"exam_type": exam_type, "patient_age_years": age, "k_msv_per_mgy_cm": k,
+                     "basis": basis, "source": source})
+    return pa.Table.from_pylist(rows, schema=_K_SCHEMA)
+
+
+def _ssde_fits(settings: AuditSettings) -> pa.Table:
+    """The AAPM Report 204 fit per CTDIvol phantom and whether the audit may use it."""
+    from .reference import _ssde_fits as fits
+
+    return pa.Table.from_pylist(
+        [{"phantom": phantom, "a": f["a"], "b_per_cm": f["b"], "d_min_cm": f["d_min"],
+          "d_max_cm": f["d_max"], "usable": bool(f["verified"] or settings.ssde_use_unverified_fit)}
+         for phantom, f in fits().items()], schema=_FIT_SCHEMA)
+
+
+def _drift_flags(con, after: dt.date, settings: AuditSettings):
+    """Change points of the adult monthly series up to the period end (pipeline.metrics.drift):
+    ranks and rank sums in DuckDB, the test per boundary in numpy, medians of the flagged
+    candidates in DuckDB; never the raw values in Python."""
+    from .metrics.drift import best_change_points, drift_flags
+
+    con.execute(sql("create_drift_observation"),
+                {"date_to": after, "adult_min_age": settings.adult_min_age_years})
+    candidates = con.execute(sql("drift_candidates"), {"min_n_side": settings.drift_min_n_side}).df()
+    best = best_change_points(candidates)
+    chosen = best[best["p_value_bonferroni"] < settings.drift_alpha]
+    con.register("drift_choice", pa.Table.from_pandas(
+        chosen[["device_key", "site", "exam_type", "quantity", "unit", "change_month"]],
+        preserve_index=False))
+    try:
+        medians = con.execute(sql("drift_medians")).df()
+    finally:
+        con.unregister("drift_choice")
+    return drift_flags(chosen, medians, alpha=settings.drift_alpha,
+                       min_change=settings.drift_min_change)
 
 
 def _added_cu_mm(material: str | None, thickness_mm: float | None) -> float | None:
@@ -459,6 +463,116 @@ def skin_dose_rows(rows, map_threshold_mgy: float | None = None,
     return out, cells
 
 
+@cache
+def _code_digest() -> str:
+    """SHA-256 over the SQL, seeds and Python of the pipeline: a changed query or reference file
+    makes every earlier audit stale."""
+    import hashlib
+
+    import queries
+
+    h = hashlib.sha256()
+    for root in (Path(queries.__file__).parent, Path(__file__).parent):
+        for path in sorted(p for p in root.rglob("*") if p.suffix in (".sql", ".csv", ".py", ".toml")):
+            h.update(str(path.relative_to(root)).encode() + b"\0" + path.read_bytes())
+    return h.hexdigest()
+
+
+def _inputs_fingerprint(con, first: dt.date, after: dt.date, reference_sets: list[str],
+                        settings: AuditSettings, config: Path | None) -> str:
+    """Digest of everything an audit of [first, after) reads: the warehouse's data (row counts
+    and latest load run, queries/audit/audit_inputs_state.sql), the exam, indication and alert
+    rules, the settings, the reference sets asked for, the version and the code."""
+    import dataclasses
+    import hashlib
+    import json
+
+    from . import __version__
+
+    state = con.execute(sql("audit_inputs_state")).fetchone()
+    inputs = {
+        "period": [first.isoformat(), after.isoformat()], "version": __version__,
+        "code": _code_digest(), "data": list(state), "reference_sets": list(reference_sets),
+        "settings": dataclasses.asdict(settings), "alert_rules": load_alert_rules(config),
+        "exam_rules": rule_rows(load_exam_rules(config)),
+        "indication_rules": [dataclasses.astuple(r) for r in load_indication_rules(config)]}
+    text = json.dumps(inputs, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def audit_is_current(warehouse: Path, *, period: str | None = None,
+                     date_from: dt.date | None = None, date_to: dt.date | None = None,
+                     reference_sets: list[str] | None = None, settings: AuditSettings | None = None,
+                     config: Path | None = None, holds_tables: bool = True) -> bool:
+    """True when an earlier `run_audit` of this period, with these arguments, is still current.
+
+    Current: the audit run recorded for the period (audit_period) completed with the same
+    inputs fingerprint as now: no data loaded since (row counts and latest load run of the raw
+    tables), the same site map and reference levels, rules, settings, reference sets asked for,
+    version and code. With `holds_tables` (default), that run must also be the latest audit of
+    the warehouse, whose tables (audit_medians, dose_alerts, ...) the warehouse holds; without
+    it, only its findings (audit_finding) need be current, e.g. the previous period of a report.
+
+    Parameters are those of `run_audit`. Read-only; a warehouse never audited is not current.
+
+    Raises
+    ------
+    ConfigError
+        A bad period, setting or rule.
+    WarehouseError
+        The warehouse cannot be opened.
+    """
+    settings = settings or load_audit_settings(config)
+    first, after, _ = period_bounds(period, date_from, date_to)
+    last = after - dt.timedelta(days=1)
+    with connection(warehouse, read_only=True) as con:
+        names = {r[0] for r in con.execute(
+            "select table_name from information_schema.columns "
+            "where table_name = 'audit_period' and column_name = 'inputs_fingerprint'").fetchall()}
+        if not names:
+            return False
+        latest = con.execute(sql("select_last_audit_run"), {
+            "date_from": None if holds_tables else first,
+            "date_last": None if holds_tables else last}).fetchone()
+        if latest is None or (latest[1], latest[2]) != (first, last):
+            return False
+        explicit = reference_sets or list(settings.reference_sets)
+        return latest[3] == _inputs_fingerprint(con, first, after, explicit, settings, config)
+
+
+def _skin_dose(con, first: dt.date, after: dt.date, map_threshold_mgy: float | None,
+               chunk_rows: int = 50_000) -> None:
+    """Tables skin_dose, skin_dose_map and skin_dose_factor of the period: `skin_dose_rows` over
+    the events, streamed in chunks of whole studies, so memory does not grow with the number of
+    events."""
+    cursor = con.execute(sql("select_skin_dose_events"), {"date_from": first, "date_to": after})
+    columns = [d[0] for d in cursor.description]
+    skin, cells, factors, carry = [], [], [], []
+    while True:
+        batch = cursor.fetchmany(chunk_rows)
+        rows = carry + [dict(zip(columns, r)) for r in batch]
+        if batch and rows:   # hold back the last study: its events may go on in the next batch
+            last = (rows[-1]["study_key"], rows[-1]["device_key"])
+            cut = len(rows)
+            while cut and (rows[cut - 1]["study_key"], rows[cut - 1]["device_key"]) == last:
+                cut -= 1
+            rows, carry = rows[:cut], rows[cut:]
+        else:
+            carry = []
+        if rows:
+            study_factors: list[dict] = []
+            studies, study_cells = skin_dose_rows(rows, map_threshold_mgy, study_factors)
+            skin.append(pa.Table.from_pylist(studies, schema=_SKIN_DOSE_SCHEMA))
+            cells.append(pa.Table.from_pylist(study_cells, schema=_SKIN_MAP_SCHEMA))
+            factors.append(pa.Table.from_pylist(study_factors, schema=_SKIN_FACTOR_SCHEMA))
+        if not batch:
+            break
+    _register_temp(con, "skin_dose", pa.concat_tables(skin) if skin else _SKIN_DOSE_SCHEMA.empty_table())
+    _register_temp(con, "skin_dose_map", pa.concat_tables(cells) if cells else _SKIN_MAP_SCHEMA.empty_table())
+    _register_temp(con, "skin_dose_factor",
+                   pa.concat_tables(factors) if factors else _SKIN_FACTOR_SCHEMA.empty_table())
+
+
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
               date_to: dt.date | None = None, reference_sets: list[str] | None = None,
               settings: AuditSettings | None = None, config: Path | None = None) -> AuditSummary:
@@ -499,6 +613,12 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         ensure_schema(con)
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
         install_reference_sets(con)
+        fingerprint = _inputs_fingerprint(con, first, after,
+                                          reference_sets or list(settings.reference_sets),
+                                          settings, config)
+        con.execute(f"set memory_limit = '{AUDIT_MEMORY_LIMIT}'")
+        for name in _MATERIALISED:
+            con.execute(sql(f"materialise_{name}"))
         choice = choose_reference_sets(
             _records(con.execute(sql("select_reference_set_meta"))), first,
             after - dt.timedelta(days=1), explicit=reference_sets or list(settings.reference_sets),
@@ -538,36 +658,27 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("audit_medians"), params)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
-        _register_temp(con, "ct_accumulated", pa.Table.from_pylist(
-            _accumulated_ctdivol(con, first, after), schema=_ACCUMULATED_SCHEMA))
+        con.execute(sql("create_ct_accumulated"), {
+            "date_from": first, "date_to": after, "method_by_position": METHOD_BY_POSITION,
+            "method_upper_bound": METHOD_UPPER_BOUND})
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
                                          "outlier_min_n": settings.outlier_min_n,
                                          "adult_min_age": settings.adult_min_age_years})
-        estimates = study_estimates(_records(con.execute(sql("select_ct_for_estimates"),
-                                                         {"date_to": after})), settings)
-        con.register("incoming_study_estimate", pa.Table.from_pylist(estimates, schema=_ESTIMATE_SCHEMA))
+        con.register("effective_dose_factor", _effective_dose_factors(con, after, settings))
+        con.register("ssde_fit", _ssde_fits(settings))
         try:
-            con.execute(sql("create_study_estimate"))
+            con.execute(sql("create_study_estimate"), {"date_to": after})
         finally:
-            con.unregister("incoming_study_estimate")
+            con.unregister("effective_dose_factor")
+            con.unregister("ssde_fit")
         con.execute(sql("cumulative_alerts"), {"date_from": first, "date_to": after,
                                                "window_from": _months_before(after, 12)})
         psd_thresholds = [r["threshold"] for r in rules if r["family"] == "peak_skin_dose"]
-        skin_factors: list[dict] = []
-        skin, cells = skin_dose_rows(_records(con.execute(
-            sql("select_skin_dose_events"), {"date_from": first, "date_to": after})),
-            min(psd_thresholds) if psd_thresholds else None, skin_factors)
-        _register_temp(con, "skin_dose", pa.Table.from_pylist(skin, schema=_SKIN_DOSE_SCHEMA))
-        _register_temp(con, "skin_dose_map", pa.Table.from_pylist(cells, schema=_SKIN_MAP_SCHEMA))
-        _register_temp(con, "skin_dose_factor",
-                       pa.Table.from_pylist(skin_factors, schema=_SKIN_FACTOR_SCHEMA))
+        _skin_dose(con, first, after, min(psd_thresholds) if psd_thresholds else None)
         con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
         con.execute(sql("monthly_medians"), adult)
-        history = con.execute(sql("drift_input"), adult).df()
-        drift = detect_drift(history, alpha=settings.drift_alpha,
-                             min_change=settings.drift_min_change,
-                             min_n_side=settings.drift_min_n_side)
+        drift = _drift_flags(con, after, settings)
         drift.insert(0, "period", label)
         con.register("incoming_drift_flags",
                      pa.Table.from_pandas(drift, schema=_DRIFT_SCHEMA, preserve_index=False))
@@ -578,11 +689,12 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         con.execute(sql("update_median_after_change"), {"date_from": first, "date_to": after,
                                                         "adult_min_age": settings.adult_min_age_years})
         length = period_length(first, after)
+        recorded_at = dt.datetime.now(dt.UTC).replace(tzinfo=None)
         for table in ("audit_medians", "dose_alerts", "drift_flags"):
             _run_statements(con, sql(f"set_item_id_{table}"), {"period_length": length})
         _run_statements(con, sql("record_audit_findings"), {
             "period": label, "date_from": first, "date_last": after - dt.timedelta(days=1),
-            "period_length": length, "recorded_at": dt.datetime.now(dt.UTC).replace(tzinfo=None)})
+            "period_length": length, "recorded_at": recorded_at})
         summary = AuditSummary(label, first, after - dt.timedelta(days=1), chosen,
                                reference_body=choice.body, reference_basis=choice.basis,
                                fallback_sets=list(choice.fallback),
@@ -601,5 +713,9 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
             "silent_days": settings.silent_days, "volume_drop": float(settings.volume_drop),
             "min_history_weeks": settings.min_history_weeks})
         summary.data_alerts = _records(con.execute(sql("select_data_alerts")))
+        # last: only a run that got this far counts as current (audit_is_current)
+        con.execute(sql("set_audit_inputs_fingerprint"), {
+            "fingerprint": fingerprint, "date_from": first,
+            "date_last": after - dt.timedelta(days=1), "recorded_at": recorded_at})
     return summary
 

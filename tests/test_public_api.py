@@ -69,3 +69,10 @@ def test_issue_13_researcher_exports():
     assert {"PUBLIC_RELATIONS", "build_dictionary", "check_dictionary", "render_markdown",
             "fresh_public_columns"} <= set(dictionary.__all__)
     assert "QueryError" in errors.__all__ and issubclass(errors.QueryError, errors.DoseAuditError)
+
+
+def test_issue_14_exports():
+    from pipeline import audit
+    from pipeline.metrics import drift
+    assert {"audit_is_current", "AUDIT_MEMORY_LIMIT"} <= set(audit.__all__)
+    assert {"best_change_points", "drift_flags", "SERIES_KEYS"} <= set(drift.__all__)

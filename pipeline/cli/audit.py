@@ -122,15 +122,20 @@ def dashboard_command(
     """Write the offline dashboards (one self-contained HTML page per area) for a period."""
     from dashboards.site import write_site
 
-    from ..audit import run_audit
+    from ..audit import audit_is_current, run_audit
     from ..config import DEFAULT_CONFIG
     from ..errors import ConfigError, WarehouseError
 
     try:
         d_from = parse_day(date_from, "--from")
         d_to = parse_day(date_to, "--to")
-        run_audit(warehouse, period=period, date_from=d_from, date_to=d_to,
-                  reference_sets=reference or None, config=config or DEFAULT_CONFIG)
+        arguments = {"period": period, "date_from": d_from, "date_to": d_to,
+                     "reference_sets": reference or None, "config": config or DEFAULT_CONFIG}
+        if Path(warehouse).exists() and audit_is_current(warehouse, **arguments):
+            console.print("The audit of this period is current (no data or settings changed "
+                          "since): not re-run.")
+        else:
+            run_audit(warehouse, **arguments)
         index = write_site(warehouse, out)
     except ValueError as exc:
         fail(str(exc))

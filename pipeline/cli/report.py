@@ -29,7 +29,7 @@ def report_command(
     statistical findings; new / persisting / resolved since the previous period; coverage per
     modality; the cautions. Detail sections follow.
     """
-    from ..audit import period_bounds, previous_period, run_audit
+    from ..audit import audit_is_current, period_bounds, previous_period, run_audit
     from ..config import DEFAULT_CONFIG
     from ..errors import ConfigError, WarehouseError
     from ..report import write_report
@@ -43,12 +43,20 @@ def report_command(
             raise WarehouseError(f"no warehouse at {warehouse}: run `kerma ingest` first")
         prev_first, prev_after = previous_period(first, after)
         settings = {"reference_sets": reference or None, "config": config or DEFAULT_CONFIG}
-        try:
-            run_audit(warehouse, date_from=prev_first, date_to=prev_after - dt.timedelta(days=1),
-                      **settings)
-        except ConfigError as exc:   # e.g. no reference set in force then: compare nothing
-            console.print(f"[yellow]previous period not audited:[/yellow] {exc}")
-        run_audit(warehouse, period=period, date_from=d_from, date_to=d_to, **settings)
+        previous = {"date_from": prev_first, "date_to": prev_after - dt.timedelta(days=1)}
+        current = {"period": period, "date_from": d_from, "date_to": d_to}
+        # an audit whose inputs have not changed since is not re-run (pipeline.audit.audit_is_current);
+        # auditing the previous period replaces the audit tables, so the current one follows it
+        previous_current = audit_is_current(warehouse, **previous, **settings, holds_tables=False)
+        if not previous_current:
+            try:
+                run_audit(warehouse, **previous, **settings)
+            except ConfigError as exc:   # e.g. no reference set in force then: compare nothing
+                console.print(f"[yellow]previous period not audited:[/yellow] {exc}")
+        if not previous_current or not audit_is_current(warehouse, **current, **settings):
+            run_audit(warehouse, **current, **settings)
+        else:
+            console.print("The audits of this period and the previous one are current: not re-run.")
         written = write_report(warehouse, out, fmt=fmt)
     except (ConfigError, WarehouseError) as exc:
         fail(str(exc))

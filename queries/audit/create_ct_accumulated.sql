@@ -1,2 +1,45 @@
 -- grain: one row per CT study x device in the period: CTDIvol accumulated at a table position (NEMA XR 25) and how
-create or replace temp table ct_accumulated as select * from incoming_ct_accumulated
+-- Set-based form of pipeline.metrics.accumulated_ctdivol_by_position (the reference the tests
+-- compare it with): per acquisition (localizers excluded) its CTDIvol and scanning range (TID
+-- 10014 Top / Bottom Z Location of Scanning Length). With every range known: the maximum over
+-- the ranges' lower ends z of the summed CTDIvol of the ranges covering z (half-open [low, high),
+-- a zero-length range covers its own position); else the plain sum, an upper bound.
+create or replace temp table ct_accumulated as
+with
+acquisitions as (
+    select e.study_key, e.device_key, e.ctdivol_mgy,
+           least(e.top_z_scanning_length_mm, e.bottom_z_scanning_length_mm) as low_mm,
+           greatest(e.top_z_scanning_length_mm, e.bottom_z_scanning_length_mm) as high_mm,
+           e.top_z_scanning_length_mm is not null and e.bottom_z_scanning_length_mm is not null
+               as has_range
+    from irradiation_event as e
+    join study_dose as s using (study_key, device_key)
+    where s.study_date >= $date_from and s.study_date < $date_to
+      and e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+),
+per_study as (
+    select study_key, device_key, sum(ctdivol_mgy) as total_mgy, bool_and(has_range) as all_ranges
+    from acquisitions
+    group by study_key, device_key
+),
+by_position as (
+    select z.study_key, z.device_key, max(z.covered_mgy) as accumulated_mgy
+    from (
+        select p.study_key, p.device_key, p.low_mm, sum(a.ctdivol_mgy) as covered_mgy
+        from (select distinct study_key, device_key, low_mm from acquisitions) as p
+        join acquisitions as a
+          on a.study_key = p.study_key and a.device_key is not distinct from p.device_key
+         and ((a.low_mm <= p.low_mm and p.low_mm < a.high_mm)
+              or (a.low_mm = a.high_mm and a.high_mm = p.low_mm))
+        group by p.study_key, p.device_key, p.low_mm
+    ) as z
+    group by z.study_key, z.device_key
+)
+select s.study_key, s.device_key,
+       case when s.all_ranges then b.accumulated_mgy else s.total_mgy end as accumulated_ctdivol_mgy,
+       case when s.all_ranges then $method_by_position else $method_upper_bound end as method
+from per_study as s
+left join by_position as b
+  on b.study_key = s.study_key and b.device_key is not distinct from s.device_key
+ and s.all_ranges
+order by s.study_key, s.device_key

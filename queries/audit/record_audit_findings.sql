@@ -25,7 +25,7 @@ select $period as period, $date_from::date as date_from, $date_last::date as dat
        $period_length as period_length, f.*, $recorded_at::timestamp as recorded_at
 from findings as f
 qualify row_number() over (partition by item_id, rule order by value desc nulls last) = 1;
-insert into audit_period
+insert into audit_period (period, date_from, date_to, period_length, n_findings, audited_at)
 select $period, $date_from::date, $date_last::date, $period_length,
        (select count(*) from audit_finding where date_from = $date_from::date and date_to = $date_last::date),
        $recorded_at::timestamp;

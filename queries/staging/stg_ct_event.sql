@@ -6,18 +6,25 @@
 -- screen's and the images' events redundant; a dose screen makes the images' redundant).
 create or replace view stg_ct_event as
 with
+best_source as (
+    -- per study and modality, the best source any of its objects gives (1 report, 2 screen, 3 images)
+    select study_key, modality,
+           min(case object_kind when 'image_header' then 3 when 'dose_screen' then 2 else 1 end)
+               as best_rank
+    from raw_dose_object
+    group by study_key, modality
+),
 events as (
     select e.*, o.content_datetime, o.instance_number, o.object_kind, o.modality
     from raw_ct_event as e
     join raw_dose_object as o using (sop_instance_uid)
 ),
 kept as (
-    select * from events as e
-    where e.source_kind = 'rdsr' or not exists (
-        select 1 from raw_dose_object as r
-        where r.study_key = e.study_key and r.modality = e.modality
-          and (case r.object_kind when 'image_header' then 3 when 'dose_screen' then 2 else 1 end)
-            < (case e.source_kind when 'image_header' then 3 when 'dose_screen' then 2 else 1 end))
+    select e.* from events as e
+    left join best_source as b on b.study_key = e.study_key and b.modality = e.modality
+    where e.source_kind = 'rdsr' or b.best_rank is null
+       or b.best_rank >= (case e.source_kind when 'image_header' then 3
+                                            when 'dose_screen' then 2 else 1 end)
 )
 select * from kept
 qualify row_number() over (

@@ -10,14 +10,18 @@
 -- same CTDIvol (1 %) is another reconstruction of the same irradiation, counted once.
 create or replace view stg_ct_image_series as
 with
+other_source as (
+    -- studies x modality with an object other than image headers (a report or a dose screen)
+    select distinct study_key, modality
+    from raw_dose_object
+    where object_kind <> 'image_header'
+),
 images as (
     select e.*, o.modality
     from raw_ct_event as e
     join raw_dose_object as o using (sop_instance_uid)
-    where e.source_kind = 'image_header' and not exists (
-        select 1 from raw_dose_object as r
-        where r.study_key = e.study_key and r.modality = o.modality
-          and r.object_kind <> 'image_header')
+    anti join other_source as r on r.study_key = e.study_key and r.modality = o.modality
+    where e.source_kind = 'image_header'
 ),
 series as (
     select study_key, device_key,
