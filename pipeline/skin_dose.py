@@ -437,16 +437,20 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
             k = (table_z - source[2]) / np.where(rel[..., 2] > 0, rel[..., 2], np.inf)
             x_cross = source[0] + k * rel[..., 0]
             through = (k > 0) & (k <= 1) & (np.abs(x_cross - x0) <= s.table_half_width_mm)
-        trans = np.where(through, s.table_transmission, 1.0)
-        bsf = _bsf(e.kvp, np.where(hit, side_at_t, 100.0) / 10.0, e.added_cu_mm)
-        cell = e.dose_rp_mgy * (d_rp / dist) ** 2 * bsf * F_TISSUE_AIR * trans
-        dose += np.where(hit, cell, 0.0)
-        i, j = np.unravel_index(np.argmax(np.where(hit, cell, -1.0)), hit.shape)
+        # the factors are evaluated on the irradiated cells only (the interpolation of the
+        # backscatter table is the costly part; cells outside the field get nothing)
+        rows_hit, cols_hit = np.nonzero(hit)
+        trans = np.where(through[rows_hit, cols_hit], s.table_transmission, 1.0)
+        bsf = _bsf(e.kvp, side_at_t[rows_hit, cols_hit] / 10.0, e.added_cu_mm)
+        dist_hit = dist[rows_hit, cols_hit]
+        cell = e.dose_rp_mgy * (d_rp / dist_hit) ** 2 * bsf * F_TISSUE_AIR * trans
+        dose[rows_hit, cols_hit] += cell
+        m = int(np.argmax(cell))
         per_event.append({"has_geometry": True, "hit": True,
-                          "inverse_square": float((d_rp / dist[i, j]) ** 2),
-                          "bsf": float(bsf[i, j]), "f": F_TISSUE_AIR,
-                          "table_transmission": float(trans[i, j]),
-                          "d_rp_mm": d_rp, "d_skin_mm": float(dist[i, j]),
+                          "inverse_square": float((d_rp / dist_hit[m]) ** 2),
+                          "bsf": float(bsf[m]), "f": F_TISSUE_AIR,
+                          "table_transmission": float(trans[m]),
+                          "d_rp_mm": d_rp, "d_skin_mm": float(dist_hit[m]),
                           "position": position})
     psd = float(dose.max()) + fallback if dose.size else fallback
     ka_r = float(sum(e.dose_rp_mgy for e in events))
