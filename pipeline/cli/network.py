@@ -22,7 +22,7 @@ def export_command(
     out: Path | None = typer.Option(None, "--out", help="New folder for the site extract."),
     key_scope: str | None = typer.Option(
         None, "--key-scope", help="network: the pseudonymisation key is the network's shared key "
-        "(patients link across sites); site: the site's own key (they do not)."),
+        "(patients link across sites); site (default): the site's own key (they do not)."),
     key_file: Path | None = typer.Option(
         None, "--key-file", help="The warehouse's pseudonymisation key (else $KERMA_PSEUDONYM_KEY)."),
     lake: Path | None = typer.Option(
@@ -51,11 +51,11 @@ def export_command(
                           f"{', '.join(summary.absent)}")
         return
     missing = [o for o, v in (("--site", site), ("--from", date_from), ("--to", date_to),
-                              ("--out", out), ("--key-scope", key_scope)) if v is None]
+                              ("--out", out)) if v is None]
     if missing:
         fail(f"a site extract needs {', '.join(missing)} (or give --lake DIR for the lake)")
     try:
-        scope = KeyScope(key_scope)
+        scope = KeyScope(key_scope or KeyScope.SITE.value)   # claim no cross-site linkage unless told
     except ValueError:
         fail(f"--key-scope must be 'network' or 'site', not {key_scope!r}")
     d_from, d_to = parse_day(date_from, "--from"), parse_day(date_to, "--to")

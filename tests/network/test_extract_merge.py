@@ -397,13 +397,19 @@ def test_merge_refuses_a_site_warehouse(extracts, combined):
     assert _digest(combined) == before
 
 
-def test_cli_export_needs_a_declared_key_scope(combined, tmp_path, monkeypatch):
+def test_cli_export_records_the_declared_key_scope_and_defaults_to_site(combined, tmp_path,
+                                                                        monkeypatch):
     monkeypatch.setenv("KERMA_PSEUDONYM_KEY", KEY.decode())
     base = ["export", "--warehouse", str(combined), "--site", SITES["MPH"], "--from",
-            "2026-09-01", "--to", "2026-09-30", "--out", str(tmp_path / "x")]
-    result = CliRunner().invoke(app, base)
+            "2026-09-01", "--to", "2026-09-30"]
+    # the command line of the issue, without --key-scope: the site's own key is declared
+    result = CliRunner().invoke(app, [*base, "--out", str(tmp_path / "d")])
+    assert result.exit_code == 0, result.output
+    default = json.loads((tmp_path / "d" / "manifest.json").read_text())
+    assert default["pseudonymisation"]["key_scope"] == "site"
+    result = CliRunner().invoke(app, [*base, "--out", str(tmp_path / "b"), "--key-scope", "both"])
     assert result.exit_code == 2 and "--key-scope" in result.output
-    result = CliRunner().invoke(app, [*base, "--key-scope", "network"])
+    result = CliRunner().invoke(app, [*base, "--out", str(tmp_path / "x"), "--key-scope", "network"])
     assert result.exit_code == 0, result.output
     manifest = json.loads((tmp_path / "x" / "manifest.json").read_text())
     assert manifest["pseudonymisation"]["key_scope"] == "network"
