@@ -390,6 +390,7 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
     rp_notes: set[str] = set()
     positions: set[str] = set()
     n_geom = 0
+    posed: dict = {}
     for e in events:
         if not e.has_geometry:
             side = math.sqrt(e.field_area_cm2) if e.field_area_cm2 else 10.0
@@ -401,8 +402,11 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
             per_event.append({"has_geometry": False, "bsf": bsf, "f": F_TISSUE_AIR})
             continue
         n_geom += 1
-        rotation, position = patient_rotation(e.patient_orientation_modifier,
-                                              e.patient_table_relationship)
+        pose = (e.patient_orientation_modifier, e.patient_table_relationship)
+        if pose not in posed:   # the phantom turned once per patient position of the study
+            rotation, position = patient_rotation(*pose)
+            posed[pose] = (rotation, position, body @ rotation.T, normal_body @ rotation.T)
+        rotation, position, body_room, normal = posed[pose]
         positions.add(position)
         table_z = (e.table_height_mm if e.table_height_mm is not None else -b) + \
             (s.table_height_offset_mm if e.table_height_mm is not None else 0.0)
@@ -410,8 +414,7 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
         y0 = e.table_longitudinal_mm or 0.0
         # the rotated ellipse rests on the table top: its lowest point at table_z
         rest = math.hypot(rotation[2, 0] * a, rotation[2, 2] * b)
-        points = body @ rotation.T + np.array([x0, y0, table_z + rest])
-        normal = normal_body @ rotation.T
+        points = body_room + np.array([x0, y0, table_z + rest])
         d = beam_direction(e.primary_angle_deg, e.secondary_angle_deg)
         sod = float(e.source_to_isocenter_mm)
         source = -sod * d
@@ -423,10 +426,10 @@ def compute_skin_dose(events: list[SkinDoseEvent], *, height_m: float | None = N
         u /= np.linalg.norm(u)
         v = np.cross(d, u)
         rel = points - source
-        t = rel @ d
-        dist = np.linalg.norm(rel, axis=-1)
+        t, across_u, across_v = np.moveaxis(rel @ np.stack([d, u, v], axis=1), -1, 0)
+        dist = np.sqrt(np.einsum("ijk,ijk->ij", rel, rel))
         side_at_t = (math.sqrt(e.field_area_cm2) * 10.0 if e.field_area_cm2 else 100.0) * t / sid
-        inside = (t > 0) & (np.abs(rel @ u) <= side_at_t / 2) & (np.abs(rel @ v) <= side_at_t / 2)
+        inside = (t > 0) & (np.abs(across_u) <= side_at_t / 2) & (np.abs(across_v) <= side_at_t / 2)
         facing = np.einsum("ijk,ijk->ij", normal, rel) < 0
         hit = inside & facing
         if not hit.any():
