@@ -12,7 +12,7 @@ from ..model import MAX_TABLE_ROWS, Block, Column, DataLink, Note, Page, Plot, S
 from ..render import cell_text
 from .common import ALERT_COLUMNS, alert_rows, empty
 
-__all__ = ["EVENT_COLUMNS", "MAX_DETAIL_STUDIES", "MAX_STUDY_EVENTS", "StudyDetail", "alerts",
+__all__ = ["EVENT_COLUMNS", "MAX_DETAIL_STUDIES", "MAX_SKIN_MAPS", "MAX_STUDY_EVENTS", "StudyDetail", "alerts",
            "detail_studies", "rule_counts", "study_details"]
 
 MAX_STUDY_EVENTS = 40    # events listed per study on the page; alert-events.csv has all of them
@@ -79,15 +79,21 @@ def rule_counts(counts: pd.DataFrame) -> pd.DataFrame:
 
 
 _SKIN_NOTE = "skin-dose-caution"
+_SKIN_MORE = "skin-dose-more"
+MAX_SKIN_MAPS = 12       # maps drawn on the page (highest peak skin dose first); ~17 kB each
 
 
 def _skin_dose_section(maps: pd.DataFrame) -> Section:
-    """One skin-dose map per study with a peak-skin-dose alert, and the cautions."""
+    """One skin-dose map per study with a peak-skin-dose alert (the highest `MAX_SKIN_MAPS`
+    peak skin doses; the rows come highest first), and the cautions."""
     blocks: list[Block] = [Note(_SKIN_NOTE)]
-    for (study_key, device_key), rows in maps.groupby(["study_key", "device_key"], sort=False):
+    studies = list(maps.groupby(["study_key", "device_key"], sort=False))
+    for (study_key, device_key), rows in studies[:MAX_SKIN_MAPS]:
         label = f"Study {rows['study_label'].iloc[0]} ({rows['site_label'].iloc[0]})"
         blocks.append(Plot(f"fig-skin-dose-{slug(study_key, device_key)}",
                            figures.build_skin_dose_map(rows, title=label), ""))
+    if len(studies) > MAX_SKIN_MAPS:
+        blocks.append(Note(_SKIN_MORE, {"shown": MAX_SKIN_MAPS, "total": len(studies)}))
     return Section("skin-dose", "Skin-dose maps of studies at the peak-skin-dose level", tuple(blocks))
 
 

@@ -46,3 +46,23 @@ def test_alerts_page_has_one_map_per_peak_skin_dose_alert_and_the_cautions(site,
     assert alerted >= 1 and len(set(ids)) == alerted
     assert "&plusmn;40&nbsp;%" in html and "responsible physician" in html
     assert "qualified medical physicist" in html
+
+
+def test_the_page_draws_the_highest_maps_only_and_says_how_many_more():
+    # common practice, no source: a page holds a bounded number of maps; the data keeps all
+    from dashboards.model import Note, Plot
+    from dashboards.pages.alerts import MAX_SKIN_MAPS, _skin_dose_section
+
+    n = MAX_SKIN_MAPS + 3
+    maps = pd.DataFrame({
+        "study_key": [f"s{i:03d}" for i in range(n) for _ in range(2)],
+        "device_key": "d", "study_label": "x", "site_label": "Site",
+        "psd_gy": [4.0 - 0.01 * i for i in range(n) for _ in range(2)],
+        "around_mm": [0.0, 10.0] * n, "along_mm": 0.0, "dose_gy": 1.0})
+    blocks = _skin_dose_section(maps).blocks
+    plots = [b for b in blocks if isinstance(b, Plot)]
+    assert plots[0].div_id == "fig-skin-dose-s000-d"   # rows arrive highest PSD first
+    assert len(plots) == MAX_SKIN_MAPS
+    assert not any(p.div_id.startswith(f"fig-skin-dose-s{n - 1:03d}") for p in plots)
+    more = [b for b in blocks if isinstance(b, Note) and b.key == "skin-dose-more"]
+    assert more and more[0].values == {"shown": MAX_SKIN_MAPS, "total": n}
