@@ -161,11 +161,15 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
         The warehouse cannot be opened, or it has not been audited.
     """
     from pipeline import __version__
+    from pipeline.audit import AUDIT_MEMORY_LIMIT
     from pipeline.warehouse.connection import connection
 
     warehouse, out = Path(warehouse), Path(out)
     stamp = generated_at or dt.datetime.now(dt.UTC).replace(microsecond=0)
     with connection(warehouse, read_only=True) as con:
+        # the same bound as the audit's: DuckDB spills instead of growing with the warehouse
+        # (1M events: peak RSS 6.1 GiB without it, 1.4 GiB with it, at about twice the time)
+        con.execute(f"set memory_limit = '{AUDIT_MEMORY_LIMIT}'")
         _check_audited(con, warehouse)
         data, label, first, last, sets = read_site_data(con)
     context = Context(period=label, date_from=first, date_to=last, reference_sets=sets,
