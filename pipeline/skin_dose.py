@@ -54,14 +54,14 @@ __all__ = ["BSF_SOURCE", "F_SOURCE", "F_TISSUE_AIR", "REFERENCE_ADULT", "SkinDos
 # its ICRU-tissue table). The numbers were read, through the search tool, from the tabulation
 # distributed with the PySkinDose research code (rvbCMTS/PySkinDose,
 # src/pyskindose/table_data/correction_medium_and_backscatter.csv at commit 3cb23ea, whose
-# loader credits Benmakhlouf et al.), not from the paper itself: check against the paper before
+# loader credits Benmakhlouf et al.), not from the original article: check against the article before
 # clinical use. queries/seeds/skin_backscatter.csv holds them; queries/seeds/skin_dose_factors.md
 # says what was read where. Looked up with scipy's RegularGridInterpolator (linear), clamped at
 # the table's edges; an unknown copper filtration takes the largest B over the tabulated
 # filtrations (an upper bound, said so in the result).
 BSF_SOURCE = ("backscatter factor B(kVp, added Cu, field side at the skin), ICRU tissue: "
               "Benmakhlouf et al. 2011, Phys Med Biol 56:7179 (60-120 kV, 0-0.9 mm Cu, field "
-              "sides 5-35 cm), as tabulated in the PySkinDose repository (not read in the paper); "
+              "sides 5-35 cm), as tabulated in the PySkinDose repository (not read in the original article); "
               "linear interpolation, clamped at the table edges; unknown Cu -> largest B over Cu")
 # Ratio of mass energy-absorption coefficients, ICRU-44 soft tissue to dry air: 1.06. NIST
 # (Hubbell & Seltzer, NIST Standard Reference Database 126, Table 4) gives 1.0514 at 30 keV,

@@ -25,7 +25,7 @@ PA = dict(dose_rp_mgy=1000.0, kvp=80.0, added_cu_mm=0.1, primary_angle_deg=0.0,
           table_lateral_mm=0.0, reference_point_definition="15cm from Isocenter toward Source")
 
 # Benmakhlouf et al. 2011, ICRU tissue, 3.1 mm Al + 0.1 mm Cu at 80 kV (HVL 4.66 mm Al):
-# B = 1.392 for a 10 cm x 10 cm field and 1.476 for 20 cm x 20 cm (PySkinDose transcription)
+# B = 1.392 for a 10 cm x 10 cm field and 1.476 for 20 cm x 20 cm (copy in the PySkinDose repository)
 B_80KV_01CU_10CM, B_80KV_01CU_20CM = 1.392, 1.476
 
 
@@ -123,7 +123,7 @@ def test_backscatter_is_clamped_and_unknown_copper_takes_the_largest():
     assert backscatter_factor(80.0, 20.0, None) == pytest.approx(1.605)
     # ICRP Publication 117 (from memory) gives B of about 1.2-1.6 for these beams
     assert 1.2 <= values.min() and values.max() <= 1.7
-    assert "Benmakhlouf et al. 2011" in BSF_SOURCE and "not read in the paper" in BSF_SOURCE
+    assert "Benmakhlouf et al. 2011" in BSF_SOURCE and "not read in the original article" in BSF_SOURCE
 
 
 def test_tissue_to_air_ratio_against_the_nist_tables():
