@@ -28,6 +28,8 @@ from .exams import load_exam_rules, load_indication_rules, rule_rows
 from .metrics import median_ci_ranks
 from .metrics.dose_check import METHOD_BY_POSITION, METHOD_UPPER_BOUND
 from .warehouse.connection import connection
+from .metrics.skin import skin_dose_rows
+from .warehouse.derived import MAP_FLOOR_MGY, refresh_derived, skin_rows_for
 from .warehouse.load import ensure_schema, replace_exam_rules
 
 __all__ = ["AUDIT_MEMORY_LIMIT", "AuditSettings", "AuditSummary", "audit_is_current",
@@ -271,18 +273,6 @@ _ESTIMATE_SCHEMA = pa.schema(
      ("effective_dose_msv", pa.float64()), ("k_msv_per_mgy_cm", pa.float64()),
      ("effective_dose_basis", pa.string()), ("effective_dose_source", pa.string()),
      ("ssde_mgy", pa.float64()), ("ssde_method", pa.string())])
-_SKIN_DOSE_SCHEMA = pa.schema(
-    [("study_key", pa.string()), ("patient_key", pa.string()), ("device_key", pa.string()),
-     ("site", pa.string()), ("modality", pa.string()), ("exam_type", pa.string()),
-     ("study_date", pa.date32()), ("psd_mgy", pa.float64()), ("method", pa.string()),
-     ("n_events", pa.int64()), ("n_events_with_geometry", pa.int64()),
-     ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
-     ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
-     ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
-_SKIN_FACTOR_SCHEMA = pa.schema(
-    [("study_key", pa.string()), ("device_key", pa.string()), ("factor", pa.string()),
-     ("n_events", pa.int64()), ("value_min", pa.float64()), ("value_max", pa.float64()),
-     ("source", pa.string())])
 _SKIN_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
                               ("around_mm", pa.float64()), ("along_mm", pa.float64()),
                               ("dose_mgy", pa.float64())])
@@ -295,11 +285,12 @@ _K_SCHEMA = pa.schema([("exam_type", pa.string()), ("patient_age_years", pa.floa
 _FIT_SCHEMA = pa.schema([("phantom", pa.string()), ("a", pa.float64()), ("b_per_cm", pa.float64()),
                          ("d_min_cm", pa.float64()), ("d_max_cm", pa.float64()),
                          ("usable", pa.bool_())])
-# Relations the audit reads many times, computed once per run into temporary tables that hide
-# the views of the same name for the run's connection (queries/audit/materialise_*.sql), in
-# dependency order.
-_MATERIALISED = ("stg_exam_text", "stg_exam_match", "irradiation_event", "study_dose",
-                 "audit_observation")
+# Relations the audit reads many times and that depend on the configuration (exam rules, site
+# map), computed once per run into temporary tables that hide the views of the same name for
+# the run's connection (queries/audit/materialise_*.sql), in dependency order. What depends on
+# the data only (deduplicated events, exam texts, study totals, skin dose) is kept as derived_*
+# tables, refreshed per ingest run (pipeline/warehouse/derived.py).
+_MATERIALISED = ("stg_exam_match", "study_dose", "audit_observation")
 # DuckDB working memory of an audit run: beyond it, sorts, joins and the temporary tables above
 # spill to the temp directory beside the warehouse, so memory stays flat however much history
 # the warehouse holds (common practice, no source: half of a small 2-core, 4 GiB machine's RAM
@@ -398,71 +389,6 @@ def _drift_flags(con, after: dt.date, settings: AuditSettings):
                        min_change=settings.drift_min_change)
 
 
-def _added_cu_mm(material: str | None, thickness_mm: float | None) -> float | None:
-    """Copper filtration of an event from its (first) X-Ray Filters item: copper -> its
-    thickness, aluminium only -> 0; otherwise unknown."""
-    name = (material or "").strip().lower()
-    if name in ("copper", "cu") and thickness_mm is not None:
-        return float(thickness_mm)
-    return 0.0 if name in ("aluminum", "aluminium", "al") else None
-
-
-def skin_dose_rows(rows, map_threshold_mgy: float | None = None,
-                   factors: list[dict] | None = None) -> tuple[list[dict], list[dict]]:
-    """Per RF/XA study x device: the peak skin dose estimate (pipeline/skin_dose.py).
-
-    `rows` are mappings, one per event, in study order (queries/audit/select_skin_dose_events.sql);
-    missing values are None. Returns (one row per study, the non-zero cells of the skin-dose map
-    of each study whose PSD reaches `map_threshold_mgy`; none when it is None). When `factors`
-    is a list, one row per study x factor (range over the events and source) is appended to it.
-    """
-    from itertools import groupby
-
-    from .skin_dose import UNCERTAINTY_NOTE, SkinDoseEvent, compute_skin_dose
-
-    out, cells = [], []
-    for _, group in groupby(rows, key=lambda r: (r["study_key"], r["device_key"])):
-        group = list(group)
-        first = group[0]
-        events = [SkinDoseEvent(
-            dose_rp_mgy=float(r["dose_rp_mgy"]), kvp=r["kvp"],
-            primary_angle_deg=r["positioner_primary_angle_deg"],
-            secondary_angle_deg=r["positioner_secondary_angle_deg"],
-            source_to_isocenter_mm=r["distance_source_to_isocenter_mm"],
-            source_to_detector_mm=r["distance_source_to_detector_mm"],
-            source_to_rp_mm=r["distance_source_to_rp_mm"],
-            field_area_cm2=(r["collimated_field_area_m2"] * 1e4
-                            if r["collimated_field_area_m2"] is not None else None),
-            table_longitudinal_mm=r["table_longitudinal_mm"], table_lateral_mm=r["table_lateral_mm"],
-            table_height_mm=r["table_height_mm"],
-            reference_point_definition=r["reference_point_definition"],
-            added_cu_mm=_added_cu_mm(r.get("filter_material"), r.get("filter_thickness_mm")),
-            patient_orientation_modifier=r.get("patient_orientation_modifier"),
-            patient_table_relationship=r.get("patient_table_relationship")) for r in group]
-        result = compute_skin_dose(events, height_m=first["patient_height_m"],
-                                   weight_kg=first["patient_weight_kg"])
-        out.append({**{k: first[k] for k in ("study_key", "patient_key", "device_key", "site",
-                                             "modality", "exam_type", "study_date")},
-                    "psd_mgy": result.psd_mgy, "method": result.method,
-                    "n_events": result.n_events,
-                    "n_events_with_geometry": result.n_events_with_geometry,
-                    "ka_r_total_mgy": result.ka_r_total_mgy, "psd_to_ka_r": result.psd_to_ka_r,
-                    "is_upper_bound": result.is_upper_bound,
-                    "upper_bound_part_mgy": result.upper_bound_part_mgy,
-                    "phantom": result.phantom.basis,
-                    "factor_sources": "; ".join(f"{k}: {v}" for k, v in result.factors.items()),
-                    "uncertainty_note": UNCERTAINTY_NOTE})
-        if factors is not None:
-            factors += [{"study_key": first["study_key"], "device_key": first["device_key"], **f}
-                        for f in result.factor_rows()]
-        if map_threshold_mgy is not None and result.psd_mgy >= map_threshold_mgy:
-            i, j = result.dose_map_mgy.nonzero()
-            cells += [{"study_key": first["study_key"], "device_key": first["device_key"],
-                       "around_mm": float(result.around_mm[a]), "along_mm": float(result.along_mm[b]),
-                       "dose_mgy": float(result.dose_map_mgy[a, b])} for a, b in zip(i, j)]
-    return out, cells
-
-
 @cache
 def _code_digest() -> str:
     """SHA-256 over the SQL, seeds and Python of the pipeline: a changed query or reference file
@@ -540,37 +466,23 @@ def audit_is_current(warehouse: Path, *, period: str | None = None,
         return latest[3] == _inputs_fingerprint(con, first, after, explicit, settings, config)
 
 
-def _skin_dose(con, first: dt.date, after: dt.date, map_threshold_mgy: float | None,
-               chunk_rows: int = 50_000) -> None:
-    """Tables skin_dose, skin_dose_map and skin_dose_factor of the period: `skin_dose_rows` over
-    the events, streamed in chunks of whole studies, so memory does not grow with the number of
-    events."""
-    cursor = con.execute(sql("select_skin_dose_events"), {"date_from": first, "date_to": after})
-    columns = [d[0] for d in cursor.description]
-    skin, cells, factors, carry = [], [], [], []
-    while True:
-        batch = cursor.fetchmany(chunk_rows)
-        rows = carry + [dict(zip(columns, r)) for r in batch]
-        if batch and rows:   # hold back the last study: its events may go on in the next batch
-            last = (rows[-1]["study_key"], rows[-1]["device_key"])
-            cut = len(rows)
-            while cut and (rows[cut - 1]["study_key"], rows[cut - 1]["device_key"]) == last:
-                cut -= 1
-            rows, carry = rows[:cut], rows[cut:]
-        else:
-            carry = []
-        if rows:
-            study_factors: list[dict] = []
-            studies, study_cells = skin_dose_rows(rows, map_threshold_mgy, study_factors)
-            skin.append(pa.Table.from_pylist(studies, schema=_SKIN_DOSE_SCHEMA))
-            cells.append(pa.Table.from_pylist(study_cells, schema=_SKIN_MAP_SCHEMA))
-            factors.append(pa.Table.from_pylist(study_factors, schema=_SKIN_FACTOR_SCHEMA))
-        if not batch:
-            break
-    _register_temp(con, "skin_dose", pa.concat_tables(skin) if skin else _SKIN_DOSE_SCHEMA.empty_table())
-    _register_temp(con, "skin_dose_map", pa.concat_tables(cells) if cells else _SKIN_MAP_SCHEMA.empty_table())
-    _register_temp(con, "skin_dose_factor",
-                   pa.concat_tables(factors) if factors else _SKIN_FACTOR_SCHEMA.empty_table())
+def _skin_dose(con, first: dt.date, after: dt.date, map_threshold_mgy: float | None) -> None:
+    """Tables skin_dose, skin_dose_map and skin_dose_factor of the period, from the peak skin
+    doses kept per study (derived_skin_dose*, pipeline/warehouse/derived.py); only the maps of
+    studies below the kept maps' floor that `map_threshold_mgy` asks for are computed here."""
+    con.execute(sql("create_skin_dose"), {"date_from": first, "date_to": after})
+    con.execute(sql("create_skin_dose_factor"))
+    extra = [_SKIN_MAP_SCHEMA.empty_table()]
+    if map_threshold_mgy is not None and map_threshold_mgy < MAP_FLOOR_MGY:
+        con.execute(sql("create_skin_map_wanted"),
+                    {"threshold": map_threshold_mgy, "floor": MAP_FLOOR_MGY})
+        reader = con.sql(sql("select_skin_map_events")).to_arrow_reader(50_000)
+        extra += [cells for _, cells, _ in skin_rows_for(reader, map_threshold_mgy)]
+    con.register("incoming_skin_dose_map", pa.concat_tables(extra))
+    try:
+        con.execute(sql("create_skin_dose_map"), {"threshold": map_threshold_mgy})
+    finally:
+        con.unregister("incoming_skin_dose_map")
 
 
 def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date | None = None,
@@ -611,6 +523,9 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
     first, after, label = period_bounds(period, date_from, date_to)
     with connection(warehouse) as con:   # never creates one: a missing file is an error
         ensure_schema(con)
+        # a no-op after an ingest (it refreshed them); a rebuild for a warehouse of an earlier
+        # version or one written without saying which studies changed
+        refresh_derived(con)
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
         install_reference_sets(con)
         fingerprint = _inputs_fingerprint(con, first, after,

@@ -29,6 +29,7 @@ from .pseudonym import key_fingerprint, make_pseudonymiser
 from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_object
 from .warehouse.connection import connection
 from .warehouse.key_epoch import check_key_epoch
+from .warehouse.derived import raw_state, refresh_derived
 from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
 from .warehouse.tables import arrow_table
 
@@ -61,6 +62,7 @@ class IngestSummary:
     not_dose_reasons: Counter = field(default_factory=Counter)
     value_issues: int = 0
     key_epoch: int | None = None   # the pseudonymisation-key epoch the files were loaded in
+    derived: object = None         # what the refresh of the derived tables did (RefreshResult)
 
     @property
     def loaded(self) -> int:
@@ -293,6 +295,8 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
         con.execute(_sql("insert_run"))
         con.unregister("incoming_run")
         loaded_sops = {r[0] for r in con.execute(_sql("select_loaded_sops")).fetchall()}
+        since = raw_state(con)   # the derived tables are refreshed from here for what is loaded
+        touched: set[str] = set()
         try:
             # With worker processes the next batch is parsed while this one is loaded: at most
             # two batches are in flight, so memory stays flat however many files there are.
@@ -300,10 +304,10 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
             for chunk in _chunks(iter_candidates(list(paths)), batch_size):
                 dispatched = _dispatch_chunk(con, chunk, pool, pseudonymise, summary, parse)
                 if in_flight is not None:
-                    _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress)
+                    _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress, touched)
                 in_flight = dispatched
             if in_flight is not None:
-                _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress)
+                _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress, touched)
         finally:
             if pool is not None:
                 pool.shutdown(cancel_futures=True)
@@ -313,10 +317,13 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
             "n_not_dose": summary.by_status["not_dose"],
             "n_quarantined": summary.by_status["quarantined"], "n_unchanged": summary.unchanged,
             "run_id": run_id})
+        # deduplicated events, study totals, exam texts and skin dose of the studies this run
+        # touched (pipeline/warehouse/derived.py): computed once here, never by each audit
+        summary.derived = refresh_derived(con, touched, since=since)
 
 
 def _load_chunk(con, dispatched, loaded_sops: set, run_id: str, summary: IngestSummary,
-                progress: Callable[[int], None] | None) -> None:
+                progress: Callable[[int], None] | None, touched: set | None = None) -> None:
     """Collect one dispatched batch, mark duplicates and load it in one transaction."""
     n_files, outcomes, results = dispatched
     outcomes = _collect(outcomes, results)
@@ -328,7 +335,11 @@ def _load_chunk(con, dispatched, loaded_sops: set, run_id: str, summary: IngestS
         elif o.status == "loaded":
             loaded_sops.add(o.sop_instance_uid)
     if outcomes:
-        append_batch(con, _batch_tables(outcomes, run_id, dt.datetime.now()))
+        tables = _batch_tables(outcomes, run_id, dt.datetime.now())
+        append_batch(con, tables)
+        if touched is not None:
+            for name in ("dose_object", "study", "ct_event", "projection_event", "accumulated"):
+                touched.update(tables[name].column("study_key").to_pylist())
     for o in outcomes:
         summary.by_status[o.status] += 1
         if o.status == "quarantined":

@@ -33,6 +33,7 @@ from .network import (EXTRACT_TABLES, LAKE_RELATIONS, MANIFEST_NAME, SCHEMA_VERS
 from .pseudonym import key_fingerprint, make_pseudonymiser
 from .warehouse.connection import connection
 from .warehouse.key_epoch import current_key_epoch
+from .warehouse.derived import refresh_derived
 from .warehouse.load import ensure_schema
 
 __all__ = ["ExportSummary", "LakeSummary", "MergeSummary", "export_lake", "export_site",
@@ -271,6 +272,8 @@ def merge_extracts(folders: list[Path], warehouse: Path, *,
         except BaseException:
             con.execute("rollback")
             raise
+        # the merged (and replaced) studies' derived rows: rebuilt whole, a merge being rare
+        refresh_derived(con)
     return summary
 
 

@@ -1,6 +1,7 @@
 """SQL of the warehouse: one relation (or one load statement) per file; a tiny loader.
 
-Layers run schema -> staging -> marts; a view may read only from earlier layers. Statements
+Layers run schema -> staging -> derived (tables kept from staging views) -> marts; a view may
+read only from earlier layers. Statements
 in ``load/`` are run by the ingest for each batch.
 """
 
@@ -12,7 +13,7 @@ from pathlib import Path
 __all__ = ["LAYERS", "ROOT", "apply_all", "sql"]
 
 ROOT = Path(__file__).parent
-LAYERS = ("schema", "staging", "marts")
+LAYERS = ("schema", "staging", "derived", "marts")
 
 
 @cache

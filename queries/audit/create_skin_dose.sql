@@ -3,7 +3,18 @@
 -- 2011 Part I method); is_upper_bound: some events lacked geometry and were added at their
 -- reference-point value; factor_sources: every factor and its source; an estimate, see
 -- uncertainty_note (typically within about +-40 %; clinical follow-up by the responsible physician)
-create or replace table skin_dose as select * from incoming_skin_dose
+-- The model's results are kept per study in derived_skin_dose (computed when an ingest run touched
+-- the study); here they are joined with study_dose for the period's site and exam type.
+create or replace table skin_dose as
+select
+    s.study_key, s.patient_key, s.device_key, s.site, s.modality, s.exam_type, s.study_date,
+    k.psd_mgy, k.method, k.n_events, k.n_events_with_geometry, k.ka_r_total_mgy, k.psd_to_ka_r,
+    k.is_upper_bound, k.upper_bound_part_mgy, k.phantom, k.factor_sources, k.uncertainty_note
+from study_dose as s
+join derived_skin_dose as k using (study_key, device_key)
+where s.modality in ('RF', 'XA')
+  and s.study_date >= $date_from and s.study_date < $date_to
+order by s.study_key, s.device_key
 
 -- columns:
 --   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)

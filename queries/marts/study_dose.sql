@@ -17,134 +17,22 @@
 -- entrance_dose_total_mgy: sum of the events' image-header Entrance Dose (mGy); a surface dose,
 -- kept apart from dose_rp_total_mgy, the reference-point air kerma (Ka,r) of dose reports.
 -- exam_type: the standard exam type the rules map the study to (NULL when unmapped).
+-- The totals are kept as the table derived_study_total (queries/staging/calc_study_total.sql
+-- computes them), refreshed for the studies each ingest run or network merge touched; the site
+-- and the exam type are joined here, so a changed site map or exam rule applies at once.
 create or replace view study_dose as
-with
-events as (
-    select * from irradiation_event
-),
-latest_report as (
-    select study_key, device_key, sop_instance_uid, patient_key, study_date, study_description,
-           patient_age_years, patient_sex, patient_weight_kg, patient_height_m
-    from raw_dose_object
-    qualify row_number() over (
-        partition by study_key, device_key
-        order by (case object_kind when 'image_header' then 3 when 'dose_screen' then 2 else 1 end),
-                 content_datetime desc nulls last,
-                 instance_number desc nulls last, sop_instance_uid desc) = 1
-),
-stated as (
-    select a.study_key, a.device_key,
-           sum(a.dap_total_gy_cm2) as dap_total_gy_cm2,
-           sum(a.dose_rp_total_mgy) as dose_rp_total_mgy,
-           sum(a.fluoro_time_total_s) as fluoro_time_total_s,
-           sum(a.dlp_total_mgy_cm) as dlp_total_mgy_cm
-    from raw_accumulated as a
-    join latest_report as r using (sop_instance_uid)
-    where a.plane <> 'all'
-    group by a.study_key, a.device_key
-),
-header_ct as (
-    select study_key, device_key,
-           avg(ctdivol_max_mgy) as ctdivol_mgy,
-           case when count(*) = count(dlp_estimate_mgy_cm) then sum(dlp_estimate_mgy_cm) end
-               as dlp_mgy_cm
-    from stg_ct_image_series
-    where not is_localizer and not is_reconstruction and ctdivol_max_mgy is not null
-    group by study_key, device_key
-),
-agg as (
-    select
-        study_key, device_key,
-        any_value(modality) as modality,
-        count(*) as event_count,
-        count(*) filter (where source_kind = 'rdsr') as n_rdsr_events,
-        count(*) filter (where source_kind = 'dose_screen') as n_screen_events,
-        sum(dap_gy_cm2) as dap_sum, count(dap_gy_cm2) as n_dap,
-        sum(dose_rp_mgy) as rp_sum, count(dose_rp_mgy) as n_rp,
-        sum(entrance_dose_mgy) as entrance_dose_total_mgy,
-        sum(dlp_mgy_cm) as dlp_sum, count(dlp_mgy_cm) as n_dlp,
-        count(*) filter (where event_type = 'fluoroscopy') as n_fluoro,
-        sum(irradiation_duration_s) filter (where event_type = 'fluoroscopy') as fluoro_sum,
-        count(irradiation_duration_s) filter (where event_type = 'fluoroscopy') as n_fluoro_time,
-        sum(ctdivol_mgy * scanning_length_mm)
-            filter (where event_type in ('spiral', 'sequenced')) as ctdi_length,
-        sum(scanning_length_mm)
-            filter (where event_type in ('spiral', 'sequenced') and ctdivol_mgy is not null) as length_sum,
-        sum(dlp_mgy_cm) filter (where scanning_length_mm is null and ctdivol_mgy > 0
-                                  and dlp_mgy_cm > 0 and coalesce(event_type, '') not in
-                                  ('constant_angle', 'stationary')) as screen_dlp,
-        sum(dlp_mgy_cm / ctdivol_mgy) filter (where scanning_length_mm is null and ctdivol_mgy > 0
-                                  and dlp_mgy_cm > 0 and coalesce(event_type, '') not in
-                                  ('constant_angle', 'stationary')) as screen_length_cm,
-        max(ctdivol_mgy) as ctdivol_max_mgy,
-        count(distinct ctdi_phantom) filter (where coalesce(event_type, '') not in
-                                             ('constant_angle', 'stationary')) as n_phantoms,
-        min(ctdi_phantom) filter (where coalesce(event_type, '') not in
-                                  ('constant_angle', 'stationary')) as main_phantom,
-        sum(agd_mgy) as agd_total_mgy,
-        count(distinct sop_instance_uid) as n_reports
-    from events
-    group by study_key, device_key
-),
-chosen as (
-    select agg.*,
-           s.dap_total_gy_cm2 as stated_dap, s.dose_rp_total_mgy as stated_rp,
-           s.fluoro_time_total_s as stated_fluoro, s.dlp_total_mgy_cm as stated_dlp,
-           h.ctdivol_mgy as header_ctdivol, h.dlp_mgy_cm as header_dlp,
-           case when agg.modality <> 'CT' then null
-                when s.dlp_total_mgy_cm is not null and agg.n_dlp < agg.event_count
-                     and s.dlp_total_mgy_cm > coalesce(agg.dlp_sum, 0) then 'reported'
-                when agg.dlp_sum is not null then 'event_sum'
-                when s.dlp_total_mgy_cm is not null then 'reported'
-                when h.dlp_mgy_cm is not null then 'estimated_from_images'
-           end as dlp_method
-    from agg
-    left join stated as s using (study_key, device_key)
-    left join header_ct as h using (study_key, device_key)
-)
 select
-    c.study_key,
-    r.patient_key,
-    c.device_key,
-    d.site,
-    c.modality,
-    r.study_date,
-    r.study_description,
-    r.patient_age_years,
-    r.patient_sex,
-    r.patient_weight_kg,
-    r.patient_height_m,
-    c.event_count,
-    case when c.n_dap = c.event_count and c.n_dap > 0 then c.dap_sum
-         else coalesce(c.stated_dap, c.dap_sum) end as dap_total_gy_cm2,
-    case when c.n_rp = c.event_count and c.n_rp > 0 then c.rp_sum
-         else coalesce(c.stated_rp, c.rp_sum) end as dose_rp_total_mgy,
-    case when c.n_fluoro = 0 then c.stated_fluoro
-         when c.n_fluoro_time = c.n_fluoro then c.fluoro_sum
-         else coalesce(c.stated_fluoro, c.fluoro_sum) end as fluoro_time_total_s,
-    case c.dlp_method when 'reported' then c.stated_dlp
-                      when 'event_sum' then c.dlp_sum
-                      when 'estimated_from_images' then c.header_dlp end as dlp_total_mgy_cm,
-    coalesce(c.ctdi_length / nullif(c.length_sum, 0),
-             c.screen_dlp / nullif(c.screen_length_cm, 0),
-             c.header_ctdivol) as ctdivol_mgy,
-    case when c.n_rdsr_events > 0 then 'rdsr' when c.n_screen_events > 0 then 'dose_screen'
-         else 'image_header' end as source_kind,
-    c.ctdivol_max_mgy,
-    case when c.n_phantoms = 1 then c.main_phantom when c.n_phantoms > 1 then 'mixed' end
-        as ctdi_phantom,
-    x.exam_type,
-    x.matched_field as exam_matched_field,
-    x.matched_text as exam_matched_text,
-    c.agd_total_mgy,
-    c.n_reports,
-    c.entrance_dose_total_mgy,
-    c.dlp_method
-from chosen as c
-left join latest_report as r using (study_key, device_key)
+    t.study_key, t.patient_key, t.device_key, d.site, t.modality, t.study_date,
+    t.study_description, t.patient_age_years, t.patient_sex, t.patient_weight_kg,
+    t.patient_height_m, t.event_count, t.dap_total_gy_cm2, t.dose_rp_total_mgy,
+    t.fluoro_time_total_s, t.dlp_total_mgy_cm, t.ctdivol_mgy, t.source_kind, t.ctdivol_max_mgy,
+    t.ctdi_phantom, x.exam_type, x.matched_field as exam_matched_field,
+    x.matched_text as exam_matched_text, t.agd_total_mgy, t.n_reports,
+    t.entrance_dose_total_mgy, t.dlp_method
+from derived_study_total as t
 left join device as d using (device_key)
 left join stg_exam_match as x
-  on x.unit_kind = 'study' and x.study_key = c.study_key and x.device_key = c.device_key
+  on x.unit_kind = 'study' and x.study_key = t.study_key and x.device_key = t.device_key
 
 -- columns:
 --   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)

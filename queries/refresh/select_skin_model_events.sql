@@ -1,8 +1,8 @@
--- grain: one row per projection irradiation event with a Dose (RP) of an RF or XA study in the
--- period, ordered by study x device then time (the skin-dose model's input, pipeline/skin_dose.py)
+-- grain: one row per projection irradiation event with a Dose (RP) of an RF or XA study x device
+-- (of the refresh scope, or all), ordered by study x device then time: the skin-dose model's
+-- input (pipeline/metrics/skin.py)
 select
-    s.study_key, s.patient_key, s.device_key, s.site, s.modality, s.exam_type, s.study_date,
-    s.patient_height_m, s.patient_weight_kg,
+    s.study_key, s.device_key, s.patient_height_m, s.patient_weight_kg,
     e.event_uid, e.dose_rp_mgy, e.kvp,
     e.positioner_primary_angle_deg, e.positioner_secondary_angle_deg,
     e.distance_source_to_isocenter_mm, e.distance_source_to_detector_mm,
@@ -10,9 +10,9 @@ select
     e.table_longitudinal_mm, e.table_lateral_mm, e.table_height_mm,
     e.reference_point_definition, e.filter_material, e.filter_thickness_mm,
     e.patient_orientation_modifier, e.patient_table_relationship
-from study_dose as s
-join irradiation_event as e using (study_key, device_key)
+from derived_study_total as s
+join derived_irradiation_event as e using (study_key, device_key)
 where s.modality in ('RF', 'XA')
-  and s.study_date >= $date_from and s.study_date < $date_to
   and e.dose_rp_mgy is not null
+  and ($all_studies or s.study_key in (select study_key from refresh_scope))
 order by s.study_key, s.device_key, e.started_at nulls last, e.event_uid

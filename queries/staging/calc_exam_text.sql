@@ -1,6 +1,6 @@
--- grain: one row per text a study (unit_kind = study) or a projection event (unit_kind = event)
+-- grain (computation behind stg_exam_text, kept as the table derived_exam_text): one row per text a study (unit_kind = study) or a projection event (unit_kind = event)
 -- offers to the exam rules, per field. Normalised as pipeline.exams.normalise does.
-create or replace view stg_exam_text as
+create or replace view calc_exam_text as
 with
 projections as materialized (
     -- the deduplicated projection events, computed once for the three uses below

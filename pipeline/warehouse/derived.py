@@ -1,0 +1,255 @@
+"""Derived tables kept beside the raw ones, refreshed per ingest run for the studies it touched.
+
+The deduplicated events (``derived_irradiation_event``), the exam texts (``derived_exam_text``),
+the study totals (``derived_study_total``) and each RF/XA study's peak skin dose
+(``derived_skin_dose``, ``_factor``, ``_map``) depend only on a study's own raw rows, so they
+are computed once, when a load adds rows to the study, and kept; the public views
+(irradiation_event, stg_exam_text, study_dose) read them, and an audit only groups them. What
+depends on the configuration (site map, exam rules, reference levels, alert rules) is joined
+at read time, never kept here.
+
+`refresh_derived` keeps them true to the raw tables:
+
+* with the studies a run touched and the raw state the run started from: when the derived
+  tables matched that state, only those studies are recomputed (the ``calc_*`` views see
+  only their rows, through temporary views that hide the raw tables: queries/refresh/);
+* otherwise (a warehouse of an earlier version, a changed definition, a writer that did not
+  say what it touched): every derived table is rebuilt whole.
+
+``derived_state`` records the raw state (row counts and key hashes,
+queries/refresh/derived_raw_state.sql) and a digest of the definitions (SQL and the skin-dose
+model) the tables match; a refresh whose state and digest match does nothing.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+from collections.abc import Iterable
+from functools import cache
+from pathlib import Path
+
+import duckdb
+import pyarrow as pa
+
+from queries import ROOT as QUERIES
+from queries import apply_all, sql
+
+__all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "RefreshResult", "definitions_digest",
+           "raw_state", "refresh_derived", "skin_rows_for"]
+
+# (derived table, the staging view computing it), in dependency order
+DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
+                  ("derived_exam_text", "calc_exam_text"),
+                  ("derived_study_total", "calc_study_total"))
+_SKIN_TABLES = ("derived_skin_dose", "derived_skin_dose_factor", "derived_skin_dose_map")
+# raw tables holding a study_key, hidden by a scoped view during an incremental refresh
+_SCOPED_RAW = ("raw_dose_object", "raw_study", "raw_ct_event", "raw_projection_event",
+               "raw_accumulated")
+# Skin-dose maps are kept for studies at or above the lowest default peak-skin-dose alert
+# threshold (pipeline/alert_rules.toml, ncrp168_srdl_peak_skin_dose: 3 Gy, NCRP Report 168,
+# from memory); an audit whose rules set a lower threshold computes the missing maps.
+MAP_FLOOR_MGY = 3000.0
+_SKIN_CHUNK_ROWS = 50_000
+
+_SKIN_SCHEMA = pa.schema(
+    [("study_key", pa.string()), ("device_key", pa.string()), ("psd_mgy", pa.float64()),
+     ("method", pa.string()), ("n_events", pa.int64()), ("n_events_with_geometry", pa.int64()),
+     ("ka_r_total_mgy", pa.float64()), ("psd_to_ka_r", pa.float64()),
+     ("is_upper_bound", pa.bool_()), ("upper_bound_part_mgy", pa.float64()),
+     ("phantom", pa.string()), ("factor_sources", pa.string()), ("uncertainty_note", pa.string())])
+_FACTOR_SCHEMA = pa.schema(
+    [("study_key", pa.string()), ("device_key", pa.string()), ("factor", pa.string()),
+     ("n_events", pa.int64()), ("value_min", pa.float64()), ("value_max", pa.float64()),
+     ("source", pa.string())])
+_MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string()),
+                         ("around_mm", pa.float64()), ("along_mm", pa.float64()),
+                         ("dose_mgy", pa.float64())])
+
+
+class RefreshResult:
+    """What a refresh did: mode 'none', 'incremental' or 'full', and how many studies."""
+
+    def __init__(self, mode: str, n_studies: int, seconds: float):
+        self.mode, self.n_studies, self.seconds = mode, n_studies, seconds
+
+    def __repr__(self) -> str:
+        return f"RefreshResult({self.mode!r}, {self.n_studies}, {self.seconds:.2f} s)"
+
+
+@cache
+def definitions_digest() -> str:
+    """SHA-256 over what the derived tables are computed by: the staging, derived and refresh
+    SQL, the skin-dose model and its seeds, and this module."""
+    here = Path(__file__).resolve()
+    pipeline = here.parent.parent
+    files = sorted([*QUERIES.joinpath("staging").glob("*.sql"),
+                    *QUERIES.joinpath("derived").glob("*.sql"),
+                    *QUERIES.joinpath("refresh").glob("*.sql"),
+                    *QUERIES.joinpath("seeds").glob("skin_*"),
+                    pipeline / "skin_dose.py", pipeline / "metrics" / "skin.py", here])
+    h = hashlib.sha256()
+    for path in files:
+        h.update(path.name.encode() + b"\0" + path.read_bytes())
+    return h.hexdigest()
+
+
+def raw_state(con: duckdb.DuckDBPyConnection) -> str:
+    """Digest of the raw rows the derived tables are computed from (queries/refresh/)."""
+    return con.execute(sql("derived_raw_state")).fetchall()[0][0]
+
+
+def _stored(con) -> tuple[str, str] | None:
+    rows = con.execute(sql("select_derived_state")).fetchall()
+    return (rows[0][0], rows[0][1]) if rows else None
+
+
+def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | None = None, *,
+                    since: str | None = None) -> RefreshResult:
+    """Bring the derived tables up to date with the raw tables (module docstring).
+
+    Parameters
+    ----------
+    con : a write connection whose schema is in place (`ensure_schema`).
+    studies : study keys whose raw rows changed (added or removed) since `since`.
+    since : the `raw_state` read before those changes. Both given and the derived tables at
+        that state: only those studies are recomputed; else a whole rebuild, unless the tables
+        already match the raw tables.
+
+    Each mode runs in one transaction: a crash leaves the previous state, which the next
+    refresh sees as stale.
+    """
+    import time
+
+    started = time.perf_counter()
+    now_state, digest = raw_state(con), definitions_digest()
+    stored = _stored(con)
+    if stored == (now_state, digest):
+        return RefreshResult("none", 0, time.perf_counter() - started)
+    keys = sorted({k for k in studies if k is not None}) if studies is not None else None
+    if keys is not None and since is not None and stored == (since, digest):
+        n = _incremental(con, keys)
+        mode = "incremental"
+    else:
+        n = _full(con)
+        mode = "full"
+    con.execute("begin transaction")
+    con.execute(sql("delete_derived_state"))
+    con.execute(sql("insert_derived_state"), {
+        "raw_state": now_state, "definitions": digest, "refreshed_at": dt.datetime.now(),
+        "n_studies": n, "mode": mode})
+    con.execute("commit")
+    return RefreshResult(mode, n, time.perf_counter() - started)
+
+
+def _catalog(con) -> str:
+    name = con.execute("select current_database()").fetchall()[0][0]
+    return '"' + name.replace('"', '""') + '"'
+
+
+def _incremental(con, keys: list[str]) -> int:
+    """Recompute the derived rows of `keys` (and of studies sharing an event with them)."""
+    if not keys:
+        return 0
+    con.execute("create or replace temp table refresh_scope (study_key varchar)")
+    con.register("incoming_refresh_scope", pa.table({"study_key": pa.array(keys, pa.string())}))
+    try:
+        con.execute("insert into refresh_scope select distinct study_key from incoming_refresh_scope")
+    finally:
+        con.unregister("incoming_refresh_scope")
+    con.execute(sql("refresh_scope_expand"))
+    ((n,),) = con.execute("select count(*) from refresh_scope").fetchall()
+    catalog = _catalog(con)
+    con.execute("begin transaction")
+    try:
+        for table in _SCOPED_RAW:
+            con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
+        try:
+            for table, calc in DERIVED_TABLES:
+                con.execute(sql("refresh_delete").format(table=table))
+                con.execute(sql("refresh_insert").format(table=table, calc=calc))
+        finally:
+            for table in _SCOPED_RAW:
+                con.execute(f"drop view if exists temp.main.{table}")
+        for table in _SKIN_TABLES:
+            con.execute(sql("refresh_delete").format(table=table))
+        _skin(con, all_studies=False)
+        con.execute("commit")
+    except BaseException:
+        con.execute("rollback")
+        raise
+    finally:
+        con.execute("drop table if exists temp.main.refresh_scope")
+    return n
+
+
+def _full(con) -> int:
+    """Rebuild every derived table whole (its columns from the current definitions)."""
+    con.execute("begin transaction")
+    try:
+        for table, calc in DERIVED_TABLES:
+            con.execute(sql("refresh_replace").format(table=table, calc=calc))
+        for table in _SKIN_TABLES:
+            con.execute(f"delete from {table}")
+        con.execute("create or replace temp table refresh_scope (study_key varchar)")
+        _skin(con, all_studies=True)
+        con.execute("commit")
+    except BaseException:
+        con.execute("rollback")
+        raise
+    finally:
+        con.execute("drop table if exists temp.main.refresh_scope")
+    apply_all(con)   # views over the replaced tables bind to their current columns
+    ((n,),) = con.execute("select count(*) from derived_study_total").fetchall()
+    return n
+
+
+def _skin(con, *, all_studies: bool) -> None:
+    """Peak skin dose of the scope's (or every) RF/XA study into derived_skin_dose*: the events
+    are streamed in chunks of whole studies (memory does not grow with their number); the
+    results, one row per study, are inserted once the stream is read (a DuckDB connection runs
+    one statement at a time)."""
+    reader = con.sql(sql("select_skin_model_events"),
+                     params={"all_studies": all_studies}).to_arrow_reader(_SKIN_CHUNK_ROWS)
+    out: dict[str, list[pa.Table]] = {"derived_skin_dose": [], "derived_skin_dose_factor": [],
+                                      "derived_skin_dose_map": []}
+    for studies, cells, factors in skin_rows_for(reader, MAP_FLOOR_MGY):
+        out["derived_skin_dose"].append(studies)
+        out["derived_skin_dose_factor"].append(factors)
+        out["derived_skin_dose_map"].append(cells)
+    for name, tables in out.items():
+        if tables:
+            con.register("incoming_skin", pa.concat_tables(tables))
+            try:
+                con.execute(f"insert into {name} by name select * from incoming_skin")
+            finally:
+                con.unregister("incoming_skin")
+
+
+def skin_rows_for(batches, map_threshold_mgy: float | None):
+    """Yield (studies, map cells, factors) Arrow tables of `pipeline.metrics.skin.skin_dose_rows`
+    over record batches of skin-model events ordered by study x device (a study may span
+    batches: its events are held back until it ends)."""
+    from ..metrics.skin import skin_dose_rows
+
+    carry: list[dict] = []
+    batches = iter(batches)
+    while True:
+        batch = next(batches, None)
+        rows = carry + (batch.to_pylist() if batch is not None else [])
+        if batch is not None and rows:   # hold back the last study: it may go on
+            last = (rows[-1]["study_key"], rows[-1]["device_key"])
+            cut = len(rows)
+            while cut and (rows[cut - 1]["study_key"], rows[cut - 1]["device_key"]) == last:
+                cut -= 1
+            rows, carry = rows[:cut], rows[cut:]
+        else:
+            carry = []
+        if rows:
+            factors: list[dict] = []
+            studies, cells = skin_dose_rows(rows, map_threshold_mgy, factors)
+            yield (pa.Table.from_pylist(studies, schema=_SKIN_SCHEMA),
+                   pa.Table.from_pylist(cells, schema=_MAP_SCHEMA),
+                   pa.Table.from_pylist(factors, schema=_FACTOR_SCHEMA))
+        if batch is None:
+            break

@@ -1,0 +1,9 @@
+-- grain: one row: the state of the raw tables and the definitions the derived_* tables were last
+-- refreshed from (pipeline/warehouse/derived.py); a mismatch makes the next refresh rebuild them
+create table if not exists derived_state (
+    raw_state varchar,
+    definitions varchar,
+    refreshed_at timestamp,
+    n_studies_refreshed bigint,
+    mode varchar   -- 'incremental' (the studies a run touched) or 'full'
+)

@@ -1,0 +1,2 @@
+-- grain: one row (or none): what the derived tables were last refreshed from
+select raw_state, definitions from derived_state limit 1
