@@ -29,7 +29,7 @@ from .metrics import median_ci_ranks
 from .metrics.dose_check import METHOD_BY_POSITION, METHOD_UPPER_BOUND
 from .warehouse.connection import connection
 from .metrics.skin import skin_dose_rows
-from .warehouse.derived import MAP_FLOOR_MGY, refresh_derived, skin_rows_for
+from .warehouse.derived import MAP_FLOOR_MGY, skin_rows_for
 from .warehouse.load import ensure_schema, replace_exam_rules
 
 __all__ = ["AUDIT_MEMORY_LIMIT", "AuditSettings", "AuditSummary", "audit_is_current",
@@ -290,7 +290,7 @@ _FIT_SCHEMA = pa.schema([("phantom", pa.string()), ("a", pa.float64()), ("b_per_
 # the run's connection (queries/audit/materialise_*.sql), in dependency order. What depends on
 # the data only (deduplicated events, exam texts, study totals, skin dose) is kept as derived_*
 # tables, refreshed per ingest run (pipeline/warehouse/derived.py).
-_MATERIALISED = ("stg_exam_match", "study_dose", "audit_observation")
+_MATERIALISED = ("study_dose", "audit_observation")
 # DuckDB working memory of an audit run: beyond it, sorts, joins and the temporary tables above
 # spill to the temp directory beside the warehouse, so memory stays flat however much history
 # the warehouse holds (common practice, no source: half of a small 2-core, 4 GiB machine's RAM
@@ -523,9 +523,8 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
     first, after, label = period_bounds(period, date_from, date_to)
     with connection(warehouse) as con:   # never creates one: a missing file is an error
         ensure_schema(con)
-        # a no-op after an ingest (it refreshed them); a rebuild for a warehouse of an earlier
-        # version or one written without saying which studies changed
-        refresh_derived(con)
+        # the derived tables: a no-op after an ingest (it refreshed them), the exam matches
+        # again if these rules differ, a rebuild for a warehouse of an earlier version
         replace_exam_rules(con, rule_rows(load_exam_rules(config)))
         install_reference_sets(con)
         fingerprint = _inputs_fingerprint(con, first, after,

@@ -36,7 +36,7 @@ from queries import ROOT as QUERIES
 from queries import apply_all, sql
 
 __all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "RefreshResult", "definitions_digest",
-           "raw_state", "refresh_derived", "skin_rows_for"]
+           "exam_rules_state", "raw_state", "refresh_derived", "skin_rows_for"]
 
 # (derived table, the staging view computing it), in dependency order
 DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
@@ -83,7 +83,8 @@ def definitions_digest() -> str:
     SQL, the skin-dose model and its seeds, and this module."""
     here = Path(__file__).resolve()
     pipeline = here.parent.parent
-    files = sorted([*QUERIES.joinpath("staging").glob("*.sql"),
+    files = sorted([*QUERIES.joinpath("schema").glob("*.sql"),
+                    *QUERIES.joinpath("staging").glob("*.sql"),
                     *QUERIES.joinpath("derived").glob("*.sql"),
                     *QUERIES.joinpath("refresh").glob("*.sql"),
                     *QUERIES.joinpath("seeds").glob("skin_*"),
@@ -99,14 +100,19 @@ def raw_state(con: duckdb.DuckDBPyConnection) -> str:
     return con.execute(sql("derived_raw_state")).fetchall()[0][0]
 
 
-def _stored(con) -> tuple[str, str] | None:
+def exam_rules_state(con: duckdb.DuckDBPyConnection) -> str:
+    """Digest of the exam rules in force (raw_exam_rule), which derived_exam_match depends on."""
+    return con.execute(sql("exam_rules_state")).fetchall()[0][0]
+
+
+def _stored(con) -> tuple[str, str, str] | None:
     rows = con.execute(sql("select_derived_state")).fetchall()
-    return (rows[0][0], rows[0][1]) if rows else None
+    return tuple(rows[0]) if rows else None
 
 
 def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | None = None, *,
                     since: str | None = None) -> RefreshResult:
-    """Bring the derived tables up to date with the raw tables (module docstring).
+    """Bring the derived tables up to date with the raw tables and exam rules (module docstring).
 
     Parameters
     ----------
@@ -114,7 +120,14 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
     studies : study keys whose raw rows changed (added or removed) since `since`.
     since : the `raw_state` read before those changes. Both given and the derived tables at
         that state: only those studies are recomputed; else a whole rebuild, unless the tables
-        already match the raw tables.
+        already match the raw tables. Exam rules changed since the last refresh: the exam
+        matches are recomputed whole.
+
+    Returns
+    -------
+    RefreshResult
+        mode 'none' (already current), 'rules' (only the exam matches, whole), 'incremental'
+        or 'full'.
 
     Each mode runs in one transaction: a crash leaves the previous state, which the next
     refresh sees as stale.
@@ -122,24 +135,38 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
     import time
 
     started = time.perf_counter()
-    now_state, digest = raw_state(con), definitions_digest()
+    now = (raw_state(con), definitions_digest(), exam_rules_state(con))
     stored = _stored(con)
-    if stored == (now_state, digest):
+    if stored == now:
         return RefreshResult("none", 0, time.perf_counter() - started)
     keys = sorted({k for k in studies if k is not None}) if studies is not None else None
-    if keys is not None and since is not None and stored == (since, digest):
-        n = _incremental(con, keys)
-        mode = "incremental"
+    if stored is not None and stored[:2] == now[:2]:
+        n, mode = _matches_whole(con), "rules"
+    elif keys is not None and since is not None and stored is not None \
+            and stored[:2] == (since, now[1]):
+        n, mode = _incremental(con, keys, rules_changed=stored[2] != now[2]), "incremental"
     else:
-        n = _full(con)
-        mode = "full"
+        n, mode = _full(con), "full"
     con.execute("begin transaction")
     con.execute(sql("delete_derived_state"))
     con.execute(sql("insert_derived_state"), {
-        "raw_state": now_state, "definitions": digest, "refreshed_at": dt.datetime.now(),
-        "n_studies": n, "mode": mode})
+        "raw_state": now[0], "definitions": now[1], "rules": now[2],
+        "refreshed_at": dt.datetime.now(), "n_studies": n, "mode": mode})
     con.execute("commit")
     return RefreshResult(mode, n, time.perf_counter() - started)
+
+
+def _matches_whole(con) -> int:
+    """Recompute derived_exam_match whole (the exam rules changed)."""
+    con.execute("begin transaction")
+    try:
+        con.execute("delete from derived_exam_match")
+        con.execute(sql("refresh_insert").format(table="derived_exam_match", calc="calc_exam_match"))
+        con.execute("commit")
+    except BaseException:
+        con.execute("rollback")
+        raise
+    return con.execute("select count(distinct study_key) from derived_exam_match").fetchall()[0][0]
 
 
 def _catalog(con) -> str:
@@ -147,8 +174,9 @@ def _catalog(con) -> str:
     return '"' + name.replace('"', '""') + '"'
 
 
-def _incremental(con, keys: list[str]) -> int:
-    """Recompute the derived rows of `keys` (and of studies sharing an event with them)."""
+def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
+    """Recompute the derived rows of `keys` (and of studies sharing an event with them); the
+    exam matches of those studies too, or of every study when the rules changed."""
     if not keys:
         return 0
     con.execute("create or replace temp table refresh_scope (study_key varchar)")
@@ -171,6 +199,18 @@ def _incremental(con, keys: list[str]) -> int:
         finally:
             for table in _SCOPED_RAW:
                 con.execute(f"drop view if exists temp.main.{table}")
+        if rules_changed:
+            con.execute("delete from derived_exam_match")
+            con.execute(sql("refresh_insert").format(table="derived_exam_match",
+                                                     calc="calc_exam_match"))
+        else:   # the scope's exam texts only, through a scoped view of derived_exam_text
+            con.execute(sql("refresh_shadow").format(table="derived_exam_text", catalog=catalog))
+            try:
+                con.execute(sql("refresh_delete").format(table="derived_exam_match"))
+                con.execute(sql("refresh_insert").format(table="derived_exam_match",
+                                                         calc="calc_exam_match"))
+            finally:
+                con.execute("drop view if exists temp.main.derived_exam_text")
         for table in _SKIN_TABLES:
             con.execute(sql("refresh_delete").format(table=table))
         _skin(con, all_studies=False)
@@ -189,6 +229,7 @@ def _full(con) -> int:
     try:
         for table, calc in DERIVED_TABLES:
             con.execute(sql("refresh_replace").format(table=table, calc=calc))
+        con.execute(sql("refresh_replace").format(table="derived_exam_match", calc="calc_exam_match"))
         for table in _SKIN_TABLES:
             con.execute(f"delete from {table}")
         con.execute("create or replace temp table refresh_scope (study_key varchar)")

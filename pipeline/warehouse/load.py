@@ -7,6 +7,8 @@ import pyarrow as pa
 
 from queries import apply_all, sql
 
+from .derived import refresh_derived
+
 __all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", "replace_site_map"]
 
 LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
@@ -58,7 +60,9 @@ def replace_site_map(con: duckdb.DuckDBPyConnection, sites: dict[str, str]) -> N
 
 
 def replace_exam_rules(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None:
-    """Put the exam rules in force into raw_exam_rule (one transaction)."""
+    """Put the exam rules in force into raw_exam_rule (one transaction), then bring the derived
+    tables up to date: the exam matches are recomputed when the rules differ from those they
+    were computed with (pipeline/warehouse/derived.py)."""
     schema = pa.schema([("rule_id", pa.int64()), ("exam_type", pa.string()), ("field", pa.string()),
                         ("field_priority", pa.int64()), ("modality", pa.string()),
                         ("kind", pa.string()), ("phrase", pa.string()), ("source", pa.string())])
@@ -70,3 +74,4 @@ def replace_exam_rules(con: duckdb.DuckDBPyConnection, rows: list[dict]) -> None
         con.execute("commit")
     finally:
         con.unregister("incoming_exam_rule")
+    refresh_derived(con)

@@ -3,6 +3,7 @@
 create table if not exists derived_state (
     raw_state varchar,
     definitions varchar,
+    rules varchar,     -- digest of raw_exam_rule that derived_exam_match was computed with
     refreshed_at timestamp,
     n_studies_refreshed bigint,
     mode varchar   -- 'incremental' (the studies a run touched) or 'full'

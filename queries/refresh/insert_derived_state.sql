@@ -1,3 +1,3 @@
--- refresh: record the raw state and definitions the derived tables now match
+-- refresh: record the raw state, definitions and exam rules the derived tables now match
 insert into derived_state
-select $raw_state, $definitions, $refreshed_at, $n_studies, $mode
+select $raw_state, $definitions, $rules, $refreshed_at, $n_studies, $mode

@@ -1,2 +1,2 @@
 -- grain: one row (or none): what the derived tables were last refreshed from
-select raw_state, definitions from derived_state limit 1
+select raw_state, definitions, rules from derived_state limit 1

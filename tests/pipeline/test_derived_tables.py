@@ -1,0 +1,140 @@
+"""Derived tables (pipeline/warehouse/derived.py): what an ingest run keeps for the studies it
+touched must equal the whole computation (the calc_* views) and a warehouse loaded in one run;
+a stale or unknown state is rebuilt whole; an audit with a peak-skin-dose threshold below the
+kept maps' floor computes the missing maps.
+
+Check values are the pipeline's own whole computation (no outside source: this is a
+consistency check of the incremental bookkeeping, common practice, no source)."""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import shutil
+
+import duckdb
+import numpy as np
+import pandas as pd
+import pytest
+
+from pipeline.ingest import ingest
+from pipeline.warehouse.connection import connection
+from pipeline.warehouse.derived import DERIVED_TABLES, MAP_FLOOR_MGY, refresh_derived
+from tests.helpers import KEY
+
+_ORDER = {"derived_irradiation_event": ["event_uid", "study_key", "device_key"],
+          "derived_study_total": ["study_key", "device_key"],
+          "derived_skin_dose": ["study_key", "device_key"]}
+
+
+def _frame(con, relation: str, order: list[str] | None) -> pd.DataFrame:
+    df = con.execute(f"select * from {relation}").df()
+    return df.sort_values(order or list(df.columns), na_position="first").reset_index(drop=True)
+
+
+def _assert_same(a: pd.DataFrame, b: pd.DataFrame, what: str) -> None:
+    """Same rows; floats to 1e-12 relative (a sum's order may move the last bit)."""
+    assert list(a.columns) == list(b.columns), what
+    assert len(a) == len(b), f"{what}: {len(a)} rows against {len(b)}"
+    for c in a.columns:
+        x, y = a[c], b[c]
+        if pd.api.types.is_float_dtype(x):
+            same = np.isclose(x, y, rtol=1e-12, atol=0, equal_nan=True)
+        else:
+            same = ((x.isna() & y.isna()) | (x.astype(str) == y.astype(str))).to_numpy()
+        assert same.all(), f"{what}.{c}: {int((~same).sum())} rows differ"
+
+
+@pytest.fixture(scope="module")
+def three_runs(corpus, tmp_path_factory):
+    """The session corpus ingested in three runs, its files dealt by a hash of their path, so
+    that many studies get reports in more than one run (a cumulative report arriving later)."""
+    files = sorted(p for p in corpus.rglob("*.dcm"))
+    parts = [[f for f in files if int(hashlib.sha256(str(f).encode()).hexdigest(), 16) % 3 == k]
+             for k in range(3)]
+    db = tmp_path_factory.mktemp("three_runs") / "kerma.duckdb"
+    results = [ingest(part, db, KEY, workers=1).derived for part in parts]
+    return db, results
+
+
+def test_the_first_run_builds_whole_and_later_runs_refresh_only_their_studies(three_runs):
+    db, results = three_runs
+    assert [r.mode for r in results] == ["full", "incremental", "incremental"]
+    with duckdb.connect(str(db), read_only=True) as con:
+        (n_studies,) = con.execute("select count(distinct study_key) from raw_dose_object").fetchone()
+    assert 0 < results[1].n_studies < n_studies and 0 < results[2].n_studies < n_studies
+
+
+def test_tables_kept_run_by_run_equal_the_whole_computation(three_runs):
+    db, _ = three_runs
+    with duckdb.connect(str(db), read_only=True) as con:
+        for table, calc in DERIVED_TABLES:
+            _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
+                         table)
+
+
+def test_three_runs_give_the_warehouse_of_one_run(three_runs, warehouse):
+    """study_dose, irradiation_event and the kept skin doses of the three-run warehouse equal
+    those of the session warehouse, the same corpus loaded in one run (same key)."""
+    db, _ = three_runs
+    one, _ = warehouse
+    with duckdb.connect(str(db), read_only=True) as a, duckdb.connect(str(one), read_only=True) as b:
+        for relation, order in (("study_dose", ["study_key", "device_key"]),
+                                ("irradiation_event", _ORDER["derived_irradiation_event"]),
+                                ("derived_skin_dose", _ORDER["derived_skin_dose"]),
+                                ("derived_skin_dose_map", None)):
+            _assert_same(_frame(a, relation, order), _frame(b, relation, order), relation)
+        (n_skin,) = a.execute("select count(*) from derived_skin_dose").fetchone()
+    assert n_skin > 0
+
+
+def test_a_current_refresh_does_nothing_and_a_stale_one_rebuilds_whole(warehouse, tmp_path):
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(warehouse[0], db)
+    with connection(db) as con:
+        assert refresh_derived(con).mode == "none"
+        before = _frame(con, "derived_study_total", _ORDER["derived_study_total"])
+        # a writer that changed raw rows without saying which studies: one study's events go
+        study = con.execute("select study_key from derived_study_total where modality = 'CT' "
+                            "and event_count > 1 order by study_key limit 1").fetchall()[0][0]
+        con.execute("delete from raw_ct_event where study_key = ?", [study])
+        con.execute("delete from raw_accumulated where study_key = ?", [study])
+        # an incremental refresh from a state the tables were not at is refused: rebuilt whole
+        result = refresh_derived(con, [study], since="not the state the tables are at")
+        assert result.mode == "full"
+        after = _frame(con, "derived_study_total", _ORDER["derived_study_total"])
+        gone = (before.study_key == study) & (before.modality == "CT")
+        assert gone.sum() == 1
+        assert not ((after.study_key == study) & (after.modality == "CT")).any()   # no events left
+        assert len(after) == len(before) - 1
+        _assert_same(after, _frame(con, "calc_study_total", _ORDER["derived_study_total"]), "rebuilt")
+        # a lost state row (a warehouse of an earlier version) rebuilds whole too
+        con.execute("delete from derived_state")
+        assert refresh_derived(con).mode == "full"
+        assert refresh_derived(con).mode == "none"
+
+
+def test_an_audit_below_the_kept_maps_floor_computes_the_missing_maps(warehouse, tmp_path):
+    """With the peak-skin-dose alert at 300 mGy (a local choice), every RF/XA study at or above
+    it gets a map whose largest cell plus the part without geometry is its PSD."""
+    from pipeline.audit import run_audit
+
+    threshold = 300.0
+    assert threshold < MAP_FLOOR_MGY
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(warehouse[0], db)
+    config = tmp_path / "kerma.toml"
+    config.write_text(f'[[alert_rule]]\nrule = "ncrp168_srdl_peak_skin_dose"\nthreshold = {threshold}\n',
+                      encoding="utf-8")
+    run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30), config=config)
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = con.execute(
+            "select k.study_key, k.psd_mgy, k.upper_bound_part_mgy, max(m.dose_mgy) "
+            "from skin_dose as k left join skin_dose_map as m using (study_key, device_key) "
+            "where k.psd_mgy >= ? group by all", [threshold]).fetchall()
+        (below,) = con.execute("select count(*) from skin_dose where psd_mgy >= ? and psd_mgy < ?",
+                               [threshold, MAP_FLOOR_MGY]).fetchone()
+    assert below > 0, "the corpus should hold studies between the threshold and the floor"
+    for study, psd, upper, peak in rows:
+        assert peak is not None, f"study {study} at {psd:.0f} mGy has no map"
+        assert peak + (upper or 0.0) == pytest.approx(psd, rel=1e-9)
