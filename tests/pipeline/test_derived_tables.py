@@ -57,18 +57,21 @@ def three_runs(corpus, tmp_path_factory):
     return db, results
 
 
-def test_the_first_run_builds_whole_and_later_runs_refresh_only_their_studies(three_runs):
+def test_each_run_refreshes_only_the_studies_it_touched(three_runs):
+    """A fresh warehouse starts with empty derived tables at the empty state (the exam rules
+    put in place before the first load), so even the first run is incremental."""
     db, results = three_runs
-    assert [r.mode for r in results] == ["full", "incremental", "incremental"]
+    assert [r.mode for r in results] == ["incremental"] * 3
     with duckdb.connect(str(db), read_only=True) as con:
         (n_studies,) = con.execute("select count(distinct study_key) from raw_dose_object").fetchone()
-    assert 0 < results[1].n_studies < n_studies and 0 < results[2].n_studies < n_studies
+    assert all(0 < r.n_studies < n_studies for r in results)
+    assert sum(r.n_studies for r in results) > n_studies   # studies spread over runs, redone
 
 
 def test_tables_kept_run_by_run_equal_the_whole_computation(three_runs):
     db, _ = three_runs
     with duckdb.connect(str(db), read_only=True) as con:
-        for table, calc in DERIVED_TABLES:
+        for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
             _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
                          table)
 
@@ -138,3 +141,28 @@ def test_an_audit_below_the_kept_maps_floor_computes_the_missing_maps(warehouse,
     for study, psd, upper, peak in rows:
         assert peak is not None, f"study {study} at {psd:.0f} mGy has no map"
         assert peak + (upper or 0.0) == pytest.approx(psd, rel=1e-9)
+
+
+def test_changed_exam_rules_recompute_the_matches_whole(warehouse, tmp_path):
+    """Replacing the exam rules recomputes derived_exam_match (mode 'rules'); study_dose then
+    shows the new rules' exam types, as the whole computation does."""
+    from pipeline.exams import load_exam_rules, rule_rows
+    from pipeline.warehouse.derived import exam_rules_state
+    from pipeline.warehouse.load import replace_exam_rules
+
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(warehouse[0], db)
+    rules = rule_rows(load_exam_rules())
+    with connection(db) as con:
+        before = exam_rules_state(con)
+        # drop every rule of one exam type: its studies become unmapped
+        exam = con.execute("select exam_type from study_dose where exam_type is not null "
+                           "group by 1 order by count(*) desc limit 1").fetchall()[0][0]
+        replace_exam_rules(con, [r for r in rules if r["exam_type"] != exam])
+        assert exam_rules_state(con) != before
+        state = con.execute("select mode from derived_state").fetchall()
+        assert state == [("rules",)]
+        (left,) = con.execute("select count(*) from study_dose where exam_type = ?", [exam]).fetchone()
+        assert left == 0
+        _assert_same(_frame(con, "derived_exam_match", None), _frame(con, "calc_exam_match", None),
+                     "derived_exam_match")
