@@ -432,16 +432,17 @@ def _bsf_cells(kvp: np.ndarray, side_cm: np.ndarray, cu_mm: np.ndarray,
     grid_kvp, grid_cu, grid_side, _ = backscatter_table()
     k = np.clip(kvp, grid_kvp[0], grid_kvp[-1])
     side = np.clip(side_cm, grid_side[0], grid_side[-1])
-    known = ~cu_unknown
-    xi = [np.stack([k[known], np.clip(cu_mm[known], grid_cu[0], grid_cu[-1]), side[known]], -1)]
-    n_unknown = int(cu_unknown.sum())
-    xi += [np.stack([k[cu_unknown], np.full(n_unknown, c), side[cu_unknown]], -1) for c in grid_cu]
+    cu = np.clip(cu_mm, grid_cu[0], grid_cu[-1])
+    if not cu_unknown.any():
+        return _interpolator()(np.column_stack([k, cu, side]))
+    # unknown copper: the largest B over the tabulated filtrations
+    unknown = np.flatnonzero(cu_unknown)
+    n_unknown = unknown.size
+    xi = [np.column_stack([k, cu, side])]
+    xi += [np.column_stack([k[unknown], np.full(n_unknown, c), side[unknown]]) for c in grid_cu]
     values = _interpolator()(np.concatenate(xi))
-    out = np.empty(side.shape)
-    n_known = side.size - n_unknown
-    out[known] = values[:n_known]
-    if n_unknown:
-        out[cu_unknown] = np.max(values[n_known:].reshape(grid_cu.size, n_unknown), axis=0)
+    out = values[:side.size]
+    out[unknown] = np.max(values[side.size:].reshape(grid_cu.size, n_unknown), axis=0)
     return out
 
 
@@ -596,7 +597,7 @@ def _block_arrays(scalars: list[tuple], poses: list[_Pose], along: np.ndarray,
     u = np.cross(ref, d)
     u /= np.sqrt(np.matmul(u[:, None, :], u[:, :, None])[:, 0])
     v = np.cross(d, u)
-    p.update(d=d, u=u, v=v, axes=np.stack([d, u, v], axis=-1), source=source,
+    p.update(axes=np.stack([d, u, v], axis=-1), source=source,
              offset=np.column_stack([p["x0"], p["y0"], p["zc"]]))
     p["row_points"] = np.concatenate([q.row_points for q in poses])
     p["row_normals"] = np.concatenate([q.row_normals for q in poses])
@@ -611,7 +612,7 @@ def _reachable_columns(p: dict[str, np.ndarray], poses: list[_Pose], along: np.n
     """Per event and row of cells: the first column and the number of columns that can be in
     the beam and face its source (a superset of the cells the exact test keeps).
 
-    Relative to the source, row i's cells are (ax_i, y + ay, az_i) with y the column's room y:
+    Relative to the source, row i's cells are rel0_i + (0, y, 0) with y the column's room y:
     the beam's depth t and its two across offsets are linear in y, so each inside condition
     (t > 0, |across| <= half side x t) bounds y on one side and a row's cells in the field are
     one run of columns; facing the source does not depend on y. The bounds are widened by
@@ -619,28 +620,22 @@ def _reachable_columns(p: dict[str, np.ndarray], poses: list[_Pose], along: np.n
     """
     n_around, n_along = poses[0].row_points.shape[0], along.size
     at_rows = p["pose"][:, None] * n_around + np.arange(n_around)
-    rx, rz = p["row_points"][at_rows, 0], p["row_points"][at_rows, 2]      # (E, rows)
     slack = _BOUND_SLACK_MM
-    ax = rx + p["x0"][:, None] - p["source"][:, 0, None]
-    az = rz + p["zc"][:, None] - p["source"][:, 2, None]
-    ay = (p["y0"] - p["source"][:, 1])[:, None]
     h = (p["side_mm"] / p["sid"] / 2.0)[:, None]
-    d, u, v = p["d"], p["u"], p["v"]
     with np.errstate(all="ignore"):
-        t0 = ax * d[:, 0, None] + ay * d[:, 1, None] + az * d[:, 2, None]
-        u0 = ax * u[:, 0, None] + ay * u[:, 1, None] + az * u[:, 2, None]
-        v0 = ax * v[:, 0, None] + ay * v[:, 1, None] + az * v[:, 2, None]
-        t1, u1, v1 = d[:, 1, None], u[:, 1, None], v[:, 1, None]
-        ok = p["row_normals"][at_rows, 0] * ax + p["row_normals"][at_rows, 2] * az < slack
-        lo = np.full(ax.shape, -np.inf)
-        hi = np.full(ax.shape, np.inf)
-        for c0, c1 in ((-t0, -t1), (u0 - h * t0, u1 - h * t1), (-u0 - h * t0, -u1 - h * t1),
-                       (v0 - h * t0, v1 - h * t1), (-v0 - h * t0, -v1 - h * t1)):
-            c1 = np.broadcast_to(c1, c0.shape)
-            bound = (slack - c0) / c1                                        # c0 + c1 y <= slack
-            hi = np.where(c1 > 0, np.minimum(hi, bound), hi)
-            lo = np.where(c1 < 0, np.maximum(lo, bound), lo)
-            ok &= (c1 != 0) | (c0 <= slack)
+        # the rows relative to the source at y = 0 (E, rows, 3), depth and across offsets there
+        rel0 = p["row_points"][at_rows] + (p["offset"] - p["source"])[:, None, :]
+        tuv0 = np.matmul(rel0, p["axes"])
+        t0, u0, v0 = tuv0[..., 0], tuv0[..., 1], tuv0[..., 2]
+        t1, u1, v1 = (p["axes"][:, 1, k, None] for k in range(3))        # d/dy of t, u, v
+        ok = np.einsum("erk,erk->er", p["row_normals"][at_rows], rel0) < slack   # facing
+        # c0 + c1 y <= slack for: t > 0, +-u <= h t, +-v <= h t
+        c0 = np.stack([-t0, u0 - h * t0, -u0 - h * t0, v0 - h * t0, -v0 - h * t0])
+        c1 = np.stack([-t1, u1 - h * t1, -u1 - h * t1, v1 - h * t1, -v1 - h * t1])
+        bound = (slack - c0) / c1
+        hi = np.where(c1 > 0, bound, np.inf).min(axis=0)
+        lo = np.where(c1 < 0, bound, -np.inf).max(axis=0)
+        ok &= ((c1 != 0) | (c0 <= slack)).all(axis=0)
         # room y = +-along of the column: the run of columns, along = cell x (j - half)
         y_sign = np.array([1.0 if q.column_points[-1, 1] > q.column_points[0, 1] else -1.0
                            for q in poses])[p["pose"]][:, None]
@@ -650,7 +645,8 @@ def _reachable_columns(p: dict[str, np.ndarray], poses: list[_Pose], along: np.n
         j_hi = np.ceil(np.clip(a_hi / cell_mm + half, -2.0, n_along + 1.0)) + 1
         ok &= a_lo <= a_hi
         # an event with a number that is not finite: every cell goes to the exact test
-        finite = np.isfinite(np.column_stack([p["offset"], p["source"], d, u, v, h])).all(axis=1)
+        finite = np.isfinite(np.column_stack([p["offset"], p["source"], p["axes"].reshape(-1, 9),
+                                              h])).all(axis=1)
     j_lo = np.clip(j_lo, 0, n_along - 1).astype(np.int64)
     j_hi = np.clip(j_hi, 0, n_along - 1).astype(np.int64)
     ok &= j_lo <= j_hi
@@ -670,22 +666,30 @@ def _project_chunk(p: dict[str, np.ndarray], first: int, last: int, poses: list[
     n = p["count"][ev_rows, rows]
     total = int(n.sum())
     ev = np.repeat(ev_rows, n)
-    column = np.repeat(p["j_lo"][ev_rows, rows], n) + (np.arange(total) - np.repeat(np.cumsum(n) - n, n))
+    column = np.repeat(p["j_lo"][ev_rows, rows], n) + \
+        (np.arange(total) - np.repeat(np.cumsum(n) - n, n))
     row = np.repeat(rows, n)
     at_row = p["pose"][ev] * poses[0].row_points.shape[0] + row
     points = p["row_points"][at_row] + p["column_points"][p["pose"][ev] * n_along + column] + \
         p["offset"][ev]
     rel = points - p["source"][ev]
     # t and the across offsets: one matrix product per event, as the per-event projection
-    # took them (BLAS rounds a product of a single row differently: a lone cell is doubled)
-    tuv = np.empty_like(rel)
-    bounds = np.concatenate([[0], np.cumsum(p["n_cells"][first:last])]).tolist()
-    for k in range(first, last):
-        lo, hi = bounds[k - first], bounds[k - first + 1]
-        if hi - lo > 1:
-            np.matmul(rel[lo:hi], p["axes"][k], out=tuv[lo:hi])
-        elif hi - lo == 1:
-            tuv[lo:hi] = np.matmul(np.concatenate([rel[lo:hi], rel[lo:hi]]), p["axes"][k])[:1]
+    # took them (BLAS rounds a product of a single row on another path: rows are padded to 2)
+    counts = p["n_cells"][first:last]
+    starts = np.cumsum(counts) - counts
+    width = max(2, int(counts.max()))
+    if (last - first) * width <= max(2 * total, 4096):
+        local, at = ev - first, np.arange(total) - np.repeat(starts, counts)
+        padded = np.zeros((last - first, width, 3))
+        padded[local, at] = rel
+        tuv = np.matmul(padded, p["axes"][first:last])[local, at]
+        del padded
+    else:   # one event reaches far more cells than the others: one product each
+        tuv = np.empty_like(rel)
+        for k, lo, n_k in zip(range(first, last), starts.tolist(), counts.tolist(), strict=True):
+            if n_k:
+                twice = rel[lo:lo + n_k] if n_k > 1 else np.concatenate([rel[lo:lo + 1]] * 2)
+                tuv[lo:lo + n_k] = np.matmul(twice, p["axes"][k])[:n_k]
     side_at_t = p["side_mm"][ev] * tuv[:, 0] / p["sid"][ev]
     inside = (tuv[:, 0] > 0) & (np.abs(tuv[:, 1]) <= side_at_t / 2) & \
         (np.abs(tuv[:, 2]) <= side_at_t / 2)
@@ -707,19 +711,30 @@ def _project_chunk(p: dict[str, np.ndarray], first: int, last: int, poses: list[
     cell_mgy = p["dose_rp"][ev_hit] * (p["d_rp"][ev_hit] / dist) ** 2 * bsf * F_TISSUE_AIR * trans
     # unbuffered, in index order: each cell's sum runs over the events in their order
     np.add.at(dose.reshape(-1), (row * n_along + column)[hit], cell_mgy)
-    factors = []
-    ends = np.searchsorted(ev_hit, np.arange(first, last + 1)).tolist()
-    for k in range(first, last):
-        lo, hi = ends[k - first], ends[k - first + 1]
-        if lo == hi:
-            factors.append({"has_geometry": True, "hit": False})
-            continue
-        m = lo + int(np.argmax(cell_mgy[lo:hi]))
-        d_rp = float(p["d_rp"][k])
-        factors.append({"has_geometry": True, "hit": True,
-                        "inverse_square": float((d_rp / dist[m]) ** 2),
-                        "bsf": float(bsf[m]), "f": F_TISSUE_AIR,
-                        "table_transmission": float(trans[m]),
-                        "d_rp_mm": d_rp, "d_skin_mm": float(dist[m]),
-                        "position": poses[int(p["pose"][k])].position})
+    return _hottest_cells(p, first, last, poses, ev_hit, cell_mgy, dist, bsf, trans)
+
+
+def _hottest_cells(p: dict[str, np.ndarray], first: int, last: int, poses: list[_Pose],
+                   ev_hit: np.ndarray, cell_mgy: np.ndarray, dist: np.ndarray, bsf: np.ndarray,
+                   trans: np.ndarray) -> list[dict]:
+    """Each event's factors on its hottest cell (the first, in row-major order, of equal ones)."""
+    ends = np.searchsorted(ev_hit, np.arange(first, last + 1))
+    n_hit = np.diff(ends)
+    lit = np.flatnonzero(n_hit)
+    starts = ends[:-1][lit]
+    if np.isnan(cell_mgy).any():
+        hottest = np.array([lo + int(np.argmax(cell_mgy[lo:hi]))
+                            for lo, hi in zip(starts, ends[1:][lit], strict=True)], dtype=np.int64)
+    else:
+        peak = np.maximum.reduceat(cell_mgy, starts) if starts.size else cell_mgy[:0]
+        at_peak = np.flatnonzero(cell_mgy == np.repeat(peak, n_hit[lit]))
+        hottest = at_peak[np.searchsorted(at_peak, starts)]
+    factors: list[dict] = [{"has_geometry": True, "hit": False} for _ in range(last - first)]
+    columns = zip(lit.tolist(), p["d_rp"][first:last][lit].tolist(), dist[hottest].tolist(),
+                  bsf[hottest].tolist(), trans[hottest].tolist(),
+                  p["pose"][first:last][lit].tolist(), strict=True)
+    for k, d_rp, d_skin, b, t, pose in columns:
+        factors[k] = {"has_geometry": True, "hit": True, "inverse_square": (d_rp / d_skin) ** 2,
+                      "bsf": b, "f": F_TISSUE_AIR, "table_transmission": t, "d_rp_mm": d_rp,
+                      "d_skin_mm": d_skin, "position": poses[pose].position}
     return factors

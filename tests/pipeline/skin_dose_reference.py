@@ -10,9 +10,19 @@ import math
 
 import numpy as np
 
-from pipeline.skin_dose import (BSF_SOURCE, F_SOURCE, F_TISSUE_AIR, SkinDoseEvent,
-                                SkinDoseResult, SkinDoseSettings, _bsf, _surface,
-                                backscatter_factor, patient_rotation, phantom_for)
+from pipeline.skin_dose import (
+    BSF_SOURCE,
+    F_SOURCE,
+    F_TISSUE_AIR,
+    SkinDoseEvent,
+    SkinDoseResult,
+    SkinDoseSettings,
+    _bsf,
+    _surface,
+    backscatter_factor,
+    patient_rotation,
+    phantom_for,
+)
 
 __all__ = ["reference_compute_skin_dose"]
 

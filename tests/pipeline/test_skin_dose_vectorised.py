@@ -54,12 +54,14 @@ def _random_event(rng: np.random.Generator) -> SkinDoseEvent:
         kvp=_maybe(rng, 0.15, float(rng.uniform(50, 130))),
         primary_angle_deg=_maybe(rng, 0.08, primary),
         secondary_angle_deg=_maybe(rng, 0.04, secondary),
-        source_to_isocenter_mm=_maybe(rng, 0.05, float(rng.choice([600.0, 750.0, rng.uniform(500, 900)]))),
+        source_to_isocenter_mm=_maybe(rng, 0.05,
+                                      float(rng.choice([600.0, 750.0, rng.uniform(500, 900)]))),
         source_to_detector_mm=_maybe(rng, 0.2, float(rng.uniform(900, 1300))),
         source_to_rp_mm=_maybe(rng, 0.85, float(rng.uniform(500, 700))),
         field_area_cm2=_maybe(rng, 0.1, field),
         table_longitudinal_mm=_maybe(rng, 0.1, 2500.0 if miss else table(250)),
-        table_lateral_mm=_maybe(rng, 0.1, table(30) + (900.0 if miss and rng.random() < 0.5 else 0.0)),
+        table_lateral_mm=_maybe(rng, 0.1,
+                                table(30) + (900.0 if miss and rng.random() < 0.5 else 0.0)),
         table_height_mm=_maybe(rng, 0.15, float(round(rng.uniform(-260, 60))) if round_table
                                else float(rng.uniform(-260, 60))),
         reference_point_definition=RP_DEFINITIONS[int(rng.integers(len(RP_DEFINITIONS)))],
@@ -88,7 +90,8 @@ def _assert_same(new, ref) -> None:
     assert np.array_equal(new.dose_map_mgy > 0, ref.dose_map_mgy > 0)
     np.testing.assert_allclose(new.dose_map_mgy, ref.dose_map_mgy, rtol=RTOL, atol=0.0)
     assert _same_number(new.psd_mgy, ref.psd_mgy)
-    assert np.array_equal(new.around_mm, ref.around_mm) and np.array_equal(new.along_mm, ref.along_mm)
+    assert np.array_equal(new.around_mm, ref.around_mm)
+    assert np.array_equal(new.along_mm, ref.along_mm)
     assert (new.n_events, new.n_events_with_geometry, new.phantom) == \
         (ref.n_events, ref.n_events_with_geometry, ref.phantom)
     assert _same_number(new.ka_r_total_mgy, ref.ka_r_total_mgy)
@@ -146,7 +149,8 @@ def test_small_blocks_and_chunks_give_the_same_map(monkeypatch):
     SkinDoseSettings(cell_mm=10.0, rp_from_isocentre_mm=100.0)])
 def test_the_settings_reach_both_projections_alike(settings):
     for events, height, weight in _studies(11, [40, 3]):
-        _assert_same(compute_skin_dose(events, height_m=height, weight_kg=weight, settings=settings),
+        _assert_same(compute_skin_dose(events, height_m=height, weight_kg=weight,
+                                       settings=settings),
                      reference_compute_skin_dose(events, height_m=height, weight_kg=weight,
                                                  settings=settings))
 
