@@ -31,7 +31,7 @@ def demo_studies(n_studies: int, seed: int,
                  months: int) -> list[tuple[list, float | None, float | None]]:
     """(events, height_m, weight_kg) of each RF/XA study of a generated corpus."""
     from pipeline import concepts as C
-    from pipeline.audit import _added_cu_mm
+    from pipeline.metrics.skin import _added_cu_mm
     from pipeline.skin_dose import SkinDoseEvent
     from synthetic_studies.sampling import make_study
     from synthetic_studies.scenario import load_scenario
