@@ -9,9 +9,12 @@ from __future__ import annotations
 import datetime as dt
 import math
 
+from pydicom.datadict import dictionary_VR, tag_for_keyword
+from pydicom.dataelem import DataElement
 from pydicom.dataset import Dataset
 from pydicom.sequence import Sequence
 from pydicom.sr.coding import Code
+from pydicom.tag import Tag
 
 __all__ = [
     "code_item",
@@ -52,25 +55,38 @@ def dt_value(when: dt.datetime) -> str:
     return when.strftime("%Y%m%d%H%M%S")
 
 
+def _element(keyword: str) -> tuple:
+    tag = Tag(tag_for_keyword(keyword))
+    return tag, dictionary_VR(tag)
+
+
+_CODE_VALUE, _SCHEME, _MEANING = (_element(k) for k in (
+    "CodeValue", "CodingSchemeDesignator", "CodeMeaning"))
+_RELATIONSHIP, _VALUE_TYPE, _CONCEPT_NAME = (_element(k) for k in (
+    "RelationshipType", "ValueType", "ConceptNameCodeSequence"))
+_NUMERIC_VALUE, _UNITS, _MEASURED = (_element(k) for k in (
+    "NumericValue", "MeasurementUnitsCodeSequence", "MeasuredValueSequence"))
+
+
+def _dataset(*elements: tuple[tuple, object]) -> Dataset:
+    """A Dataset of ((tag, VR), value) pairs: the elements ``ds.Keyword = value`` would make
+    (VR from the data dictionary), without its per-assignment keyword lookup (speed only)."""
+    return Dataset({tag: DataElement(tag, vr, value) for (tag, vr), value in elements})
+
+
 def code_sequence_item(code: Code | tuple[str, str, str]) -> Dataset:
     if isinstance(code, Code):
         value, scheme, meaning = code.value, code.scheme_designator, code.meaning
     else:
         value, scheme, meaning = code
-    item = Dataset()
-    item.CodeValue = value
-    item.CodingSchemeDesignator = scheme
-    item.CodeMeaning = meaning
-    return item
+    return _dataset((_CODE_VALUE, value), (_SCHEME, scheme), (_MEANING, meaning))
 
 
 def _item(relationship: str | None, value_type: str, concept: Code) -> Dataset:
-    item = Dataset()
+    name = ((_VALUE_TYPE, value_type), (_CONCEPT_NAME, Sequence([code_sequence_item(concept)])))
     if relationship is not None:
-        item.RelationshipType = relationship
-    item.ValueType = value_type
-    item.ConceptNameCodeSequence = Sequence([code_sequence_item(concept)])
-    return item
+        return _dataset((_RELATIONSHIP, relationship), *name)
+    return _dataset(*name)
 
 
 def container(concept: Code, children: list[Dataset], relationship: str | None = CONTAINS,
@@ -99,11 +115,10 @@ def num_item(concept: Code, value: float, unit: Code | None, relationship: str =
              children: list[Dataset] | None = None) -> Dataset:
     """NUM item; `unit=None` writes a measured value without units (a deliberate defect)."""
     item = _item(relationship, "NUM", concept)
-    measured = Dataset()
-    measured.NumericValue = format_ds(value)
-    if unit is not None:
-        measured.MeasurementUnitsCodeSequence = Sequence([code_sequence_item(unit)])
-    item.MeasuredValueSequence = Sequence([measured])
+    number = (_NUMERIC_VALUE, format_ds(value))
+    measured = _dataset(number) if unit is None else \
+        _dataset(number, (_UNITS, Sequence([code_sequence_item(unit)])))
+    item[_MEASURED[0]] = DataElement(_MEASURED[0], _MEASURED[1], Sequence([measured]))
     if children:
         item.ContentSequence = Sequence(children)
     return item
