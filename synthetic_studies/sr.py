@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import warnings
 
 import pydicom.config
 from pydicom.datadict import dictionary_VR, tag_for_keyword
@@ -94,21 +95,26 @@ def _dataset(*elements: tuple[tuple, object]) -> Dataset:
 
 
 # Elements whose few distinct values repeat in every item (codes, relationship and value
-# types): each distinct one is made (and validated) once, then copied attribute for attribute.
-# Only when writing raises on an invalid value, so no warning is ever skipped by a copy.
+# types): each distinct one is made (and validated, as DataElement does, in pydicom's reading
+# validation mode) once, then copied attribute for attribute. A value whose validation warned
+# is never reused, so no warning is skipped by a copy.
 _TEMPLATES: dict[tuple, DataElement] = {}
 
 
 def _new_element(tag, vr: str, value) -> DataElement:
-    mode = pydicom.config.settings.writing_validation_mode
-    if tag not in _CONSTANT or type(value) is not str or mode != pydicom.config.RAISE:
+    if tag not in _CONSTANT or type(value) is not str:
         return DataElement(tag, vr, value)
-    key = (tag, vr, value)
+    key = (tag, vr, value, pydicom.config.settings.reading_validation_mode)
     template = _TEMPLATES.get(key)
     if template is None:
-        template = DataElement(tag, vr, value)
-        if len(_TEMPLATES) < 65_536:
-            _TEMPLATES[key] = template
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            element = DataElement(tag, vr, value)
+        for w in caught:  # hand them on, in order
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        if caught or len(_TEMPLATES) >= 65_536:
+            return element
+        template = _TEMPLATES[key] = element  # kept apart: only copies are handed out
     element = object.__new__(DataElement)
     element.__dict__.update(template.__dict__)
     return element
