@@ -157,9 +157,6 @@ def ingest(paths: list[Path], warehouse: Path, key: bytes, *, workers: int = 1,
     pool = ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,),
                                mp_context=multiprocessing.get_context("spawn")) \
         if workers > 1 and parse is None else None
-    if pool is not None:  # start the workers now: their imports overlap the warehouse set-up
-        for _ in range(workers):
-            pool.submit(_ready)
     started = dt.datetime.now()
     try:
         _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
@@ -191,6 +188,9 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
          pseudonymise, run_id, started, summary, parse=None, new_key_epoch=False) -> None:
     with connection(warehouse, create=True) as con:
         ensure_schema(con)
+        if pool is not None:  # start the workers now: their imports overlap the set-up below
+            for _ in range(workers):
+                pool.submit(_ready)
         # before anything is loaded: a different key would split every patient in two
         summary.key_epoch = check_key_epoch(con, key_fingerprint(key), new_epoch=new_key_epoch,
                                             run_id=run_id, now=started)
