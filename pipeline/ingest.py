@@ -23,10 +23,10 @@ import duckdb
 
 from . import __version__
 from .errors import InputError, WarehouseError
-from .models import DoseObject, IssueKind, ParseIssue, as_row
-from .parsing import parse_dose_object
+from .ingest_worker import FileOutcome, _init_worker, _ready, _work, process_file
+from .models import as_row
 from .pseudonym import key_fingerprint, make_pseudonymiser
-from .sources.files import Candidate, iter_candidates, lenient_pydicom, read_object
+from .sources.files import Candidate, iter_candidates
 from .warehouse.connection import connection
 from .warehouse.key_epoch import check_key_epoch
 from .warehouse.derived import raw_state, refresh_derived
@@ -36,19 +36,6 @@ from .warehouse.tables import arrow_table
 __all__ = ["FileOutcome", "IngestSummary", "ingest", "process_file"]
 
 BATCH_SIZE = 256
-
-
-@dataclass(slots=True)
-class FileOutcome:
-    path: str
-    sha256: str
-    size_bytes: int
-    status: str
-    reason: str | None = None
-    detail: str | None = None
-    sop_instance_uid: str | None = None
-    sop_class_uid: str | None = None
-    obj: DoseObject | None = None
 
 
 @dataclass
@@ -67,84 +54,6 @@ class IngestSummary:
     @property
     def loaded(self) -> int:
         return self.by_status["loaded"]
-
-
-def process_file(path: str, data: bytes, pseudonymise: Callable[[str, str], str],
-                 digest: str | None = None) -> FileOutcome:
-    """Bytes of one file -> outcome (parsed object or the reason it was not loaded). No I/O.
-
-    `digest` is the SHA-256 of `data` when the caller has already computed it."""
-    digest = digest or hashlib.sha256(data).hexdigest()
-    outcome = FileOutcome(path, digest, len(data), "loaded")
-    with lenient_pydicom() as caught:
-        try:
-            read = read_object(data, path)
-            ds = read.dataset
-            outcome.sop_class_uid = _text(ds, "SOPClassUID")
-            outcome.sop_instance_uid = _text(ds, "SOPInstanceUID")
-            obj = parse_dose_object(ds, pseudonymise)
-        except InputError as exc:
-            outcome.status = exc.status
-            outcome.reason = exc.reason
-            outcome.detail = str(exc)
-            return outcome
-        except RecursionError:
-            outcome.status, outcome.reason = "quarantined", "content_tree_too_deep"
-            outcome.detail = f"{path}: structure nested too deeply to read"
-            return outcome
-    if read.pixel_data_truncated:
-        obj.issues.append(ParseIssue(IssueKind.PIXEL_DATA_TRUNCATED, read.pixel_data_truncated))
-    if caught:
-        seen = set()
-        for w in caught:
-            text = str(w.message).splitlines()[0][:300]
-            if text not in seen:
-                seen.add(text)
-                obj.issues.append(ParseIssue(IssueKind.PARSER_WARNING, f"pydicom: {text}"))
-    outcome.obj = obj
-    outcome.reason = "loaded_with_note" if obj.note else None
-    outcome.detail = obj.note
-    return outcome
-
-
-def _text(ds, keyword: str) -> str | None:
-    try:
-        value = ds.get(keyword)
-    except Exception:  # noqa: BLE001 - an unreadable UID is reported by the parser
-        return None
-    return str(value).strip() if value else None
-
-
-# --- worker processes ---------------------------------------------------------------------------
-
-_WORKER_PSEUDONYMISE: Callable[[str, str], str] | None = None
-
-
-def _init_worker(key: bytes) -> None:
-    global _WORKER_PSEUDONYMISE
-    _die_with_parent()
-    _WORKER_PSEUDONYMISE = make_pseudonymiser(key)
-
-
-def _die_with_parent() -> None:
-    """End this worker when the ingest process dies (even by SIGKILL): an idle worker would
-    otherwise wait on its queue forever. A daemon thread notices the re-parenting."""
-    import os
-    import threading
-    import time
-
-    parent = os.getppid()
-
-    def watch() -> None:
-        while os.getppid() == parent:
-            time.sleep(0.5)
-        os._exit(1)
-
-    threading.Thread(target=watch, name="kerma-parent-watch", daemon=True).start()
-
-
-def _work(item: tuple[str, bytes, str]) -> FileOutcome:
-    return process_file(item[0], item[1], _WORKER_PSEUDONYMISE, item[2])
 
 
 # --- rows for the warehouse ----------------------------------------------------------------------
@@ -281,6 +190,9 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
          pseudonymise, run_id, started, summary, parse=None, new_key_epoch=False) -> None:
     with connection(warehouse, create=True) as con:
         ensure_schema(con)
+        if pool is not None:  # start the workers now: their imports overlap the set-up below
+            for _ in range(workers):
+                pool.submit(_ready)
         # before anything is loaded: a different key would split every patient in two
         summary.key_epoch = check_key_epoch(con, key_fingerprint(key), new_epoch=new_key_epoch,
                                             run_id=run_id, now=started)

@@ -33,6 +33,7 @@ import pyarrow.parquet as pq
 import numpy as np
 import pydicom.config
 from pydicom.charset import convert_encodings, default_encoding, encode_string
+from pydicom.dataelem import DataElement
 from pydicom.filebase import DicomBytesIO
 from pydicom.filewriter import correct_ambiguous_vr_element, write_file_meta_info
 from pydicom.dataset import validate_file_meta
@@ -201,17 +202,54 @@ def _fast_encode(ds) -> bytes:
     return b"".join(out)
 
 
+_CHARSET_TAG = 0x00080005
+_CODE_ITEM_TAGS = (0x00080100, 0x00080102, 0x00080104)  # Code Value, Scheme, Code Meaning
+_ENCODINGS: dict[tuple, list[str]] = {}
+# The bytes of a code sequence item (Code Value, Coding Scheme Designator, Code Meaning, all
+# text) by its three values and character set: thousands of content items share a few
+# hundred codes, so each distinct one is encoded once per process.
+_CODE_ITEMS: dict[tuple, bytes] = {}
+
+
+def _encodings(charset) -> list[str]:
+    key = charset if isinstance(charset, str) else tuple(charset)
+    found = _ENCODINGS.get(key)
+    if found is None:
+        found = _ENCODINGS[key] = convert_encodings(charset)
+    return found
+
+
 def _encode_dataset(out: list[bytes], ds, parent_encodings: list[str], top: bool = False) -> int:
     """Append the encoded elements of `ds` to `out`; returns the number of bytes."""
-    charset = ds.get("SpecificCharacterSet", None)
-    encodings = convert_encodings(charset) if charset is not None else \
-        convert_encodings(parent_encodings)
+    elements = ds._dict
+    charset = elements.get(_CHARSET_TAG)
+    if charset is not None and charset.is_raw:
+        raise _NotHandled
+    charset = charset.value if charset is not None else None
+    encodings = _encodings(charset if charset is not None else parent_encodings)
+    if len(elements) == 3 and not top:
+        items = [elements.get(t) for t in _CODE_ITEM_TAGS]
+        if all(type(e) is DataElement and type(e.value) is str for e in items):
+            key = (*((e.VR, e.value) for e in items), *encodings)
+            data = _CODE_ITEMS.get(key)
+            if data is None:
+                parts: list[bytes] = []
+                _encode_elements(parts, ds, elements, encodings, top)
+                data = b"".join(parts)
+                if len(_CODE_ITEMS) < 65_536:
+                    _CODE_ITEMS[key] = data
+            out.append(data)
+            return len(data)
+    return _encode_elements(out, ds, elements, encodings, top)
+
+
+def _encode_elements(out: list[bytes], ds, elements: dict, encodings: list[str],
+                     top: bool) -> int:
     n = 0
-    get_item = ds.get_item
-    for tag in sorted(ds.keys()):
-        if tag.element == 0 and tag.group > 6:
+    for tag in sorted(elements, key=int):
+        if not tag & 0xFFFF and tag >> 16 > 6:
             continue
-        elem = get_item(tag)
+        elem = elements[tag]
         if elem.is_raw:
             raise _NotHandled
         if elem.VR in AMBIGUOUS_VR:
@@ -241,7 +279,9 @@ def _encode_element(out: list[bytes], elem, encodings: list[str]) -> int:
             length += 8 + size
         out[header_at] = struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, b"SQ", 0, length)
         return 12 + length
-    value = b"" if elem.is_empty else _value_bytes(elem, vr, encodings)
+    value = elem.value
+    empty = not value if type(value) is str else elem.is_empty  # a str: VM 0 when ""
+    value = b"" if empty else _value_bytes(elem, vr, encodings)
     if vr in _LONG_VR:
         out.append(struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, vr.encode(), 0, len(value)))
         out.append(value)
@@ -263,7 +303,7 @@ def _text(value: str, encodings: list[str]) -> bytes:
 
 
 def _is_multi(value) -> bool:
-    return isinstance(value, (MultiValue, list, tuple, np.ndarray))
+    return type(value) is not str and isinstance(value, (MultiValue, list, tuple, np.ndarray))
 
 
 def _value_bytes(elem, vr: str, encodings: list[str]) -> bytes:

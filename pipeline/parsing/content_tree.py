@@ -9,9 +9,12 @@ from __future__ import annotations
 
 import datetime as dt
 import functools
-from collections.abc import Iterator
+import warnings
+from collections.abc import Callable, Iterator
 
+from pydicom.dataelem import RawDataElement
 from pydicom.dataset import Dataset
+from pydicom.tag import BaseTag
 from pydicom.multival import MultiValue
 from pydicom.sr._snomed_dict import mapping as _SNOMED_MAPPING
 from pydicom.sr.coding import Code
@@ -43,6 +46,73 @@ class TreeTooDeepError(ValueError):
     pass
 
 
+# --- element access (speed only: the same values as Dataset.get(keyword)) -----------------------
+
+_CONCEPT_NAME = BaseTag(0x0040A043)      # Concept Name Code Sequence
+_CONCEPT_CODE = BaseTag(0x0040A168)      # Concept Code Sequence
+_UNITS = BaseTag(0x004008EA)             # Measurement Units Code Sequence
+_VALUE_TYPE = BaseTag(0x0040A040)
+_CONTENT_SEQUENCE = BaseTag(0x0040A730)
+_MEASURED_VALUE = BaseTag(0x0040A300)
+_NUMERIC_VALUE = BaseTag(0x0040A30A)
+_FLOATING_POINT_VALUE = BaseTag(0x0040A161)
+_CODE_VALUE = BaseTag(0x00080100)
+_SCHEME = BaseTag(0x00080102)
+_CODE_MEANING = BaseTag(0x00080104)
+_LONG_CODE_VALUE = BaseTag(0x00080119)
+_URN_CODE_VALUE = BaseTag(0x00080120)
+_TEXT_VALUE = BaseTag(0x0040A160)
+_UID = BaseTag(0x0040A124)
+_DATETIME = BaseTag(0x0040A120)
+
+
+def _get(ds: Dataset, tag: BaseTag):
+    """``ds.get(keyword)`` by tag, without the keyword lookup: the element's value (converted
+    by pydicom on first access, as ``get`` does) or None when absent."""
+    elem = ds._dict.get(tag)
+    if elem is None:
+        return None
+    if not isinstance(elem, RawDataElement):
+        return elem.value
+    try:
+        return ds[tag].value
+    except AttributeError:  # what Dataset.get turns into its default
+        return None
+
+
+# A code sequence (concept name, coded value, units) holds the same bytes in thousands of items
+# of a report and across reports; what the parser takes from it is remembered by those bytes,
+# so pydicom decodes each distinct sequence once per process instead of once per item. The key
+# holds everything the decoding depends on (tag, VR, encoding, character set, the bytes);
+# a decoding that warned is never remembered, so every file still records its own warnings.
+_SQ_MEMO: dict[tuple, object] = {}
+_SQ_MEMO_MAX = 16_384
+_MISS = object()
+
+
+def _from_sequence(item: Dataset, tag: BaseTag, take: Callable[[object], object]):
+    """``take(item.get(<sequence tag>))``, remembered by the sequence's undecoded bytes."""
+    raw = item._dict.get(tag)
+    if not isinstance(raw, RawDataElement) or raw.value is None:
+        return take(None if raw is None else _get(item, tag))
+    charset = item.original_character_set or item._character_set
+    key = (tag, raw.VR, raw.is_implicit_VR, raw.is_little_endian, raw.length,
+           raw.value, charset if isinstance(charset, str) else tuple(charset))
+    found = _SQ_MEMO.get(key, _MISS)
+    if found is not _MISS:
+        return found
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        found = take(_get(item, tag))
+    for w in caught:  # hand them on, in order, to whoever records this file's warnings
+        warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    if not caught:
+        if len(_SQ_MEMO) >= _SQ_MEMO_MAX:
+            _SQ_MEMO.clear()
+        _SQ_MEMO[key] = found
+    return found
+
+
 def code_key(scheme: str, value: str) -> tuple[str, str]:
     """Normalised (scheme, value): legacy SRT -> SCT, retired DCM codes -> current."""
     scheme = (scheme or "").strip().upper()
@@ -63,10 +133,15 @@ def _one(value) -> str:
 
 
 def _key_of_code_item(item: Dataset) -> tuple[str, str] | None:
-    value = item.get("CodeValue") or item.get("LongCodeValue") or item.get("URNCodeValue")
+    value = _get(item, _CODE_VALUE) or _get(item, _LONG_CODE_VALUE) or _get(item, _URN_CODE_VALUE)
     if value is None:
         return None
-    return code_key(_one(item.get("CodingSchemeDesignator", "")), _one(value))
+    scheme = _get(item, _SCHEME) if _SCHEME in item._dict else ""
+    return code_key(_one(scheme), _one(value))
+
+
+def _concept_of(seq) -> tuple[str, str]:
+    return (_key_of_code_item(seq[0]) if seq else None) or _NO_KEY
 
 
 _NO_KEY = ("", "")
@@ -76,8 +151,7 @@ def concept_key(item: Dataset) -> tuple[str, str] | None:
     """Normalised concept name of a content item (cached on the item: trees are read-only here)."""
     cached = item.__dict__.get("_kl_concept")
     if cached is None:
-        seq = item.get("ConceptNameCodeSequence")
-        cached = (_key_of_code_item(seq[0]) if seq else None) or _NO_KEY
+        cached = _from_sequence(item, _CONCEPT_NAME, _concept_of)
         object.__setattr__(item, "_kl_concept", cached)
     return None if cached is _NO_KEY else cached
 
@@ -88,7 +162,7 @@ def _index(item: Dataset) -> dict[tuple[str, str] | None, list[tuple[Dataset, ob
     if cached is None:
         cached = {}
         for child in children(item):
-            cached.setdefault(concept_key(child), []).append((child, child.get("ValueType")))
+            cached.setdefault(concept_key(child), []).append((child, _get(child, _VALUE_TYPE)))
         object.__setattr__(item, "_kl_index", cached)
     return cached
 
@@ -105,7 +179,7 @@ def _target(code: Code | tuple[str, str]) -> tuple[str, str]:
 
 
 def children(item: Dataset) -> list[Dataset]:
-    seq = item.get("ContentSequence")
+    seq = _get(item, _CONTENT_SEQUENCE)
     return list(seq) if seq else []
 
 
@@ -145,26 +219,30 @@ def code_value_of(item: Dataset | None) -> tuple[tuple[str, str], str] | None:
     """((scheme, value), meaning) of a CODE item's value, normalised."""
     if item is None:
         return None
-    seq = item.get("ConceptCodeSequence")
+    return _from_sequence(item, _CONCEPT_CODE, _coded_value)
+
+
+def _coded_value(seq) -> tuple[tuple[str, str], str] | None:
     if not seq:
         return None
     key = _key_of_code_item(seq[0])
     if key is None:
         return None
-    return key, str(seq[0].get("CodeMeaning", "") or "")
+    meaning = _get(seq[0], _CODE_MEANING) if _CODE_MEANING in seq[0]._dict else ""
+    return key, str(meaning or "")
 
 
 def text_of(item: Dataset | None) -> str | None:
     if item is None:
         return None
-    value = item.get("TextValue")
+    value = _get(item, _TEXT_VALUE)
     return str(value).strip() if value not in (None, "") else None
 
 
 def uid_of(item: Dataset | None) -> str | None:
     if item is None:
         return None
-    value = item.get("UID")
+    value = _get(item, _UID)
     return _one(value).strip() or None if value not in (None, "") else None
 
 
@@ -172,7 +250,7 @@ def datetime_of(item: Dataset | None) -> dt.datetime | None:
     """DATETIME item value as a naive datetime (offset, if any, dropped after applying)."""
     if item is None:
         return None
-    value = item.get("DateTime")
+    value = _get(item, _DATETIME)
     return parse_dt(str(value)) if value else None
 
 
@@ -203,21 +281,23 @@ def num_raw(item: Dataset | None) -> tuple[str | None, str | None, bool]:
     """
     if item is None:
         return None, None, False
-    seq = item.get("MeasuredValueSequence")
+    seq = _get(item, _MEASURED_VALUE)
     if not seq:
         return None, None, False
     mv = seq[0]
     text = None
-    fp = mv.get("FloatingPointValue")
+    fp = _get(mv, _FLOATING_POINT_VALUE)
     if fp is not None and fp != "":
         text = repr(float(fp if not isinstance(fp, (list, tuple)) else fp[0]))
     else:
-        raw = mv.get("NumericValue")
+        raw = _get(mv, _NUMERIC_VALUE)
         if raw is not None and raw != "":
             text = str(raw).strip()
-    units = mv.get("MeasurementUnitsCodeSequence")
-    unit = None
-    if units:
-        unit = units[0].get("CodeValue")
-        unit = str(unit).strip() if unit is not None else None
-    return text, unit, True
+    return text, _from_sequence(mv, _UNITS, _unit_code), True
+
+
+def _unit_code(units) -> str | None:
+    if not units:
+        return None
+    unit = _get(units[0], _CODE_VALUE)
+    return str(unit).strip() if unit is not None else None

@@ -53,3 +53,34 @@ def test_dicom_datetime_parsing():
     assert parse_dt("20240305101000.123456+0100").isoformat() == "2024-03-05T10:10:00.123456"
     assert parse_dt("20240305").isoformat() == "2024-03-05T00:00:00"
     assert parse_dt("2024030") is None
+
+
+def test_a_warning_in_a_code_sequence_is_recorded_by_every_file_that_has_it():
+    # Code sequences are decoded once per distinct bytes (content_tree._from_sequence); one
+    # whose decoding warns must still warn for each file. A unit Code Value of 18 characters
+    # exceeds the 16 of VR SH (PS3.5 6.2), which pydicom reports as a warning on reading.
+    import pydicom.config
+
+    from pipeline.ingest import process_file
+    from pipeline.models import IssueKind
+    from synthetic_studies.defects import find_num
+    from tests.helpers import demo_dataset, encode, pseudonymiser
+
+    settings = pydicom.config.settings
+    before = settings.writing_validation_mode, settings.reading_validation_mode
+    settings.writing_validation_mode = settings.reading_validation_mode = pydicom.config.IGNORE
+    try:
+        _, ds = demo_dataset("tgh-ct1")
+        unit = find_num(ds, C.DLP).MeasuredValueSequence[0].MeasurementUnitsCodeSequence[0]
+        unit.CodeValue = "mGy.cm" + " " * 12
+        data = encode(ds)
+    finally:
+        settings.writing_validation_mode, settings.reading_validation_mode = before
+    warned = []
+    for name in ("a.dcm", "b.dcm", "c.dcm"):
+        o = process_file(name, data, pseudonymiser())
+        assert o.status == "loaded"
+        assert o.obj.ct_events[0].dlp_mgy_cm is not None  # the unit still reads as mGy.cm
+        warned.append(sorted(i.detail for i in o.obj.issues
+                             if i.kind == IssueKind.PARSER_WARNING and "SH" in i.detail))
+    assert warned[0] and warned[0] == warned[1] == warned[2]
