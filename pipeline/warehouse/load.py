@@ -16,8 +16,12 @@ LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "pr
 
 
 def ensure_schema(con: duckdb.DuckDBPyConnection) -> list[str]:
-    """Create the tables and views if missing (idempotent)."""
-    return apply_all(con)
+    """Create the tables and views if missing (idempotent), and bring the derived tables the
+    public views read up to date (a no-op when they are; a whole rebuild for a warehouse
+    written by an earlier version, so no reader ever sees them empty)."""
+    names = apply_all(con)
+    refresh_derived(con)
+    return names
 
 
 def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) -> dict[str, int]:

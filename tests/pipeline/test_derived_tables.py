@@ -166,3 +166,21 @@ def test_changed_exam_rules_recompute_the_matches_whole(warehouse, tmp_path):
         assert left == 0
         _assert_same(_frame(con, "derived_exam_match", None), _frame(con, "calc_exam_match", None),
                      "derived_exam_match")
+
+
+def test_a_warehouse_of_an_earlier_version_is_filled_when_its_schema_is_brought_up(warehouse, tmp_path):
+    """Without the derived tables (as before they existed), the first write connection's
+    ensure_schema creates and fills them: study_dose is never seen empty."""
+    from pipeline.warehouse.load import ensure_schema
+
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(warehouse[0], db)
+    with connection(db) as con:
+        (n,) = con.execute("select count(*) from study_dose").fetchone()
+        for table in ("derived_state", "derived_study_total", "derived_irradiation_event",
+                      "derived_exam_text", "derived_exam_match", "derived_skin_dose"):
+            con.execute(f"drop table {table}")
+    with connection(db) as con:
+        ensure_schema(con)
+        assert con.execute("select count(*) from study_dose").fetchone() == (n,)
+        assert con.execute("select mode from derived_state").fetchall() == [("full",)]
