@@ -18,7 +18,7 @@ import pyarrow as pa
 from queries import sql
 
 from .errors import ConfigError
-from .parsing.units import Quantity, UnitError, convert
+from .units import Quantity, UnitError, convert
 
 __all__ = ["CANONICAL", "CSV_COLUMNS", "derive_local_set", "import_reference_csv",
            "install_reference_sets", "reference_rows"]

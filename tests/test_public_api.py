@@ -6,7 +6,7 @@ import pytest
 
 MODULES = ["pipeline", "pipeline.concepts", "pipeline.errors", "pipeline.models", "pipeline.ingest",
            "pipeline.pseudonym", "pipeline.config", "pipeline.exams", "pipeline.audit",
-           "pipeline.reference_store", "pipeline.jurisdiction", "pipeline.strata", "pipeline.parsing", "pipeline.parsing.units",
+           "pipeline.reference_store", "pipeline.jurisdiction", "pipeline.strata", "pipeline.parsing", "pipeline.units",
            "pipeline.parsing.content_tree", "pipeline.parsing.common", "pipeline.parsing.ct",
            "pipeline.parsing.projection", "pipeline.parsing.headers", "pipeline.sources.files",
            "pipeline.warehouse.connection", "pipeline.warehouse.tables", "pipeline.warehouse.load",

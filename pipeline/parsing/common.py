@@ -14,7 +14,7 @@ from pydicom.sr.coding import Code
 from .. import concepts as C
 from ..models import DeviceInfo, IssueKind, ParseIssue, StudyInfo
 from .content_tree import code_value_of, first, num_raw, text_of, uid_of
-from .units import PLAUSIBLE, Quantity, UnitError, convert
+from ..units import PLAUSIBLE, Quantity, UnitError, convert
 
 __all__ = [
     "Pseudonymiser",

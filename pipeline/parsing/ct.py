@@ -9,7 +9,7 @@ from ..models import Accumulated, CtEvent, IssueKind
 from .common import Measurer, code_label
 from .content_tree import (code_value_of, datetime_of, find, find_all, first, num_raw, text_of,
                            uid_of)
-from .units import Quantity, UnitError, convert
+from ..units import Quantity, UnitError, convert
 
 __all__ = ["parse_ct_accumulated", "parse_ct_events"]
 

@@ -9,7 +9,7 @@ from ..models import Accumulated, IssueKind, ProjectionEvent
 from .common import Measurer, code_label
 from .content_tree import (code_value_of, datetime_of, find, find_all, first, num_raw, text_of,
                            uid_of)
-from .units import Quantity
+from ..units import Quantity
 
 __all__ = ["parse_projection_accumulated", "parse_projection_events", "projection_modality"]
 

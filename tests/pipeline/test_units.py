@@ -6,7 +6,7 @@ Worked values: 0.0042 Gy.m2 = 42 Gy.cm2 (1 m2 = 1e4 cm2, exact); (0018,115E) 420
 
 import pytest
 
-from pipeline.parsing.units import Quantity, UnitError, convert
+from pipeline.units import Quantity, UnitError, convert
 
 
 @pytest.mark.parametrize("value, unit, quantity, expected", [
