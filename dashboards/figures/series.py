@@ -86,6 +86,10 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     # rooms side by side within a month (dodged), so their interquartile bars never overlap
     step = min(3.0, 22.0 / max(1, len(all_rooms)))
     dodge = {room: (i - (len(all_rooms) - 1) / 2.0) * step for i, room in enumerate(all_rooms)}
+    # drift marks are added to the layout at once: plotly's add_shape / add_annotation copy
+    # every earlier one (quadratic in the number of flags)
+    flag_shapes: list[go.layout.Shape] = []
+    flag_notes: list[go.layout.Annotation] = []
     for row, (quantity, phantom) in enumerate(panels, start=1):
         part = _panel_rows(frame, quantity, phantom)
         unit = part["unit"].iloc[0]
@@ -125,13 +129,15 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         ordered = flags.sort_values(["change_month", "room_label"]) if not flags.empty else flags
         for k, flag in enumerate(ordered.itertuples(index=False)):
             x = f"{flag.change_month}-01"
-            fig.add_shape(type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
-                          line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2})
+            flag_shapes.append(go.layout.Shape(
+                type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
+                line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2}))
             change = (float(flag.ratio_after_to_before) - 1.0) * 100.0
-            fig.add_annotation(x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
-                               text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
-                               showarrow=False, xanchor="left", yanchor="top", xshift=4,
-                               font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)")
+            flag_notes.append(go.layout.Annotation(
+                x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
+                text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
+                showarrow=False, xanchor="left", yanchor="top", xshift=4,
+                font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)"))
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
@@ -140,6 +146,9 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         fig.update_xaxes(title={"text": "Month of study (calendar month)"}, type="date",
                          tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
                          range=x_range, row=row, col=1)
+    if flag_shapes:
+        fig.update_layout(shapes=[*fig.layout.shapes, *flag_shapes],
+                          annotations=[*fig.layout.annotations, *flag_notes])
     return _layout(fig, title, height=40 + 290 * len(panels))
 
 

@@ -36,8 +36,11 @@ def trends(data: SiteData, site_colours: dict[str, str], drift: Table) -> Page:
                 ranked = sorted(rooms.index, key=lambda k: (k not in flagged, -int(rooms[k])))
                 keep = set(ranked[:MAX_TREND_ROOMS])
                 rows = rows[[k in keep for k in zip(rows["site_label"], rows["room_label"], strict=True)]]
+                if not flags.empty:   # a flag is drawn on its own room's series only
+                    flags = flags[[k in keep for k in zip(flags["site_label"], flags["room_label"], strict=True)]]
                 caption += (f" Showing {MAX_TREND_ROOMS} of {len(rooms)} rooms (drift-flagged first, then the "
-                            "most exams); trends-monthly-medians.csv has every room.")
+                            "most exams) and their drift flags; trends-monthly-medians.csv has every room, "
+                            "the drift-flag table every flag.")
             blocks.append(Plot(f"fig-trend-{slug(exam_type)}",
                                figures.build_trend(rows, flags, site_colours=site_colours,
                                                    title=str(rows["exam_label"].iloc[0])),
