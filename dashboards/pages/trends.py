@@ -93,9 +93,10 @@ def sites(data: SiteData, site_colours: dict[str, str]) -> Page:
                            "above the network's typical value by more than sampling noise explains; only "
                            "such points are counted. The reference level of each group, where one applies, "
                            "is its own black dash. Open marker: fewer exams than the audit minimum."
-                           + (f" Of {n_groups} room groups, the {len(part)} above a limit with the highest z "
-                              "are drawn one by one; the other "
-                              f"{n_groups - len(part)} are counted in grey squares (one per cell of the "
+                           + ((f" Of {n_groups} room groups, the {len(part)} above a limit with the highest z "
+                               "are drawn one by one; the other " if not part.empty else
+                               f" None of the {n_groups} room groups is above a limit; all ")
+                              + f"{n_groups - len(part)} are counted in grey squares (one per cell of the "
                               "plane, area by the number of groups; hover for the count and range); "
                               "sites-ranked.csv has every group." if not rest.empty else "")))
     if not blocks:

@@ -438,3 +438,7 @@ def test_sites_page_states_how_many_groups_each_funnel_draws(marts):
     layouts = dict(_plot_data(html))
     grey = [t for t in layouts[f"fig-funnel-{model.slug(q)}"] if t.get("name", "").startswith("Room groups not drawn")]
     assert len(grey) == 1 and grey[0]["customdata"][0][0] == len(part) - 2
+    none = pages.build_site(dataclasses.replace(
+        data, funnel_drawn=data.funnel_points.drop(index=part.index),
+        funnel_cells=cells.assign(n_groups=len(part))), ctx).pages["sites.html"]
+    assert f"None of the {len(part)} room groups is above a limit; all {len(part)} are counted" in none
