@@ -2,6 +2,7 @@
 
     .venv/bin/python bench/dashboard.py --warehouse kerma-demo/kerma.duckdb
     .venv/bin/python bench/dashboard.py --corpus-studies 300000 --work /tmp/kerma-bench   # ~1M events
+    .venv/bin/python bench/dashboard.py --warehouse bench/.cache/audit-1000000.duckdb --no-browser
 
 With --warehouse, an audited warehouse is used as it is (a copy is audited first when it has
 no audit tables, or with --audit FROM TO). With --corpus-studies N, a synthetic corpus of N
@@ -9,13 +10,17 @@ studies is generated, ingested and audited first (the real pipeline; slow for la
 3 irradiation events per study in the demo scenario). The site is written, then every page is
 opened in headless Chromium with the network off; the report gives, per page, the HTML weight,
 the weight with the shared plotly.min.js, the number of plots, the time to the load event and
-the time until every plot has drawn.
+the time until every plot has drawn. The floor of issue 14 (queries/bench/bench_bare_median.sql,
+a bare GROUP BY device median() over the raw events, best of 3) is timed on the same warehouse
+just before write_site, and the process's peak resident memory is printed after it; with
+--no-browser the pages are not opened (only their sizes are printed).
 """
 
 from __future__ import annotations
 
 import argparse
 import datetime as dt
+import resource
 import shutil
 import sys
 import tempfile
@@ -38,6 +43,25 @@ def _count_events(warehouse: Path) -> int:
 
     with connection(warehouse, read_only=True) as con:
         return int(con.execute(sql("bench_count_events")).fetchone()[0])
+
+
+def _floor_s(warehouse: Path) -> float:
+    """Seconds of the bare GROUP BY device median() over the raw events (best of 3)."""
+    import duckdb
+
+    from queries import sql
+
+    con = duckdb.connect(str(warehouse), read_only=True)
+    try:
+        con.execute("set threads to 2")  # as the warehouse connection does
+        times = []
+        for _ in range(3):
+            started = time.perf_counter()
+            con.execute(sql("bench_bare_median")).fetchall()
+            times.append(time.perf_counter() - started)
+    finally:
+        con.close()
+    return min(times)
 
 
 def _is_audited(warehouse: Path) -> bool:
@@ -73,6 +97,7 @@ def main(argv: list[str] | None = None) -> int:
                              "when the warehouse has no audit yet)")
     parser.add_argument("--work", type=Path, help="working folder (default: a temporary one)")
     parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--no-browser", action="store_true", help="only write the site and print sizes")
     args = parser.parse_args(argv)
 
     from pipeline.audit import run_audit
@@ -93,15 +118,23 @@ def main(argv: list[str] | None = None) -> int:
         print(f"audit {audit[0]}..{audit[1]} in {time.perf_counter() - started:.1f} s")
 
     n_events = _count_events(warehouse)
+    floor_s = _floor_s(warehouse)
     out = work / "site"
     started = time.perf_counter()
     write_site(warehouse, out, generated_at=dt.datetime(2000, 1, 1, tzinfo=dt.UTC))
     write_s = time.perf_counter() - started
+    peak_mib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     js = (out / "plotly.min.js").stat().st_size
     csv = sum(p.stat().st_size for p in out.glob("*.csv"))
     print(f"\nwarehouse {args.warehouse or warehouse}: {n_events:,} irradiation events")
-    print(f"write_site: {write_s:.1f} s; plotly.min.js {js / 1e6:.2f} MB (shared, loaded once per page); "
-          f"CSV files {csv / 1e3:.0f} kB")
+    print(f"floor (bare GROUP BY median): {floor_s:.3f} s; write_site: {write_s:.1f} s "
+          f"= {write_s / floor_s:.0f} x the floor (target <= 20); peak RSS {peak_mib:.0f} MiB")
+    print(f"plotly.min.js {js / 1e6:.2f} MB (shared, loaded once per page); CSV files {csv / 1e3:.0f} kB")
+    if args.no_browser:
+        for name, _, _ in PAGES:
+            print(f"{name:<24}{(out / name).stat().st_size / 2**20:>8.3f} MiB")
+        print(f"\nsite in {out}")
+        return 0
     print(f"\n{'page':<24}{'HTML kB':>9}{'+ JS MB':>9}{'plots':>7}{'load ms':>9}{'drawn ms':>10}  issues")
     with Chromium() as browser:
         for name, _, _ in PAGES:

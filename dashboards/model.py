@@ -213,6 +213,10 @@ class SiteData:
     skin_dose_maps: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_skin_dose_maps
     alert_events: pd.DataFrame = field(default_factory=pd.DataFrame)   # dash_alert_events.sql
     device_studies: pd.DataFrame = field(default_factory=pd.DataFrame)  # dash_device_studies.sql
+    # funnel groups drawn one by one (dash_funnel_drawn.sql) and cells of the others
+    # (dash_funnel_cells.sql); None: every group of funnel_points is drawn
+    funnel_drawn: pd.DataFrame | None = None
+    funnel_cells: pd.DataFrame | None = None
 
 
 @dataclass

@@ -24,6 +24,7 @@ from queries import sql
 
 from .model import PLOTLY_JS, Context, SiteData
 from .pages import build_site
+from .pages.trends import MAX_FUNNEL_POINTS
 
 __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
 
@@ -33,6 +34,11 @@ AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flag
                 "skin_dose", "skin_dose_map")
 _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
           "audit_observation", "reference_level", "key_epoch")
+# Views several SELECTs read (study_dose alone about ten times, and audit_observation reads all
+# three), computed once per site build into temporary tables that hide them (in dependency
+# order; queries/dashboards/dash_materialise_*.sql). At 1M events each recomputation of
+# study_dose was a scan of every raw table.
+_MATERIALISED = ("irradiation_event", "stg_exam_match", "study_dose")
 
 
 def _exam_types() -> pd.DataFrame:
@@ -82,11 +88,22 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
 def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | None = None
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
     """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
-    from pipeline.audit import AuditSettings
 
     def q(name: str, **params: object) -> pd.DataFrame:
         used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
         return con.execute(sql(name), used).df()
+
+    for name in _MATERIALISED:
+        con.execute(sql(f"dash_materialise_{name}"))
+    try:
+        return _read_site_data(con, q, adult_min_age)
+    finally:
+        con.execute(sql("dash_drop_materialised"))
+
+
+def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | None
+                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
+    from pipeline.audit import AuditSettings
 
     con.register("dash_exam_type", _exam_types())
     con.register("dash_concept", _concepts())
@@ -107,12 +124,15 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
     con.register("funnel_point", points)
+    drawn = q("dash_funnel_drawn", max_points=MAX_FUNNEL_POINTS)
+    con.register("funnel_drawn", drawn)
     data = SiteData(
         overview=q("dash_overview", **params), devices=devices,
         room_medians=q("dash_room_medians"), network=q("dash_network"),
         distribution=q("dash_distribution", **params), estimates=q("dash_estimates", **params),
         monthly=q("dash_monthly"), drift=q("dash_drift"),
         funnel_sigma=sigma, funnel_points=points, funnel_limits=q("dash_funnel_limits"),
+        funnel_drawn=drawn, funnel_cells=q("dash_funnel_cells"),
         site_summary=q("dash_site_summary"),
         alerts=q("dash_alerts"), alert_counts=q("dash_alert_counts"),
         unmapped=q("dash_unmapped", **params), source_status=q("dash_source_status"),
@@ -126,7 +146,7 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
         device_studies=q("dash_device_studies", **params),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
-                 "dash_period_file"):
+                 "funnel_drawn", "dash_period_file"):
         con.unregister(name)
     return data, label, first, last, q("dash_reference_sets")
 

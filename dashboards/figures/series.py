@@ -86,6 +86,10 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     # rooms side by side within a month (dodged), so their interquartile bars never overlap
     step = min(3.0, 22.0 / max(1, len(all_rooms)))
     dodge = {room: (i - (len(all_rooms) - 1) / 2.0) * step for i, room in enumerate(all_rooms)}
+    # drift marks are added to the layout at once: plotly's add_shape / add_annotation copy
+    # every earlier one (quadratic in the number of flags)
+    flag_shapes: list[go.layout.Shape] = []
+    flag_notes: list[go.layout.Annotation] = []
     for row, (quantity, phantom) in enumerate(panels, start=1):
         part = _panel_rows(frame, quantity, phantom)
         unit = part["unit"].iloc[0]
@@ -125,13 +129,15 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         ordered = flags.sort_values(["change_month", "room_label"]) if not flags.empty else flags
         for k, flag in enumerate(ordered.itertuples(index=False)):
             x = f"{flag.change_month}-01"
-            fig.add_shape(type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
-                          line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2})
+            flag_shapes.append(go.layout.Shape(
+                type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
+                line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2}))
             change = (float(flag.ratio_after_to_before) - 1.0) * 100.0
-            fig.add_annotation(x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
-                               text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
-                               showarrow=False, xanchor="left", yanchor="top", xshift=4,
-                               font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)")
+            flag_notes.append(go.layout.Annotation(
+                x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
+                text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
+                showarrow=False, xanchor="left", yanchor="top", xshift=4,
+                font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)"))
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
         fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
@@ -140,12 +146,32 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         fig.update_xaxes(title={"text": "Month of study (calendar month)"}, type="date",
                          tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
                          range=x_range, row=row, col=1)
+    if flag_shapes:
+        fig.update_layout(shapes=[*fig.layout.shapes, *flag_shapes],
+                          annotations=[*fig.layout.annotations, *flag_notes])
     return _layout(fig, title, height=40 + 290 * len(panels))
 
 
 # --- site comparison: funnel ----------------------------------------------------------------
+def _funnel_cells(cells: pd.DataFrame) -> go.Scatter:
+    """One grey square per cell of groups not drawn one by one; area ~ number of groups."""
+    biggest = max(int(v) for v in cells["n_groups"])
+    return go.Scatter(
+        name="Room groups not drawn one by one (square area: number of groups)", mode="markers",
+        x=[_num(v) for v in cells["n_mid"]], y=[_num(v) for v in cells["ratio_mid"]],
+        marker={"color": NETWORK_COLOUR, "symbol": "square", "opacity": 0.55,
+                "size": [round(4 + 10 * math.sqrt(int(k) / biggest), 1) for k in cells["n_groups"]]},
+        customdata=[[int(k), int(i), int(a), int(b), _fmt(lo), _fmt(hi)] for k, i, a, b, lo, hi in
+                    zip(cells["n_groups"], cells["n_insufficient"], cells["n_min"], cells["n_max"],
+                        cells["ratio_min"], cells["ratio_max"], strict=True)],
+        hovertemplate=("%{customdata[0]} room groups (%{customdata[1]} with too few exams)<br>n "
+                       "%{customdata[2]} to %{customdata[3]}, ratio %{customdata[4]} to "
+                       "%{customdata[5]} of the network typical value<extra></extra>"),
+    )
+
+
 def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Mapping[str, str],
-                 title: str) -> go.Figure:
+                 title: str, cells: pd.DataFrame | None = None) -> go.Figure:
     """Ratio of each room median to the network typical value against the number of exams.
 
     Expects rows of ``dash_funnel_points.sql`` for one quantity (site_label, room_label,
@@ -154,12 +180,23 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
     and of ``dash_funnel_limits.sql`` (n, upper_95, upper_998). Both axes are logarithmic; the
     line at ratio 1 is the network typical value (ICRP 135); each group's reference level, where
     one applies, is its own mark; groups above the 99.8 % limit are labelled.
+
+    `cells` (rows of ``dash_funnel_cells.sql``: n_mid, ratio_mid, n_groups, n_insufficient,
+    n_min, n_max, ratio_min, ratio_max) are the groups not drawn one by one (a quantity with
+    more groups than a page can carry), drawn as one grey square per cell, its area growing
+    with the number of groups in it.
     """
-    _require(points, ["site_label", "room_label", "exam_label", "population", "n",
-                      "ratio_to_typical", "reference_ratio_to_typical", "is_sample_adequate",
-                      "funnel_zone", "quantity", "unit", "median", "typical_value",
-                      "reference_value"], "build_funnel")
-    quantity, unit = str(points["quantity"].iloc[0]), points["unit"].iloc[0]
+    has_cells = cells is not None and not cells.empty
+    columns = ["site_label", "room_label", "exam_label", "population", "n", "ratio_to_typical",
+               "reference_ratio_to_typical", "is_sample_adequate", "funnel_zone", "quantity", "unit",
+               "median", "typical_value", "reference_value"]
+    if has_cells and points.empty:   # every group of the quantity is in a cell
+        _require(cells, ["quantity", "unit", "n_mid", "ratio_mid", "n_groups", "n_max"], "build_funnel")
+        points = pd.DataFrame(columns=columns)
+    else:
+        _require(points, columns, "build_funnel")
+    first = points if not points.empty else cells
+    quantity, unit = str(first["quantity"].iloc[0]), first["unit"].iloc[0]
     fig = go.Figure()
     if not limits.empty:
         lim = limits.sort_values("n")
@@ -173,7 +210,7 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
             ))
         x_max = max(n)
     else:
-        x_max = int(points["n"].max()) * 2
+        x_max = max(int(v) for v in [*points["n"], *(cells["n_max"] if has_cells else [])]) * 2
     fig.add_trace(go.Scatter(
         name="Network typical value (ratio 1)", mode="lines", x=[1, x_max], y=[1.0, 1.0],
         line={"color": NETWORK_COLOUR, "width": 2}, hoverinfo="skip",
@@ -189,6 +226,8 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
             hovertemplate="%{customdata[0]}: reference level %{customdata[1]} " + unit_label(unit)
                           + " = %{y:.2f} x typical<extra></extra>",
         ))
+    if has_cells:   # under the groups drawn one by one
+        fig.add_trace(_funnel_cells(cells))
     for site in sorted(points["site_label"].unique()):
         part = points[points["site_label"] == site]
         colour = _site_colour(site_colours, site)
@@ -209,7 +248,9 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
                            + "<br>median %{customdata[4]} / network typical %{customdata[5]} "
                            + unit_label(unit) + " = %{y:.2f}<br>n %{x}: %{customdata[3]}<extra></extra>"),
         ))
-    ratios = [v for v in [*points["ratio_to_typical"], *points["reference_ratio_to_typical"]]
+    ratios = [v for v in [*points["ratio_to_typical"], *points["reference_ratio_to_typical"],
+                          *(cells["ratio_min"] if has_cells else []),
+                          *(cells["ratio_max"] if has_cells else [])]
               if not _missing(v) and v > 0]
     lo = min([*ratios, 0.5])
     hi = max([*ratios, *([v for v in limits["upper_998"]] if not limits.empty else []), 2.0])

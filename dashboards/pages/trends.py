@@ -9,9 +9,12 @@ from ..model import Block, Column, DataLink, Note, Page, Plot, Section, SiteData
 from ..theme import quantity_name, unit_label
 from .common import empty, family_sections, room_flags
 
-__all__ = ["MAX_TREND_ROOMS", "sites", "trends"]
+__all__ = ["MAX_FUNNEL_POINTS", "MAX_TREND_ROOMS", "sites", "trends"]
 
 MAX_TREND_ROOMS = 12    # rooms per trend plot; the CSV has every room
+# groups drawn one by one per funnel plot (dash_funnel_drawn.sql); beyond it the groups within
+# the limits are counted in cells (dash_funnel_cells.sql); sites-ranked.csv has every group
+MAX_FUNNEL_POINTS = 200
 
 
 def trends(data: SiteData, site_colours: dict[str, str], drift: Table) -> Page:
@@ -33,8 +36,11 @@ def trends(data: SiteData, site_colours: dict[str, str], drift: Table) -> Page:
                 ranked = sorted(rooms.index, key=lambda k: (k not in flagged, -int(rooms[k])))
                 keep = set(ranked[:MAX_TREND_ROOMS])
                 rows = rows[[k in keep for k in zip(rows["site_label"], rows["room_label"], strict=True)]]
+                if not flags.empty:   # a flag is drawn on its own room's series only
+                    flags = flags[[k in keep for k in zip(flags["site_label"], flags["room_label"], strict=True)]]
                 caption += (f" Showing {MAX_TREND_ROOMS} of {len(rooms)} rooms (drift-flagged first, then the "
-                            "most exams); trends-monthly-medians.csv has every room.")
+                            "most exams) and their drift flags; trends-monthly-medians.csv has every room, "
+                            "the drift-flag table every flag.")
             blocks.append(Plot(f"fig-trend-{slug(exam_type)}",
                                figures.build_trend(rows, flags, site_colours=site_colours,
                                                    title=str(rows["exam_label"].iloc[0])),
@@ -64,24 +70,35 @@ def sites(data: SiteData, site_colours: dict[str, str]) -> Page:
     points = data.funnel_points
     blocks: list[Block] = []
     sigma = data.funnel_sigma
+    drawn = points if data.funnel_drawn is None else data.funnel_drawn
+    cells = data.funnel_cells if data.funnel_cells is not None else pd.DataFrame(columns=["quantity"])
     for q in sorted(points["quantity"].unique()) if not points.empty else []:
-        part = points[points["quantity"] == q]
+        part = drawn[drawn["quantity"] == q]
+        rest = cells[cells["quantity"] == q]
+        n_groups = int((points["quantity"] == q).sum())
         lim = data.funnel_limits[data.funnel_limits["quantity"] == q] if not data.funnel_limits.empty \
             else data.funnel_limits
         s = sigma[sigma["quantity"] == q]
+        unit = points.loc[points["quantity"] == q, "unit"].iloc[0]
         s_text = (f"σ = {float(s['sigma_log'].iloc[0]):.2f} (log scale) pooled from "
                   f"{int(s['n_groups_pooled'].iloc[0])} room groups"
                   if not s.empty and not is_missing(s["sigma_log"].iloc[0]) else "spread not estimable")
         blocks.append(Plot(f"fig-funnel-{slug(q)}",
-                           figures.build_funnel(part, lim, site_colours=site_colours,
-                                                title=f"{quantity_name(q)} ({unit_label(part['unit'].iloc[0])}): "
+                           figures.build_funnel(part, lim, site_colours=site_colours, cells=rest,
+                                                title=f"{quantity_name(q)} ({unit_label(unit)}): "
                                                       "ratio to the network typical value"),
                            "Each point is one room and exam type. Upper control limits above the network "
                            "typical value (ratio 1, the median of the room medians, ICRP 135) at 95 % and "
                            f"99.8 %, for log-normal doses with {s_text}. A point above the 99.8 % limit is "
                            "above the network's typical value by more than sampling noise explains; only "
                            "such points are counted. The reference level of each group, where one applies, "
-                           "is its own black dash. Open marker: fewer exams than the audit minimum."))
+                           "is its own black dash. Open marker: fewer exams than the audit minimum."
+                           + ((f" Of {n_groups} room groups, the {len(part)} above a limit with the highest z "
+                               "are drawn one by one; the other " if not part.empty else
+                               f" None of the {n_groups} room groups is above a limit; all ")
+                              + f"{n_groups - len(part)} are counted in grey squares (one per cell of the "
+                              "plane, area by the number of groups; hover for the count and range); "
+                              "sites-ranked.csv has every group." if not rest.empty else "")))
     if not blocks:
         blocks.append(empty("No audited group has a network typical value (too few adequate samples), so "
                             "there is no funnel to draw."))

@@ -277,3 +277,24 @@ def test_fluoroscopy_time_axes_read_min_s():
     axis = figures.build_reference_comparison(rows, site_colours=SITES, title="t").layout.xaxis
     assert axis.title.text.endswith("Fluoroscopy time (min:s)")
     assert list(axis.ticktext[:4]) == ["0:00", "2:00", "4:00", "6:00"] and axis.tickvals[1] == 120.0
+
+
+def test_funnel_draws_cells_of_groups_not_drawn_one_by_one_under_the_points():
+    points, limits = _funnel()
+    cells = pd.DataFrame({"quantity": ["dlp", "dlp"], "unit": ["mGy.cm", "mGy.cm"],
+                          "n_groups": [40, 10], "n_insufficient": [3, 0], "n_min": [20, 50],
+                          "n_max": [25, 60], "ratio_min": [0.3, 1.02], "ratio_max": [0.31, 1.04],
+                          "n_mid": [22.4, 56.2], "ratio_mid": [0.305, 1.03]})
+    fig = figures.build_funnel(points, limits, site_colours=SITES, title="DLP", cells=cells)
+    names = [t.name for t in fig.data]
+    (grey,) = [t for t in fig.data if t.name.startswith("Room groups not drawn one by one")]
+    assert list(grey.x) == [22.4, 56.2] and list(grey.y) == [0.305, 1.03]
+    assert grey.marker.size[0] > grey.marker.size[1]          # 40 groups: the larger square
+    assert [c[0] for c in grey.customdata] == [40, 10]
+    # drawn under the sites' points, and the ratio axis reaches the lowest cell (log10 0.3)
+    assert names.index(grey.name) < names.index("North Site")
+    assert fig.layout.yaxis.range[0] < -0.52
+    # a quantity whose groups are all in cells still gets its plot
+    alone = figures.build_funnel(points.head(0), limits, site_colours=SITES, title="DLP", cells=cells)
+    assert [t.name for t in alone.data if t.name in SITES] == []
+    assert "DLP" in alone.layout.yaxis.title.text

@@ -380,3 +380,65 @@ def test_single_exam_groups_are_points_on_the_distribution_page(site):
     points = [t for t in traces if t.get("type") == "scatter" and t.get("name", "").endswith("a single exam")]
     assert points and all(t["mode"] == "markers" for t in points)
     assert sum(len(t["y"]) for t in points) == int((dist["n"] == 1).sum())
+
+
+def test_funnel_draws_the_groups_above_a_limit_and_counts_every_other_group_in_a_cell(marts):
+    """dash_funnel_drawn.sql / dash_funnel_cells.sql with a cap below the corpus's group count:
+    no group is lost (drawn + counted = all), the drawn ones are above a limit, highest z first."""
+    import duckdb
+    from queries import sql
+
+    points = marts[0].funnel_points
+    is_above = points["funnel_zone"].isin(["above 99.8 % limit", "above 95 % limit"])
+    q = points[is_above]["quantity"].value_counts().index[0]   # most groups above a limit
+    part = points[points["quantity"] == q]
+    above = part[part["funnel_zone"].isin(["above 99.8 % limit", "above 95 % limit"])]
+    cap = max(1, len(above) - 1)      # fewer than the groups above a limit, when there are two
+    assert len(above) >= 1 and len(part) > cap
+    con = duckdb.connect()
+    try:
+        con.register("funnel_point", points)
+        drawn = con.execute(sql("dash_funnel_drawn"), {"max_points": cap}).df()
+        con.register("funnel_drawn", drawn)
+        cells = con.execute(sql("dash_funnel_cells")).df()
+        everything = con.execute(sql("dash_funnel_drawn"), {"max_points": len(points)}).df()
+    finally:
+        con.close()
+    mine = drawn[drawn["quantity"] == q]
+    assert len(mine) == min(cap, len(above))
+    assert set(mine["funnel_zone"]) <= {"above 99.8 % limit", "above 95 % limit"}
+    assert mine["z"].min() >= above["z"].sort_values(ascending=False).iloc[len(mine) - 1]
+    for quantity, group in points.groupby("quantity"):
+        n_drawn = int((drawn["quantity"] == quantity).sum())
+        n_cells = int(cells.loc[cells["quantity"] == quantity, "n_groups"].sum())
+        assert n_drawn + n_cells == len(group), quantity
+    assert (cells["n_min"] >= cells["n_mid"] / 10 ** 0.05 - 1e-9).all()       # inside the cell
+    assert (cells["ratio_max"] <= cells["ratio_mid"] * 10 ** 0.01 + 1e-9).all()
+    # with a cap above the count, every group is drawn in the order of the ranked table
+    assert list(everything["ratio_to_typical"]) == list(points["ratio_to_typical"])
+
+
+def test_sites_page_states_how_many_groups_each_funnel_draws(marts):
+    import dataclasses
+
+    data, label, first, last, sets = marts
+    ctx = model.Context(period=label, date_from=first, date_to=last, reference_sets=sets,
+                        generated_at=GENERATED_AT)
+    q = data.funnel_points["quantity"].value_counts().index[0]
+    part = data.funnel_points[data.funnel_points["quantity"] == q]
+    drawn = data.funnel_points.drop(index=part.index[2:])     # q: two groups drawn, the rest in a cell
+    cells = pd.DataFrame({"quantity": [q], "unit": [part["unit"].iloc[0]], "n_groups": [len(part) - 2],
+                          "n_insufficient": [0], "n_min": [1], "n_max": [9], "ratio_min": [0.9],
+                          "ratio_max": [1.1], "n_mid": [3.0], "ratio_mid": [1.0]})
+    built = pages.build_site(dataclasses.replace(data, funnel_drawn=drawn, funnel_cells=cells), ctx)
+    html = built.pages["sites.html"]
+    assert f"Of {len(part)} room groups, the 2 above a limit with the highest z are drawn one by one; " \
+           f"the other {len(part) - 2} are counted in grey squares" in html
+    assert len(built.tables["sites-ranked"]) == len(data.funnel_points)     # the CSV keeps every group
+    layouts = dict(_plot_data(html))
+    grey = [t for t in layouts[f"fig-funnel-{model.slug(q)}"] if t.get("name", "").startswith("Room groups not drawn")]
+    assert len(grey) == 1 and grey[0]["customdata"][0][0] == len(part) - 2
+    none = pages.build_site(dataclasses.replace(
+        data, funnel_drawn=data.funnel_points.drop(index=part.index),
+        funnel_cells=cells.assign(n_groups=len(part))), ctx).pages["sites.html"]
+    assert f"None of the {len(part)} room groups is above a limit; all {len(part)} are counted" in none
