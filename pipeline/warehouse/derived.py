@@ -223,13 +223,24 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
     return n
 
 
+def _columns(con, relation: str) -> list[tuple[str, str]]:
+    return [(r[0], r[1]) for r in con.execute(f"describe {relation}").fetchall()]
+
+
 def _full(con) -> int:
-    """Rebuild every derived table whole (its columns from the current definitions)."""
+    """Rebuild every derived table whole. A table whose columns still follow its definition is
+    emptied and refilled; one whose definition changed is replaced, and the views over it are
+    created again (they bind to its new columns)."""
+    replaced = False
     con.execute("begin transaction")
     try:
-        for table, calc in DERIVED_TABLES:
-            con.execute(sql("refresh_replace").format(table=table, calc=calc))
-        con.execute(sql("refresh_replace").format(table="derived_exam_match", calc="calc_exam_match"))
+        for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
+            if _columns(con, table) == _columns(con, calc):
+                con.execute(f"delete from {table}")
+                con.execute(sql("refresh_insert").format(table=table, calc=calc))
+            else:
+                con.execute(sql("refresh_replace").format(table=table, calc=calc))
+                replaced = True
         for table in _SKIN_TABLES:
             con.execute(f"delete from {table}")
         con.execute("create or replace temp table refresh_scope (study_key varchar)")
@@ -240,9 +251,9 @@ def _full(con) -> int:
         raise
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
-    apply_all(con)   # views over the replaced tables bind to their current columns
-    ((n,),) = con.execute("select count(*) from derived_study_total").fetchall()
-    return n
+    if replaced:
+        apply_all(con)   # views over the replaced tables bind to their current columns
+    return con.execute("select count(*) from derived_study_total").fetchall()[0][0]
 
 
 def _skin(con, *, all_studies: bool) -> None:
