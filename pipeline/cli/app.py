@@ -15,6 +15,10 @@ __all__ = ["app", "console", "fail", "parse_day", "rows_table"]
 # Prefect's local server gets 20 s to start by default; on a busy shared machine (a test run
 # beside other work) that is not always enough, and a run would fail before doing anything.
 os.environ.setdefault("PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS", "120")
+# An offline tool sends no usage telemetry; Prefect's local server otherwise runs a heartbeat
+# service whose writes could collide with the flow's on its SQLite database ("database is
+# locked" tracebacks in the demo's output).
+os.environ.setdefault("PREFECT_SERVER_ANALYTICS_ENABLED", "false")
 
 app = typer.Typer(
     name="kerma",
