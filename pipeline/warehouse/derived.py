@@ -23,9 +23,10 @@ model) the tables match; a refresh whose state and digest match does nothing.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as dt
 import hashlib
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from functools import cache
 from pathlib import Path
 
@@ -110,6 +111,18 @@ def _stored(con) -> tuple[str, str, str] | None:
     return tuple(rows[0]) if rows else None
 
 
+@contextlib.contextmanager
+def _transaction(con) -> Iterator[None]:
+    """One transaction: committed when the block ends, rolled back if it raises."""
+    con.execute("begin transaction")
+    try:
+        yield
+        con.execute("commit")
+    except BaseException:
+        con.execute("rollback")
+        raise
+
+
 def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | None = None, *,
                     since: str | None = None) -> RefreshResult:
     """Bring the derived tables up to date with the raw tables and exam rules (module docstring).
@@ -147,25 +160,24 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
         n, mode = _incremental(con, keys, rules_changed=stored[2] != now[2]), "incremental"
     else:
         n, mode = _full(con), "full"
-    con.execute("begin transaction")
-    con.execute(sql("delete_derived_state"))
-    con.execute(sql("insert_derived_state"), {
-        "raw_state": now[0], "definitions": now[1], "rules": now[2],
-        "refreshed_at": dt.datetime.now(), "n_studies": n, "mode": mode})
-    con.execute("commit")
+    with _transaction(con):
+        con.execute(sql("delete_derived_state"))
+        con.execute(sql("insert_derived_state"), {
+            "raw_state": now[0], "definitions": now[1], "rules": now[2],
+            "refreshed_at": dt.datetime.now(), "n_studies": n, "mode": mode})
     return RefreshResult(mode, n, time.perf_counter() - started)
+
+
+def _refill_matches(con) -> None:
+    """Every exam match recomputed from the kept exam texts and the rules in force."""
+    con.execute("delete from derived_exam_match")
+    con.execute(sql("refresh_insert").format(table="derived_exam_match", calc="calc_exam_match"))
 
 
 def _matches_whole(con) -> int:
     """Recompute derived_exam_match whole (the exam rules changed)."""
-    con.execute("begin transaction")
-    try:
-        con.execute("delete from derived_exam_match")
-        con.execute(sql("refresh_insert").format(table="derived_exam_match", calc="calc_exam_match"))
-        con.execute("commit")
-    except BaseException:
-        con.execute("rollback")
-        raise
+    with _transaction(con):
+        _refill_matches(con)
     return con.execute("select count(distinct study_key) from derived_exam_match").fetchall()[0][0]
 
 
@@ -188,36 +200,30 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
     con.execute(sql("refresh_scope_expand"))
     ((n,),) = con.execute("select count(*) from refresh_scope").fetchall()
     catalog = _catalog(con)
-    con.execute("begin transaction")
     try:
-        for table in _SCOPED_RAW:
-            con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
-        try:
-            for table, calc in DERIVED_TABLES:
-                con.execute(sql("refresh_delete").format(table=table))
-                con.execute(sql("refresh_insert").format(table=table, calc=calc))
-        finally:
+        with _transaction(con):
             for table in _SCOPED_RAW:
-                con.execute(f"drop view if exists temp.main.{table}")
-        if rules_changed:
-            con.execute("delete from derived_exam_match")
-            con.execute(sql("refresh_insert").format(table="derived_exam_match",
-                                                     calc="calc_exam_match"))
-        else:   # the scope's exam texts only, through a scoped view of derived_exam_text
-            con.execute(sql("refresh_shadow").format(table="derived_exam_text", catalog=catalog))
+                con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
             try:
-                con.execute(sql("refresh_delete").format(table="derived_exam_match"))
-                con.execute(sql("refresh_insert").format(table="derived_exam_match",
-                                                         calc="calc_exam_match"))
+                for table, calc in DERIVED_TABLES:
+                    con.execute(sql("refresh_delete").format(table=table))
+                    con.execute(sql("refresh_insert").format(table=table, calc=calc))
             finally:
-                con.execute("drop view if exists temp.main.derived_exam_text")
-        for table in _SKIN_TABLES:
-            con.execute(sql("refresh_delete").format(table=table))
-        _skin(con, all_studies=False)
-        con.execute("commit")
-    except BaseException:
-        con.execute("rollback")
-        raise
+                for table in _SCOPED_RAW:
+                    con.execute(f"drop view if exists temp.main.{table}")
+            if rules_changed:
+                _refill_matches(con)
+            else:   # the scope's exam texts only, through a scoped view of derived_exam_text
+                con.execute(sql("refresh_shadow").format(table="derived_exam_text", catalog=catalog))
+                try:
+                    con.execute(sql("refresh_delete").format(table="derived_exam_match"))
+                    con.execute(sql("refresh_insert").format(table="derived_exam_match",
+                                                             calc="calc_exam_match"))
+                finally:
+                    con.execute("drop view if exists temp.main.derived_exam_text")
+            for table in _SKIN_TABLES:
+                con.execute(sql("refresh_delete").format(table=table))
+            _skin(con, all_studies=False)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
     return n
@@ -232,23 +238,19 @@ def _full(con) -> int:
     emptied and refilled; one whose definition changed is replaced, and the views over it are
     created again (they bind to its new columns)."""
     replaced = False
-    con.execute("begin transaction")
     try:
-        for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
-            if _columns(con, table) == _columns(con, calc):
+        with _transaction(con):
+            for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
+                if _columns(con, table) == _columns(con, calc):
+                    con.execute(f"delete from {table}")
+                    con.execute(sql("refresh_insert").format(table=table, calc=calc))
+                else:
+                    con.execute(sql("refresh_replace").format(table=table, calc=calc))
+                    replaced = True
+            for table in _SKIN_TABLES:
                 con.execute(f"delete from {table}")
-                con.execute(sql("refresh_insert").format(table=table, calc=calc))
-            else:
-                con.execute(sql("refresh_replace").format(table=table, calc=calc))
-                replaced = True
-        for table in _SKIN_TABLES:
-            con.execute(f"delete from {table}")
-        con.execute("create or replace temp table refresh_scope (study_key varchar)")
-        _skin(con, all_studies=True)
-        con.execute("commit")
-    except BaseException:
-        con.execute("rollback")
-        raise
+            con.execute("create or replace temp table refresh_scope (study_key varchar)")
+            _skin(con, all_studies=True)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
     if replaced:
