@@ -373,8 +373,8 @@ def _drift_flags(con, after: dt.date, settings: AuditSettings):
     candidates in DuckDB; never the raw values in Python."""
     from .metrics.drift import best_change_points, drift_flags
 
-    con.execute(sql("create_drift_observation"),
-                {"date_to": after, "adult_min_age": settings.adult_min_age_years})
+    _run_statements(con, sql("create_drift_observation"),
+                    {"date_to": after, "adult_min_age": settings.adult_min_age_years})
     candidates = con.execute(sql("drift_candidates"), {"min_n_side": settings.drift_min_n_side}).df()
     best = best_change_points(candidates)
     chosen = best[best["p_value_bonferroni"] < settings.drift_alpha]

@@ -5,35 +5,30 @@
 -- scipy.stats.mannwhitneyu, which pipeline.metrics.drift_tests follows).
 with
 per_month as (
-    select device_key, site, exam_type, quantity, unit, period,
-           count(*) as n_month, sum(rank2) as rank2_month
+    select series_id, period, count(*) as n_month, sum(rank2) as rank2_month
     from drift_observation
     group by all
 ),
 ties as (
-    select device_key, site, exam_type, quantity, unit, sum(t * t * t - t) as tie_term
-    from (select device_key, site, exam_type, quantity, unit, value, count(*) as t
-          from drift_observation group by all)
+    select series_id, sum(t * t * t - t) as tie_term
+    from (select series_id, value, count(*) as t from drift_observation group by all)
     group by all
 ),
 boundaries as (
     select *,
            sum(n_month) over w as n_after,
            sum(rank2_month) over w as rank2_after,
-           sum(n_month) over (partition by device_key, site, exam_type, quantity, unit) as n_series,
-           row_number() over (partition by device_key, site, exam_type, quantity, unit
-                              order by period) as month_index
+           sum(n_month) over (partition by series_id) as n_series,
+           row_number() over (partition by series_id order by period) as month_index
     from per_month
-    window w as (partition by device_key, site, exam_type, quantity, unit order by period desc
+    window w as (partition by series_id order by period desc
                  rows between unbounded preceding and current row)
 )
-select b.device_key, b.site, b.exam_type, b.quantity, b.unit, b.period as change_month,
+select s.device_key, s.site, s.exam_type, s.quantity, s.unit, b.period as change_month,
        b.n_series - b.n_after as n_before, b.n_after, b.rank2_after, b.n_series, t.tie_term
 from boundaries as b
-join ties as t
-  on t.device_key is not distinct from b.device_key and t.site is not distinct from b.site
- and t.exam_type is not distinct from b.exam_type and t.quantity is not distinct from b.quantity
- and t.unit is not distinct from b.unit
+join ties as t using (series_id)
+join drift_series as s using (series_id)
 where b.month_index > 1
   and b.n_series - b.n_after >= $min_n_side and b.n_after >= $min_n_side
-order by b.device_key, b.site, b.exam_type, b.quantity, b.unit, b.period
+order by s.device_key, s.site, s.exam_type, s.quantity, s.unit, b.period
