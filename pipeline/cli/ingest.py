@@ -39,24 +39,29 @@ def run_ingest(paths: list[Path], warehouse: Path, key_file: Path | None, worker
 
     from ..config import load_settings
     from ..errors import ConfigError, WarehouseError
+    from ..exams import load_exam_rules, rule_rows
     from ..ingest import ingest
     from ..pseudonym import load_key
 
     try:
         key = load_key(key_file)
         settings = load_settings(config)
+        # the exam rules the audit will use (kerma.toml's, then the defaults): the matches the
+        # ingest keeps (derived_exam_match) are then the audit's, not recomputed by it
+        rules = rule_rows(load_exam_rules(settings.source))
     except ConfigError as exc:
         fail(str(exc))
     try:
         if not show_progress:
             return ingest(paths, warehouse, key, workers=workers, sites=settings.sites,
-                          new_key_epoch=new_key_epoch)
+                          new_key_epoch=new_key_epoch, exam_rules=rules)
         with Progress("[progress.description]{task.description}", BarColumn(),
                       MofNCompleteColumn(), TimeElapsedColumn(), console=console,
                       transient=True) as bar:
             task = bar.add_task("ingesting", total=None)
             return ingest(paths, warehouse, key, workers=workers, sites=settings.sites,
-                          progress=lambda n: bar.advance(task, n), new_key_epoch=new_key_epoch)
+                          progress=lambda n: bar.advance(task, n), new_key_epoch=new_key_epoch,
+                          exam_rules=rules)
     except (ConfigError, WarehouseError) as exc:   # KeyMismatchError is a ConfigError
         fail(str(exc))
 

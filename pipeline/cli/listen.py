@@ -44,6 +44,7 @@ def listen(
     """Receive dose reports and images (C-STORE, C-ECHO) into --inbox until stopped (Ctrl-C, SIGTERM)."""
     from ..config import load_settings
     from ..errors import ConfigError, WarehouseError
+    from ..exams import load_exam_rules, rule_rows
     from ..net.drain import drain_inbox
     from ..net.scp import make_storage_ae, start_storage_scp
     from ..net.tls import server_context
@@ -59,7 +60,10 @@ def listen(
         ae = make_storage_ae(ae_title, allow=allow)
         context = server_context(tls_cert, tls_key, tls_ca) if tls_cert else None
         key = load_key(key_file) if warehouse is not None else None
-        sites = load_settings(config).sites if warehouse is not None else {}
+        settings = load_settings(config) if warehouse is not None else None
+        sites = settings.sites if settings else {}
+        # the audit's exam rules (kerma.toml's, then the defaults) for the matches ingest keeps
+        rules = rule_rows(load_exam_rules(settings.source)) if settings else None
         if warehouse is not None and warehouse.exists():
             _check_key(warehouse, key)   # refuse before accepting anything, not at the first drain
     except (ValueError, ConfigError, WarehouseError) as exc:
@@ -83,7 +87,7 @@ def listen(
             if warehouse is None:
                 continue
             try:
-                drain_inbox(inbox, warehouse, archive, key, sites=sites)
+                drain_inbox(inbox, warehouse, archive, key, sites=sites, exam_rules=rules)
             except WarehouseError as exc:
                 log.warning("drain skipped, tried again in %g s: %s", ingest_every, exc)
             except ConfigError as exc:   # e.g. the warehouse now holds another key's epoch

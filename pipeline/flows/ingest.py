@@ -14,6 +14,7 @@ from prefect import flow, task
 from prefect.cache_policies import NO_CACHE
 
 from ..config import load_settings
+from ..exams import load_exam_rules, rule_rows
 from ..ingest import FileOutcome, IngestSummary, ingest, process_file
 from ..pseudonym import load_key, make_pseudonymiser
 from .record import recorded_run
@@ -61,11 +62,11 @@ def _submit_parser(key: bytes):
 @task(cache_policy=NO_CACHE)
 def load_inputs(paths: list[Path], warehouse: Path, key: bytes, workers: int,
                 sites: dict[str, str], on_task_runner: bool,
-                new_key_epoch: bool = False) -> IngestSummary:
+                new_key_epoch: bool = False, exam_rules: list[dict] | None = None) -> IngestSummary:
     """Run the ingest (the one warehouse writer); parsing in local processes or on the runner."""
     parse = _submit_parser(key) if on_task_runner else None
     return ingest(paths, warehouse, key, workers=workers, sites=sites, parse=parse,
-                  new_key_epoch=new_key_epoch)
+                  new_key_epoch=new_key_epoch, exam_rules=exam_rules)
 
 
 @flow(name="ingest")
@@ -95,8 +96,10 @@ def ingest_flow(inputs: list[Path], warehouse: Path, key_file: Path | None = Non
     settings = load_settings(config)
     with recorded_run(warehouse, "ingest", None, create=True) as end:
         paths = check_inputs(inputs)
+        # the exam rules the audit will use (kerma.toml's, then the defaults), so the matches the
+        # ingest keeps (derived_exam_match) are the audit's and it need not recompute them
         summary = load_inputs(paths, warehouse, key, workers, settings.sites, parse_on_task_runner,
-                              new_key_epoch)
+                              new_key_epoch, rule_rows(load_exam_rules(settings.source)))
         end.ingest_run_ids = [summary.run_id]
         end.n_files_loaded = summary.by_status["loaded"]
         end.n_files_quarantined = summary.by_status["quarantined"]

@@ -1,5 +1,7 @@
 """Exam-type rules: normalisation, precedence, user rules first, unmapped listing."""
 
+import datetime as dt
+
 import pytest
 from typer.testing import CliRunner
 
@@ -74,3 +76,45 @@ def test_bad_indication_rule_is_refused(tmp_path):
     with pytest.raises(ConfigError, match="needs an `indication`"):
         load_indication_rules(config)
     assert [r.indication for r in load_indication_rules()][:1] == ["acute stroke"]
+
+
+def test_ingest_keeps_the_matches_of_the_rules_the_audit_uses(tmp_path, monkeypatch):
+    """`kerma ingest --config` matches with kerma.toml's rules (then the defaults), as the audit
+    does: the user rule maps the odd radiograph at ingest, and an audit with the same config finds
+    the kept matches current (derived_state still records the ingest's refresh, not 'rules')."""
+    import duckdb
+
+    from pipeline.audit import run_audit
+
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    _, ds = demo_dataset("ovh-dx1", exam="dx_chest_pa")
+    ds.StudyDescription = "XR Thoracic Inlet Special"
+    for item in ds.ContentSequence:
+        for child in item.get("ContentSequence", []):
+            if child.ValueType == "TEXT" and child.ConceptNameCodeSequence[0].CodeValue == "125203":
+                child.TextValue = "Inlet view"
+    (inbox / "odd.dcm").write_bytes(encode(ds))
+    config = tmp_path / "kerma.toml"
+    config.write_text('[[exam_rule]]\nexam = "dx_chest_pa"\nmodality = ["DX", "CR"]\n'
+                      'field = "acquisition_protocol"\nany = ["inlet view"]\n')
+    db = tmp_path / "w.duckdb"
+    monkeypatch.setenv("KERMA_PSEUDONYM_KEY", KEY.decode())
+    result = CliRunner().invoke(app, ["ingest", str(inbox), "--warehouse", str(db),
+                                      "--config", str(config)])
+    assert result.exit_code == 0, result.output
+
+    def state():
+        con = duckdb.connect(str(db), read_only=True)
+        try:
+            return (con.execute("select mode, refreshed_at from derived_state").fetchall(),
+                    con.execute("select exam_type from study_dose").fetchall())
+        finally:
+            con.close()
+
+    after_ingest, exams = state()
+    assert exams == [("dx_chest_pa",)]
+    assert after_ingest[0][0] != "rules"
+    day = dt.datetime.strptime(ds.StudyDate, "%Y%m%d").date()
+    run_audit(db, date_from=day, date_to=day, config=config)
+    assert state() == (after_ingest, exams)
