@@ -1,0 +1,154 @@
+"""Does ingest memory stay flat as the number of studies grows? (on demand; never a test)
+
+    .venv/bin/python bench/ingest_scale.py --studies 100000
+
+A real 1000-study synthetic corpus (bench/ingest.py's, seed 7) is replicated on disk to N
+studies: copy k of each file has every DICOM UID (2.25 root) rewritten with the same length
+(its first four digits shifted by k), so each copy is a new study with new reports, events and
+devices, the files otherwise byte for byte the generator's (the pydicom decoding and parsing
+work per file is the generator's too). That corpus is then ingested with 2 workers into a fresh
+warehouse in a child process; the resident memory of that process and its workers (from /proc)
+is sampled every 2 s and printed as studies go in, so one run shows whether memory grows with N.
+Ends with:
+
+    ingest N studies: X files in T s (F files/s), peak RSS Z MiB, at 10 % R1 MiB, at 100 % R2 MiB
+
+(the peak over the first 10 % of the run's time, and over all of it: flat memory means R1 close
+to R2; issue 14's target is < 1 GiB at 100k studies)
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import shutil
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+CACHE = ROOT / "bench" / ".cache"
+KEY = b"bench-key-0123456789abcdef"
+BASE_STUDIES = 1000
+_UID = re.compile(rb"2\.25\.(\d{4})(\d+)")
+
+
+def base_corpus() -> Path:
+    from synthetic_studies.write import write_corpus
+
+    corpus = CACHE / "corpus-n1000-s7-m3"
+    if not (corpus / ".complete").exists():
+        shutil.rmtree(corpus, ignore_errors=True)
+        write_corpus(corpus, seed=7, months=3, n_studies=BASE_STUDIES, workers=2)
+        (corpus / ".complete").write_text("{}")
+    return corpus
+
+
+def shifted(data: bytes, k: int) -> bytes:
+    """Every 2.25 UID with its first four digits shifted by k (mod 9000, kept in 1000-9999):
+    the same length, a different UID for each k < 9000 (7919 is prime to 9000)."""
+    if k == 0:
+        return data
+    return _UID.sub(lambda m: b"2.25." + str((int(m.group(1)) - 1000 + 7919 * k) % 9000 + 1000)
+                    .encode() + m.group(2), data)
+
+
+def replicated(n_studies: int) -> Path:
+    copies = -(-n_studies // BASE_STUDIES)
+    out = CACHE / f"corpus-scale-{copies}x1000"
+    if (out / ".complete").exists():
+        return out
+    base = base_corpus()
+    files = sorted(p for p in base.rglob("*") if p.is_file() and p.suffix != ".parquet"
+                   and p.name != ".complete")
+    shutil.rmtree(out, ignore_errors=True)
+    started = time.perf_counter()
+    for k in range(copies):
+        for p in files:
+            target = out / f"copy{k:03d}" / p.relative_to(base)
+            target.parent.mkdir(parents=True, exist_ok=True)
+            target.write_bytes(shifted(p.read_bytes(), k))
+    (out / ".complete").write_text(json.dumps({"copies": copies}))
+    print(f"   replicated {len(files)} files x {copies} in {time.perf_counter() - started:.0f} s",
+          flush=True)
+    return out
+
+
+def _rss_mib(pid: int) -> float:
+    """Resident memory of `pid` and its descendants (MiB), from /proc."""
+    total, stack = 0, [pid]
+    while stack:
+        p = stack.pop()
+        try:
+            with open(f"/proc/{p}/status") as f:
+                total += next(int(l.split()[1]) for l in f if l.startswith("VmRSS:"))
+            with open(f"/proc/{p}/task/{p}/children") as f:
+                stack += [int(c) for c in f.read().split()]
+        except (OSError, StopIteration):
+            continue
+    return total / 1024
+
+
+def child(corpus: Path, db: Path) -> None:
+    from pipeline.ingest import ingest
+
+    summary = ingest([corpus], db, KEY, workers=2)
+    print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
+                                  "derived": repr(summary.derived)}), flush=True)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--studies", type=int, default=100_000)
+    parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
+    args = parser.parse_args()
+    if args.child:
+        child(Path(args.child[0]), Path(args.child[1]))
+        return
+    CACHE.mkdir(parents=True, exist_ok=True)
+    corpus = replicated(args.studies)
+    n_files = sum(1 for p in corpus.rglob("*.dcm"))
+    db = CACHE / f"ingest-scale-{os.getpid()}.duckdb"
+    started = time.perf_counter()
+    proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db)],
+                            stdout=subprocess.PIPE, text=True, cwd=ROOT,
+                            env={**os.environ, "PYTHONPATH": str(ROOT)})
+    samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
+    stop = threading.Event()
+
+    def sample() -> None:
+        while not stop.wait(2.0):
+            samples.append((time.perf_counter() - started, _rss_mib(proc.pid)))
+
+    thread = threading.Thread(target=sample, daemon=True)
+    thread.start()
+    out, _ = proc.communicate()
+    stop.set()
+    thread.join()
+    seconds = time.perf_counter() - started
+    if proc.returncode:
+        sys.exit(f"ingest failed ({proc.returncode}):\n{out}")
+    result = next(json.loads(l[7:]) for l in out.splitlines() if l.startswith("RESULT "))
+    peak = max(s[1] for s in samples) if samples else float("nan")
+
+    def at(fraction: float) -> float:
+        window = [s[1] for s in samples if s[0] <= fraction * seconds]
+        return max(window) if window else float("nan")
+
+    for f in (0.1, 0.25, 0.5, 0.75, 1.0):
+        print(f"   peak RSS up to {f:4.0%} of the run: {at(f):7.0f} MiB")
+    print(f"   {result}")
+    print(f"ingest {args.studies} studies: {n_files} files in {seconds:.0f} s "
+          f"({n_files / seconds:.0f} files/s), peak RSS {peak:.0f} MiB, "
+          f"at 10 % {at(0.1):.0f} MiB, at 100 % {at(1.0):.0f} MiB")
+    for p in (db, db.with_name(db.name + ".wal")):
+        p.unlink(missing_ok=True)
+
+
+if __name__ == "__main__":
+    main()
