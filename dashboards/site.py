@@ -24,6 +24,7 @@ from queries import sql
 
 from .model import PLOTLY_JS, Context, SiteData
 from .pages import build_site
+from .pages.alerts import MAX_SKIN_MAPS
 from .pages.trends import MAX_FUNNEL_POINTS
 
 __all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
@@ -120,7 +121,8 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | No
         bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
     params = {**bounds, "adult_min_age": adult_min_age if adult_min_age is not None
               else AuditSettings().adult_min_age_years}
-    con.register("dash_period_file", q("dash_period_files", **params))
+    text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
+    con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
@@ -142,12 +144,12 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | No
         value_issue_rows=q("dash_value_issue_rows", **params),
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
-        skin_dose_maps=q("dash_skin_dose_maps"),
+        skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS),
         alert_events=q("dash_alert_events"),
         device_studies=q("dash_device_studies", **params),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
-                 "funnel_drawn", "dash_period_file"):
+                 "funnel_drawn"):
         con.unregister(name)
     return data, label, first, last, q("dash_reference_sets")
 
