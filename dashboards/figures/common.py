@@ -20,7 +20,7 @@ from ..theme import (
     unit_label,
 )
 
-__all__ = ["DRIFT_COLOUR", "INSUFFICIENT_SYMBOL", "LOG_SPAN"]
+__all__ = ["DRIFT_COLOUR", "INSUFFICIENT_SYMBOL", "LOG_SPAN", "NO_CHECK"]
 
 # Figures and traces are built without plotly's per-property validation (``_validate=False``):
 # at a million events it was most of the time spent building pages (about 3 ms a trace, 430

@@ -76,7 +76,7 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
                      "median", "p25", "p75", "reference_value", "reference_set"], "build_trend")
     panels = _panels(frame)
     fig = _subplots(rows=len(panels), cols=1,
-                        vertical_spacing=min(0.25, 0.4 / len(panels)) if len(panels) > 1 else 0.0)
+                    vertical_spacing=min(0.25, 0.4 / len(panels)) if len(panels) > 1 else 0.0)
     months = sorted(set(frame["month"]))
     step = max(1, math.ceil(len(months) / 12))
     ticks = months[::step]

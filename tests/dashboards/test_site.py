@@ -475,3 +475,24 @@ def test_alerts_page_lists_at_most_max_study_events_per_study(site):
     events = pd.read_csv(site / "alert-events.csv")
     per_study = events.groupby("study_key").size()
     assert len(events) == per_study.sum() and per_study.max() > 0
+
+
+def test_csv_text_writes_what_pandas_float_format_writes():
+    """site.csv_text formats the float columns itself (speed); the characters must be those of
+    pandas' own ``to_csv(float_format="%.12g")`` (the independent check), with SQL NULL empty."""
+    import numpy as np
+
+    rows = pd.DataFrame({
+        "site_label": ["North, \"A\"", None, "South"],
+        "n": [3, 1, 12],
+        "median": [1234567.891234567, np.nan, 0.1 + 0.2],
+        "ratio": [1e-7, -0.0, np.inf],
+        "flag": [True, False, True],
+        "study_date": pd.to_datetime(["2026-09-01 00:00:00", None, "2026-11-30 10:07:11"]),
+        "nullable": pd.array([1.5, None, 2.25], dtype="Float64"),
+    })
+    expected = rows.to_csv(index=False, lineterminator="\n", float_format="%.12g")
+    assert site_module.csv_text(rows) == expected
+    # 12 significant figures: 1234567.89123, and 0.1 + 0.2 without its last-bit noise
+    assert ",1234567.89123," in expected and ",0.3," in expected and "0.30000000000000004" not in expected
+    assert rows["median"].dtype == np.float64                          # the caller's frame unchanged
