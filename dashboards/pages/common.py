@@ -99,7 +99,8 @@ def family_sections(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
     if frame.empty:
         return []
     order = frame.groupby("modality_family", sort=False)["family_order"].min().sort_values(kind="stable")
-    return [(str(f), frame[frame["modality_family"] == f]) for f in order.index]
+    parts = dict(iter(frame.groupby("modality_family", sort=False)))   # one split, not a mask each
+    return [(str(f), parts[f]) for f in order.index]
 
 
 def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
