@@ -113,7 +113,8 @@ def _kind(block: Any) -> str:
 def _table_rows(table: Table) -> list[dict[str, Any]]:
     """The shown rows: per cell (text, css class, raw value), and the row's flags."""
     rows = []
-    for _, row in table.rows.head(table.max_rows).iterrows():
+    # plain dicts, not iterrows(): a Series per row cost most of the time of the long tables
+    for row in table.rows.head(table.max_rows).to_dict("records"):
         cells = []
         for c in table.columns:
             if c.kind == "range":   # 'low..high': two columns shown as one 'low–high'

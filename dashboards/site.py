@@ -16,6 +16,7 @@ import datetime as dt
 from pathlib import Path
 
 import duckdb
+import numpy as np
 import pandas as pd
 import plotly
 from plotly.offline import get_plotlyjs
@@ -24,9 +25,10 @@ from queries import sql
 
 from .model import PLOTLY_JS, Context, SiteData
 from .pages import build_site
+from .pages.alerts import MAX_SKIN_MAPS
 from .pages.trends import MAX_FUNNEL_POINTS
 
-__all__ = ["AUDIT_TABLES", "read_site_data", "write_site"]
+__all__ = ["AUDIT_TABLES", "csv_text", "read_site_data", "write_site"]
 
 # Relations the audit (pipeline.audit.run_audit) writes, and the views the site also reads.
 AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags",
@@ -120,7 +122,8 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | No
         bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
     params = {**bounds, "adult_min_age": adult_min_age if adult_min_age is not None
               else AuditSettings().adult_min_age_years}
-    con.register("dash_period_file", q("dash_period_files", **params))
+    text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
+    con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
@@ -142,14 +145,33 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | No
         value_issue_rows=q("dash_value_issue_rows", **params),
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
-        skin_dose_maps=q("dash_skin_dose_maps"),
+        skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS),
         alert_events=q("dash_alert_events"),
         device_studies=q("dash_device_studies", **params),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
-                 "funnel_drawn", "dash_period_file"):
+                 "funnel_drawn"):
         con.unregister(name)
     return data, label, first, last, q("dash_reference_sets")
+
+
+def csv_text(rows: pd.DataFrame) -> str:
+    """A table as CSV text: floats to 12 significant figures (exact for the data, blind to
+    last-bit noise of float sums), SQL NULL as an empty field.
+
+    The float64 columns are formatted here, one ``%`` per value over a plain list, then written
+    as text: the same characters pandas writes with ``float_format="%.12g"``, which tests
+    every value for NA one by one (most of the time of writing the CSVs at a million events).
+    """
+    texts = {}
+    for column, dtype in rows.dtypes.items():
+        if dtype == np.float64:
+            texts[column] = ["" if v != v else "%.12g" % v for v in rows[column].tolist()]
+    if texts:
+        rows = rows.copy(deep=False)   # the caller's frame keeps its floats
+        for column, values in texts.items():
+            rows[column] = pd.Series(values, index=rows.index, dtype=object)
+    return rows.to_csv(index=False, lineterminator="\n", float_format="%.12g")
 
 
 def _write_text(path: Path, text: str) -> None:
@@ -201,7 +223,5 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     for name, html in site.pages.items():
         _write_text(out / name, html)
     for name, rows in site.tables.items():
-        # 12 significant figures: exact for the data, blind to last-bit noise of float sums
-        _write_text(out / f"{name}.csv", rows.to_csv(index=False, lineterminator="\n",
-                                                     float_format="%.12g"))
+        _write_text(out / f"{name}.csv", csv_text(rows))
     return out / "index.html"

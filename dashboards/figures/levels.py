@@ -6,7 +6,6 @@ from collections.abc import Mapping
 
 import pandas as pd
 import plotly.graph_objects as go
-from plotly.subplots import make_subplots
 
 from ..theme import (
     NETWORK_COLOUR,
@@ -17,6 +16,10 @@ from ..theme import (
     unit_label,
 )
 from .common import (
+    NO_CHECK,
+    _figure,
+    _subplots,
+    _with_traces,
     INSUFFICIENT_SYMBOL,
     _PHANTOM_SHORT,
     _POPULATION_ORDER,
@@ -63,21 +66,24 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
     room_axis = [f"{r}{_stratum_short(b)} (n {int(n)})"
                  for r, b, n in zip(rows["room_label"], strata, rows["n"], strict=True)]
     quantity, unit = str(rows["quantity"].iloc[0]), rows["unit"].iloc[0]
-    fig = go.Figure()
+    # plain lists, read by position (``Series.iloc`` per value cost most of this builder)
+    col = {c: rows[c].tolist() for c in ("site_label", "is_sample_adequate", "n", "median",
+                                         "median_ci_low", "median_ci_high", "reference_set",
+                                         "reference_value", "network_p75")}
     # An invisible first trace fixes the category order to the rows' order (exam, then room).
-    fig.add_trace(go.Scatter(x=[_num(v) for v in rows["median"]], y=[exam_axis, room_axis],
-                             mode="markers", marker={"opacity": 0}, showlegend=False,
-                             hoverinfo="skip", name=""))
+    traces: list[dict] = [dict(type="scatter", x=[_num(v) for v in col["median"]],
+                               y=[exam_axis, room_axis], mode="markers", marker={"opacity": 0},
+                               showlegend=False, hoverinfo="skip", name="")]
     for site in sorted(rows["site_label"].unique()):
         # adequate samples first: the legend shows the first point's (filled) marker
-        idx = sorted((i for i in range(len(rows)) if rows["site_label"].iloc[i] == site),
-                     key=lambda i: not bool(rows["is_sample_adequate"].iloc[i]))
-        adequate = [bool(rows["is_sample_adequate"].iloc[i]) for i in idx]
-        med = [_num(rows["median"].iloc[i]) for i in idx]
-        lo = [_num(rows["median_ci_low"].iloc[i]) for i in idx]
-        hi = [_num(rows["median_ci_high"].iloc[i]) for i in idx]
+        idx = sorted((i for i in range(len(rows)) if col["site_label"][i] == site),
+                     key=lambda i: not bool(col["is_sample_adequate"][i]))
+        adequate = [bool(col["is_sample_adequate"][i]) for i in idx]
+        med = [_num(col["median"][i]) for i in idx]
+        lo = [_num(col["median_ci_low"][i]) for i in idx]
+        hi = [_num(col["median_ci_high"][i]) for i in idx]
         colour = _site_colour(site_colours, site)
-        fig.add_trace(go.Scatter(
+        traces.append(dict(type="scatter",
             name=site, legendgroup=site, mode="markers",
             x=med, y=[[exam_axis[i] for i in idx], [room_axis[i] for i in idx]],
             marker={"color": colour, "size": 10,
@@ -87,7 +93,7 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                      "width": 4,
                      "array": [None if h is None or m is None else _num(h - m) for h, m in zip(hi, med, strict=True)],
                      "arrayminus": [None if w is None or m is None else _num(m - w) for w, m in zip(lo, med, strict=True)]},
-            customdata=[[int(rows["n"].iloc[i]), _fmt(lo[k]), _fmt(hi[k]),
+            customdata=[[int(col["n"][i]), _fmt(lo[k]), _fmt(hi[k]),
                          "adequate" if adequate[k] else "below the audit minimum"]
                         for k, i in enumerate(idx)],
             hovertemplate=("%{y}<br>median %{x:.4g} " + unit_label(unit)
@@ -96,11 +102,11 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
         ))
     by_use = rows["reference_set"].dropna().value_counts()
     for k, ref_set in enumerate(sorted(by_use.index, key=lambda v: (-int(by_use[v]), str(v)))):
-        sel = rows.index[rows["reference_set"] == ref_set].tolist()
+        sel = [i for i, v in enumerate(col["reference_set"]) if v == ref_set]
         symbol, colour = _REFERENCE_SET_MARKS[k % len(_REFERENCE_SET_MARKS)]
-        fig.add_trace(go.Scatter(
+        traces.append(dict(type="scatter",
             name=f"Reference level ({ref_set})", mode="markers",
-            x=[_num(rows["reference_value"].iloc[i]) for i in sel],
+            x=[_num(col["reference_value"][i]) for i in sel],
             y=[[exam_axis[i] for i in sel], [room_axis[i] for i in sel]],
             marker={"symbol": symbol, "size": 22, "color": colour,
                     "line": {"color": colour, "width": 3}},
@@ -108,14 +114,15 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
         ))
     sel = rows.index[rows["network_p75"].notna()].tolist()
     if sel:
-        fig.add_trace(go.Scatter(
+        traces.append(dict(type="scatter",
             name="Network 75th percentile of room medians", mode="markers",
-            x=[_num(rows["network_p75"].iloc[i]) for i in sel],
+            x=[_num(col["network_p75"][i]) for i in sel],
             y=[[exam_axis[i] for i in sel], [room_axis[i] for i in sel]],
             marker={"symbol": "diamond-tall-open", "size": 12,
                     "line": {"color": NETWORK_COLOUR, "width": 2}, "color": NETWORK_COLOUR},
             hovertemplate="network 75th percentile %{x:.4g} " + unit_label(unit) + "<extra></extra>",
         ))
+    fig = _with_traces(_figure(), traces)
     values = [*rows["median_ci_low"], *rows["median_ci_high"], *rows["median"],
               *rows["reference_value"], *rows["network_p75"]]
     log = _wants_log(values)
@@ -151,10 +158,15 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                      "n", "p05", "p25", "median", "p75", "p95", "reference_value",
                      "reference_set", "is_sample_adequate"], "build_distribution")
     panels = _panels(frame)
-    fig = make_subplots(rows=1, cols=len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
+    fig = _subplots(rows=1, cols=len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
     legend_done: set[str] = set()
-    for col, (quantity, phantom) in enumerate(panels, start=1):
-        part = _panel_rows(frame, quantity, phantom)
+    parts = [(col, quantity, phantom, _panel_rows(frame, quantity, phantom))
+             for col, (quantity, phantom) in enumerate(panels, start=1)]
+    # every panel's traces first (plain dicts), added at once; then the reference lines, which
+    # go on panels with traces
+    traces: list[dict] = []
+    cols: list[int] = []
+    for col, quantity, phantom, part in parts:
         unit = part["unit"].iloc[0]
         rooms = sorted({(s, r) for s, r in zip(part["site_label"], part["room_label"], strict=True)})
         counts = {room: {} for room in rooms}
@@ -164,27 +176,29 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
         present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
             f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
+        by_population = dict(iter(part.groupby("population", sort=False)))
         for population in present:
             colour = POPULATION_COLOURS.get(population, PALETTE[2])
-            single = part[(part["population"] == population) & (part["n"] == 1)]
+            rows = by_population[population]
+            single = rows[rows["n"] == 1]
             if not single.empty:    # one exam: a point, not a box of five equal quantiles
                 name = f"{population}, a single exam"
-                fig.add_trace(go.Scatter(
+                traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in legend_done, mode="markers",
                     x=[labels[(s, r)] for s, r in zip(single["site_label"], single["room_label"], strict=True)],
                     y=[_num(v) for v in single["median"]],
                     marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
                             "line": {"color": colour, "width": 2}},
                     hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
-                ), row=1, col=col)
+                ))
+                cols.append(col)
                 legend_done.add(name)
             for adequate in (True, False):
-                sel = part[(part["population"] == population) & (part["is_sample_adequate"] == adequate)
-                           & (part["n"] > 1)]
+                sel = rows[(rows["is_sample_adequate"] == adequate) & (rows["n"] > 1)]
                 if sel.empty:
                     continue
                 name = population if adequate else f"{population}, sample below the audit minimum"
-                fig.add_trace(go.Box(
+                traces.append(dict(type="box",
                     name=name, legendgroup=name, showlegend=name not in legend_done,
                     offsetgroup=population, alignmentgroup=f"panel{col}",
                     x=[labels[(s, r)] for s, r in zip(sel["site_label"], sel["room_label"], strict=True)],
@@ -195,8 +209,12 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                     line={"color": colour, "width": 1.5},
                     fillcolor=_alpha(colour, 0.35) if adequate else "rgba(255,255,255,0)",
                     hoverinfo="x+y", boxpoints=False,
-                ), row=1, col=col)
+                ))
+                cols.append(col)
                 legend_done.add(name)
+    fig = _with_traces(fig, traces, [1] * len(cols), cols)
+    for col, quantity, phantom, part in parts:
+        unit = part["unit"].iloc[0]
         refs = part.dropna(subset=["reference_value"])
         for (value, ref_set, population) in sorted(
                 {(float(v), str(s), str(p)) for v, s, p in

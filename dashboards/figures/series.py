@@ -8,7 +8,6 @@ from collections.abc import Mapping
 
 import pandas as pd
 import plotly.graph_objects as go
-from plotly.subplots import make_subplots
 
 from ..theme import (
     NETWORK_COLOUR,
@@ -17,6 +16,10 @@ from ..theme import (
     unit_label,
 )
 from .common import (
+    NO_CHECK,
+    _figure,
+    _subplots,
+    _with_traces,
     DRIFT_COLOUR,
     INSUFFICIENT_SYMBOL,
     _ROOM_SYMBOLS,
@@ -72,8 +75,8 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     _require(frame, ["quantity", "unit", "phantom", "month", "site_label", "room_label", "n",
                      "median", "p25", "p75", "reference_value", "reference_set"], "build_trend")
     panels = _panels(frame)
-    fig = make_subplots(rows=len(panels), cols=1,
-                        vertical_spacing=min(0.25, 0.4 / len(panels)) if len(panels) > 1 else 0.0)
+    fig = _subplots(rows=len(panels), cols=1,
+                    vertical_spacing=min(0.25, 0.4 / len(panels)) if len(panels) > 1 else 0.0)
     months = sorted(set(frame["month"]))
     step = max(1, math.ceil(len(months) / 12))
     ticks = months[::step]
@@ -90,18 +93,25 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     # every earlier one (quadratic in the number of flags)
     flag_shapes: list[go.layout.Shape] = []
     flag_notes: list[go.layout.Annotation] = []
-    for row, (quantity, phantom) in enumerate(panels, start=1):
-        part = _panel_rows(frame, quantity, phantom)
+    parts = [(row, quantity, _panel_rows(frame, quantity, phantom))
+             for row, (quantity, phantom) in enumerate(panels, start=1)]
+    # every panel's traces first, added at once (reference lines go on panels with traces)
+    traces: list[dict] = []   # plain dicts: one trace object each, made by the figure
+    rows: list[int] = []
+    for row, quantity, part in parts:
         unit = part["unit"].iloc[0]
+        # each room's rows split once (a boolean mask per room costs a scan of the panel each)
+        by_room = dict(iter(part.groupby(["site_label", "room_label"], sort=False)))
         for site in sorted(rooms_by_site):
             for k, room in enumerate(rooms_by_site[site]):
-                series = part[(part["site_label"] == site) & (part["room_label"] == room)].sort_values("month")
-                if series.empty:
+                series = by_room.get((site, room))
+                if series is None:
                     continue
+                series = series.sort_values("month")
                 name = f"{room} · {site}"
                 colour = _site_colour(site_colours, site)
                 med = [_num(v) for v in series["median"]]
-                fig.add_trace(go.Scatter(
+                traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in shown,
                     mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in series["month"]], y=med,
                     line={"color": colour, "width": 2, "dash": ("solid", "dot", "dash")[k % 3]},
@@ -115,8 +125,12 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
                     customdata=[[int(n), _month_text(m)] for n, m in zip(series["n"], series["month"], strict=True)],
                     hovertemplate=("%{customdata[1]}: median %{y:.4g} " + unit_label(unit)
                                    + " (n %{customdata[0]})<extra>" + name + "</extra>"),
-                ), row=row, col=1)
+                ))
                 shown.add(name)
+                rows.append(row)
+    fig = _with_traces(fig, traces, rows, [1] * len(rows))
+    for row, quantity, part in parts:
+        unit = part["unit"].iloc[0]
         refs = part.dropna(subset=["reference_value"])
         for value, ref_set in sorted({(float(v), str(s)) for v, s in
                                       zip(refs["reference_value"], refs["reference_set"], strict=True)}):
@@ -129,11 +143,11 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
         ordered = flags.sort_values(["change_month", "room_label"]) if not flags.empty else flags
         for k, flag in enumerate(ordered.itertuples(index=False)):
             x = f"{flag.change_month}-01"
-            flag_shapes.append(go.layout.Shape(
+            flag_shapes.append(go.layout.Shape(**NO_CHECK,
                 type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
                 line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2}))
             change = (float(flag.ratio_after_to_before) - 1.0) * 100.0
-            flag_notes.append(go.layout.Annotation(
+            flag_notes.append(go.layout.Annotation(**NO_CHECK,
                 x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
                 text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
                 showarrow=False, xanchor="left", yanchor="top", xshift=4,
@@ -156,7 +170,7 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
 def _funnel_cells(cells: pd.DataFrame) -> go.Scatter:
     """One grey square per cell of groups not drawn one by one; area ~ number of groups."""
     biggest = max(int(v) for v in cells["n_groups"])
-    return go.Scatter(
+    return go.Scatter(**NO_CHECK,
         name="Room groups not drawn one by one (square area: number of groups)", mode="markers",
         x=[_num(v) for v in cells["n_mid"]], y=[_num(v) for v in cells["ratio_mid"]],
         marker={"color": NETWORK_COLOUR, "symbol": "square", "opacity": 0.55,
@@ -197,13 +211,13 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         _require(points, columns, "build_funnel")
     first = points if not points.empty else cells
     quantity, unit = str(first["quantity"].iloc[0]), first["unit"].iloc[0]
-    fig = go.Figure()
+    fig = _figure()
     if not limits.empty:
         lim = limits.sort_values("n")
         n = [int(v) for v in lim["n"]]
         for column, name, dash in (("upper_998", "99.8 % upper control limit", "dot"),
                                    ("upper_95", "95 % upper control limit", "dash")):
-            fig.add_trace(go.Scatter(
+            fig.add_trace(go.Scatter(**NO_CHECK,
                 name=name, legendgroup=name, mode="lines", x=n, y=[_num(v) for v in lim[column]],
                 line={"color": NETWORK_COLOUR, "dash": dash, "width": 1.5},
                 hovertemplate="n %{x}: limit %{y:.3f}<extra>" + name + "</extra>",
@@ -211,13 +225,13 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         x_max = max(n)
     else:
         x_max = max(int(v) for v in [*points["n"], *(cells["n_max"] if has_cells else [])]) * 2
-    fig.add_trace(go.Scatter(
+    fig.add_trace(go.Scatter(**NO_CHECK,
         name="Network typical value (ratio 1)", mode="lines", x=[1, x_max], y=[1.0, 1.0],
         line={"color": NETWORK_COLOUR, "width": 2}, hoverinfo="skip",
     ))
     refs = points[[not _missing(v) for v in points["reference_ratio_to_typical"]]]
     if not refs.empty:
-        fig.add_trace(go.Scatter(
+        fig.add_trace(go.Scatter(**NO_CHECK,
             name="Reference level of the group", mode="markers",
             x=[int(v) for v in refs["n"]], y=[_num(v) for v in refs["reference_ratio_to_typical"]],
             marker={"color": REFERENCE_COLOUR, "symbol": "line-ew-open", "size": 18,
@@ -233,7 +247,7 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         colour = _site_colour(site_colours, site)
         adequate = [bool(v) for v in part["is_sample_adequate"]]
         labelled = [z == "above 99.8 % limit" for z in part["funnel_zone"]]
-        fig.add_trace(go.Scatter(
+        fig.add_trace(go.Scatter(**NO_CHECK,
             name=site, legendgroup=site, mode="markers+text",
             x=[int(v) for v in part["n"]], y=[_num(v) for v in part["ratio_to_typical"]],
             marker={"color": colour, "size": 11, "line": {"color": colour, "width": 2},

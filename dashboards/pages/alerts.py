@@ -15,7 +15,8 @@ from .common import ALERT_COLUMNS, alert_rows, empty
 __all__ = ["EVENT_COLUMNS", "MAX_DETAIL_STUDIES", "MAX_SKIN_MAPS", "MAX_STUDY_EVENTS", "StudyDetail", "alerts",
            "detail_studies", "rule_counts", "study_details"]
 
-MAX_STUDY_EVENTS = 40    # events listed per study on the page; alert-events.csv has all of them
+MAX_STUDY_EVENTS = 20    # events listed per study on the page; alert-events.csv has all of them
+# (at 40, the study details were half of alerts.html: 1.47 MiB at a million events)
 MAX_DETAIL_STUDIES = 60  # studies with details on the page (the most urgent first)
 
 EVENT_COLUMNS = (
@@ -55,18 +56,23 @@ def study_details(listing: pd.DataFrame, events: pd.DataFrame) -> list[StudyDeta
     keys = detail_studies(listing)
     shown = listing[listing["study_key"].isin(keys)] if keys else listing.head(0)
     # only the shown studies' events: a frame per study of every alerted study costs seconds
-    # at a million events
+    # at a million events; rows as plain dicts, grouped in their order (first seen first)
     mine = events[events["study_key"].isin(keys)] if keys and not events.empty else events.head(0)
-    by_study = {k: g for k, g in mine.groupby("study_key", sort=False)} if not mine.empty else {}
+    by_study: dict[str, list[dict]] = {}
+    for r in mine.to_dict("records"):
+        by_study.setdefault(r["study_key"], []).append(r)
+    fired_by: dict[str, list[dict]] = {}
+    for r in shown.to_dict("records"):
+        fired_by.setdefault(r["study_key"], []).append(r)
     out = []
-    for key, fired in shown.groupby("study_key", sort=False):
-        first = fired.iloc[0]
+    for key, fired in fired_by.items():
+        first = fired[0]
         heading = " · ".join(cell_text(first[c], k) for c, k in (
             ("study_date", "date"), ("site_label", "text"), ("room_label", "text"), ("exam_label", "text")))
-        findings = tuple(f"{r.action_text}: {r.rule_text}, {r.value_text}" for r in fired.itertuples())
-        rows = by_study.get(key, events.head(0))
+        findings = tuple(f"{r['action_text']}: {r['rule_text']}, {r['value_text']}" for r in fired)
+        rows = by_study.get(key, [])
         table = tuple(tuple(cell_text(r[c.key], c.kind) for c in EVENT_COLUMNS)
-                      for _, r in rows.head(MAX_STUDY_EVENTS).iterrows())
+                      for r in rows[:MAX_STUDY_EVENTS])
         out.append(StudyDetail(f"study-{slug(key)}", str(key), heading, findings, table, len(rows)))
     return out
 
@@ -91,12 +97,15 @@ def _skin_dose_section(maps: pd.DataFrame) -> Section:
     peak skin doses; the rows come highest first), and the cautions."""
     blocks: list[Block] = [Note(_SKIN_NOTE)]
     studies = list(maps.groupby(["study_key", "device_key"], sort=False))
+    # dash_skin_dose_maps.sql returns the cells of the first MAX_SKIN_MAPS maps only, and the
+    # number of maps there are (n_maps)
+    total = int(maps["n_maps"].iloc[0]) if "n_maps" in maps.columns else len(studies)
     for (study_key, device_key), rows in studies[:MAX_SKIN_MAPS]:
         label = f"Study {rows['study_label'].iloc[0]} ({rows['site_label'].iloc[0]})"
         blocks.append(Plot(f"fig-skin-dose-{slug(study_key, device_key)}",
                            figures.build_skin_dose_map(rows, title=label), ""))
-    if len(studies) > MAX_SKIN_MAPS:
-        blocks.append(Note(_SKIN_MORE, {"shown": MAX_SKIN_MAPS, "total": len(studies)}))
+    if total > MAX_SKIN_MAPS:
+        blocks.append(Note(_SKIN_MORE, {"shown": MAX_SKIN_MAPS, "total": total}))
     return Section("skin-dose", "Skin-dose maps of studies at the peak-skin-dose level", tuple(blocks))
 
 

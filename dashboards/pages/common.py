@@ -99,7 +99,8 @@ def family_sections(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
     if frame.empty:
         return []
     order = frame.groupby("modality_family", sort=False)["family_order"].min().sort_values(kind="stable")
-    return [(str(f), frame[frame["modality_family"] == f]) for f in order.index]
+    parts = dict(iter(frame.groupby("modality_family", sort=False)))   # one split, not a mask each
+    return [(str(f), parts[f]) for f in order.index]
 
 
 def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
@@ -111,11 +112,24 @@ def alert_rows(alerts: pd.DataFrame) -> pd.DataFrame:
     if alerts.empty:
         return alerts.assign(action_text=pd.Series(dtype=str), rule_text=pd.Series(dtype=str),
                              value_text=pd.Series(dtype=str), threshold_text=pd.Series(dtype=str))
+    # one pass over plain lists; the words of a rule are worded once per distinct rule (a
+    # million events raise thousands of alerts of a few dozen rules)
+    cols = {c: alerts[c].tolist() for c in ("rule", "family", "quantity", "threshold", "unit", "value")}
+    words: dict[tuple, str] = {}
+    rule_text = []
+    for key in zip(cols["rule"], cols["family"], cols["quantity"], cols["threshold"], cols["unit"],
+                   strict=True):
+        text = words.get(key)
+        if text is None:
+            text = words[key] = rule_words(*key)
+        rule_text.append(text)
+    actions = alerts["action"].tolist()
     out = alerts.assign(
-        action_text=[ACTION_WORDS.get(a, a) for a in alerts["action"]],
-        rule_text=[rule_words(r.rule, r.family, r.quantity, r.threshold, r.unit)
-                   for r in alerts.itertuples()],
-        value_text=[format_value(r.value, r.unit, r.quantity) for r in alerts.itertuples()],
-        threshold_text=[format_value(r.threshold, r.unit, r.quantity) for r in alerts.itertuples()],
-        _tier=[action_rank(a) for a in alerts["action"]])
+        action_text=[ACTION_WORDS.get(a, a) for a in actions],
+        rule_text=rule_text,
+        value_text=[format_value(v, u, q) for v, u, q in
+                    zip(cols["value"], cols["unit"], cols["quantity"], strict=True)],
+        threshold_text=[format_value(t, u, q) for t, u, q in
+                        zip(cols["threshold"], cols["unit"], cols["quantity"], strict=True)],
+        _tier=[action_rank(a) for a in actions])
     return out.sort_values("_tier", kind="stable").drop(columns="_tier").reset_index(drop=True)

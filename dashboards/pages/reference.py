@@ -32,8 +32,9 @@ def reference_levels(data: SiteData, site_colours: dict[str, str]) -> Page:
         blocks: list[Block] = []
         keys = part[["quantity", "population"]].drop_duplicates().sort_values(
             ["population", "quantity"], kind="stable")
+        by_key = dict(iter(part.groupby(["quantity", "population"], sort=False)))
         for q, pop in keys.itertuples(index=False):
-            rows = part[(part["quantity"] == q) & (part["population"] == pop)]
+            rows = by_key[(q, pop)]
             shown, left_out = capped(rows, MAX_PLOT_ROWS, ["ratio_to_reference", "n"])
             n_ref = int(rows["reference_value"].notna().sum())
             caption = (f"{len(rows)} room groups; {n_ref} with a reference value. Dot: room median (colour: "
@@ -78,8 +79,9 @@ def distributions(data: SiteData) -> Page:
     frame = data.distribution
     for family, part in family_sections(frame):
         blocks: list[Block] = []
+        by_exam = dict(iter(part.groupby("exam_label", sort=False)))
         for exam in sorted(part["exam_label"].unique()):
-            rows = part[part["exam_label"] == exam]
+            rows = by_exam[exam]
             rooms = rows.groupby(["site_label", "room_label"])["n"].sum()
             caption = ("Box: interquartile range with the median; whiskers: 5th to 95th percentile. Unfilled "
                        "box: fewer exams than the audit minimum; a point: a single exam. Dashed line: "

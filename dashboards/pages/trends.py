@@ -23,9 +23,10 @@ def trends(data: SiteData, site_colours: dict[str, str], drift: Table) -> Page:
     frame = data.monthly
     for family, part in family_sections(frame):
         blocks: list[Block] = []
-        labels = part.groupby("exam_type")["exam_label"].first()
-        for exam_type in sorted(labels.index, key=lambda e: str(labels[e])):
-            rows = part[part["exam_type"] == exam_type]
+        labels = part.groupby("exam_type")["exam_label"].first().to_dict()
+        by_exam = dict(iter(part.groupby("exam_type", sort=False)))   # one split, not a mask per exam
+        for exam_type in sorted(labels, key=lambda e: str(labels[e])):
+            rows = by_exam[exam_type]
             flags = data.drift[data.drift["exam_type"] == exam_type] if not data.drift.empty else data.drift
             caption = ("Adult patients. Point: monthly median; bar: interquartile range (rooms side by side "
                        "within a month). Grey dash-dotted line: a drift flag at the first month after the "
@@ -33,7 +34,8 @@ def trends(data: SiteData, site_colours: dict[str, str], drift: Table) -> Page:
             rooms = rows.groupby(["site_label", "room_label"])["n"].sum()
             if len(rooms) > MAX_TREND_ROOMS:
                 flagged = set(zip(flags["site_label"], flags["room_label"], strict=True)) if not flags.empty else set()
-                ranked = sorted(rooms.index, key=lambda k: (k not in flagged, -int(rooms[k])))
+                exams = rooms.to_dict()
+                ranked = sorted(exams, key=lambda k: (k not in flagged, -int(exams[k])))
                 keep = set(ranked[:MAX_TREND_ROOMS])
                 rows = rows[[k in keep for k in zip(rows["site_label"], rows["room_label"], strict=True)]]
                 if not flags.empty:   # a flag is drawn on its own room's series only

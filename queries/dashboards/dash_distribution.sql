@@ -19,11 +19,8 @@ stats as (
         device_key, exam_type, quantity, unit, population, phantom,
         count(*) as n,
         min(value) as value_min,
-        quantile_cont(value, 0.05) as p05,
-        quantile_cont(value, 0.25) as p25,
-        quantile_cont(value, 0.5) as median,
-        quantile_cont(value, 0.75) as p75,
-        quantile_cont(value, 0.95) as p95,
+        -- one sort per group for the five order statistics (a list of quantiles), not five
+        quantile_cont(value, [0.05, 0.25, 0.5, 0.75, 0.95]) as q,
         max(value) as value_max
     from obs
     group by all
@@ -47,7 +44,8 @@ select
     s.exam_type,
     coalesce(x.label, s.exam_type) as exam_label,
     s.quantity, s.unit, s.population, s.phantom,
-    s.n, s.value_min, s.p05, s.p25, s.median, s.p75, s.p95, s.value_max,
+    s.n, s.value_min, s.q[1] as p05, s.q[2] as p25, s.q[3] as median, s.q[4] as p75, s.q[5] as p95,
+    s.value_max,
     a.reference_set,
     a.reference_value,
     coalesce(a.is_sample_adequate, false) as is_sample_adequate

@@ -1,3 +1,4 @@
--- grain: none; drops the temporary table of dash_materialise_study_dose.sql at the end of a site
--- build, so the connection sees the warehouse's own view again
+-- grain: none; drops the temporary tables of dash_materialise_study_dose.sql and
+-- dash_period_files.sql at the end of a site build, so the connection sees the warehouse's own view again
 drop table if exists temp.main.study_dose;
+drop table if exists temp.main.dash_period_file;

@@ -1,6 +1,9 @@
 -- grain: one row per input file (source_object) of the audit period: a file whose dose object
 -- has a study dated in the period, or a file with no readable study date (quarantined, not a
--- dose object) recorded by an ingest run that also recorded a file of the period
+-- dose object) recorded by an ingest run that also recorded a file of the period. Kept as a
+-- temporary table for the SELECTs that count them (a million events: 364k files, read once here
+-- instead of through a pandas frame); dash_drop_materialised.sql drops it.
+create temp table dash_period_file as
 with
 dated as (
     select distinct e.sop_instance_uid, s.study_date >= $date_from and s.study_date < $date_to as in_period

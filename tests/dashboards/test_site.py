@@ -296,7 +296,7 @@ def test_alerts_page_drills_down_to_the_study_events(site):
     # every study link of the alert list goes to that study's own details, with its events
     listing = html[html.index('id="table-alerts"'):html.index('id="events"')]
     links = set(re.findall(r'href="alerts\.html#(study-[0-9a-f]+)"', listing))
-    from dashboards.pages.alerts import MAX_DETAIL_STUDIES
+    from dashboards.pages.alerts import MAX_DETAIL_STUDIES, MAX_STUDY_EVENTS
     expected = list(dict.fromkeys(alerts["study_key"]))[:MAX_DETAIL_STUDIES]
     assert links == {f"study-{k}" for k in expected}
     for anchor in links:
@@ -305,7 +305,7 @@ def test_alerts_page_drills_down_to_the_study_events(site):
     detail = html[html.index(f'id="study-{pci}"'):]
     detail = detail[:detail.index("</table>")]
     n_events = int((events["study_key"] == pci).sum())
-    assert detail.count("<tr>") == 1 + min(n_events, 40)      # header + the events shown
+    assert detail.count("<tr>") == 1 + min(n_events, MAX_STUDY_EVENTS)   # header + the events shown
     assert "Coronary" in detail or "fluoro" in detail.lower()
     # the overview's ten most urgent alerts link to the same details
     index = _html(site, "index.html")
@@ -442,3 +442,57 @@ def test_sites_page_states_how_many_groups_each_funnel_draws(marts):
         data, funnel_drawn=data.funnel_points.drop(index=part.index),
         funnel_cells=cells.assign(n_groups=len(part))), ctx).pages["sites.html"]
     assert f"None of the {len(part)} room groups is above a limit; all {len(part)} are counted" in none
+
+
+def test_every_figure_of_the_site_passes_plotly_validation(marts):
+    """The figure builders skip plotly's per-property validation for speed
+    (dashboards.figures.common.NO_CHECK); a validating go.Figure of every figure's dict must
+    still accept it (plotly raises ValueError on an unknown property or an invalid value)."""
+    import plotly.graph_objects as go
+
+    data, label, first, last, sets = marts
+    ctx = model.Context(period=label, date_from=first, date_to=last, reference_sets=sets,
+                        generated_at=GENERATED_AT)
+    plots = [b for p in pages.build_pages(data, ctx) for s in p.sections for b in s.blocks
+             if isinstance(b, model.Plot)]
+    assert len(plots) > 10
+    for plot in plots:
+        as_dict = plot.figure.to_dict()
+        checked = go.Figure(as_dict)   # validates every trace and the layout
+        assert checked.to_dict() == as_dict, plot.div_id
+
+
+def test_alerts_page_lists_at_most_max_study_events_per_study(site):
+    """The drill-down is capped per study (the page must not grow with the number of events);
+    alert-events.csv keeps every event of every alerted study."""
+    from dashboards.pages.alerts import MAX_STUDY_EVENTS
+
+    html = (site / "alerts.html").read_text(encoding="utf-8")
+    studies = [chunk.split("</table>", 1)[0] for chunk in html.split('<div class="study" id=')[1:]]
+    assert studies
+    for body in studies:
+        assert 0 < body.count("<tr><td") <= MAX_STUDY_EVENTS
+    events = pd.read_csv(site / "alert-events.csv")
+    per_study = events.groupby("study_key").size()
+    assert len(events) == per_study.sum() and per_study.max() > 0
+
+
+def test_csv_text_writes_what_pandas_float_format_writes():
+    """site.csv_text formats the float columns itself (speed); the characters must be those of
+    pandas' own ``to_csv(float_format="%.12g")`` (the independent check), with SQL NULL empty."""
+    import numpy as np
+
+    rows = pd.DataFrame({
+        "site_label": ["North, \"A\"", None, "South"],
+        "n": [3, 1, 12],
+        "median": [1234567.891234567, np.nan, 0.1 + 0.2],
+        "ratio": [1e-7, -0.0, np.inf],
+        "flag": [True, False, True],
+        "study_date": pd.to_datetime(["2026-09-01 00:00:00", None, "2026-11-30 10:07:11"]),
+        "nullable": pd.array([1.5, None, 2.25], dtype="Float64"),
+    })
+    expected = rows.to_csv(index=False, lineterminator="\n", float_format="%.12g")
+    assert site_module.csv_text(rows) == expected
+    # 12 significant figures: 1234567.89123, and 0.1 + 0.2 without its last-bit noise
+    assert ",1234567.89123," in expected and ",0.3," in expected and "0.30000000000000004" not in expected
+    assert rows["median"].dtype == np.float64                          # the caller's frame unchanged
