@@ -18,7 +18,7 @@ from .figures import skin_map_figure
 from .words import ACTION_TIERS, ACTION_WORDS, action_rank, format_value, rule_words
 
 __all__ = ["CAUTIONS", "ReportContent", "ReportInput", "ReportSection", "change_status",
-           "report_content", "summary_lines"]
+           "detailed_follow_up", "report_content", "summary_lines"]
 
 CAUTIONS = (
     "A diagnostic reference level (DRL) is an investigation level for typical doses of groups "
@@ -34,6 +34,18 @@ CAUTIONS = (
     "re-identification key can name a patient, and each such access is logged.",
 )
 KNOWN_NOTE_STATUSES = ("explained", "closed")
+# The report stays a readable document at any warehouse size (a network's year holds thousands
+# of alerts): beyond these numbers a section shows the most urgent rows, says how many more there
+# are and where every one of them is (the dashboards' CSVs, the audit tables). Patients needing
+# follow-up are never cut from the executive summary. Common practice, no source: the sizes keep
+# a month of a large site in full and the report within some tens of pages.
+SUMMARY_LINES_PER_KIND = 30   # study lines and room lines per tier, below the follow-up tier
+FOLLOW_UP_DETAILED = 12       # follow-up studies shown with alerts, events and skin-dose maps
+FOLLOW_UP_EVENTS = 20         # events listed per detailed follow-up study
+SECTION_ROWS = 100            # rows of the alert, median and drift sections
+WHERE_ALL = ("every one is in the audit tables (kerma sql: dose_alerts, audit_medians, "
+             "drift_flags) and the dashboards' CSV files (alerts.csv, reference-room-medians.csv, "
+             "drift-flags.csv)")
 
 
 @dataclass(frozen=True)
@@ -57,9 +69,9 @@ class ReportInput:
     rooms: dict[str, tuple[str, str]]  # device_key -> (site label, room label)
     generated_at: dt.datetime
     version: str = ""
-    events: list[dict] = field(default_factory=list)   # queries/dashboards/dash_alert_events.sql
+    events: list[dict] = field(default_factory=list)   # queries/report/report_follow_up_events.sql
     data_checks: list[dict] = field(default_factory=list)  # queries/report/report_data_alerts.sql
-    skin_maps: list[dict] = field(default_factory=list)    # queries/report/report_skin_dose_maps.sql
+    skin_maps: list[dict] = field(default_factory=list)    # queries/report/report_skin_dose_maps.sql (detailed studies)
 
 
 @dataclass(frozen=True)
@@ -143,6 +155,7 @@ def summary_lines(inp: ReportInput, status: dict[str, str]) -> list[dict]:
         words = rule_words(a["rule"], a["family"], a["quantity"], a["threshold"], a["unit"])
         entry["rules"].append({"text": f"{words}: {format_value(a['value'], a['unit'], a['quantity'])}",
                                "item_id": a["item_id"]})
+        entry["factor"] = max(entry.get("factor") or 0.0, a.get("factor") or 0.0)
         entry["items"].append(a["item_id"])
         entry["actions"].append(a["action"])
         if a["exam_label"] not in entry["exams"]:
@@ -157,6 +170,7 @@ def summary_lines(inp: ReportInput, status: dict[str, str]) -> list[dict]:
             f"{format_value(m['reference_value'], m['unit'], m['quantity'])} "
             f"(× {m['ratio_to_reference']:.2f}, n {m['n']}{sample})"})
         entry["items"].append(m["item_id"])
+        entry["factor"] = max(entry.get("factor") or 0.0, m.get("ratio_to_reference") or 0.0)
         # fewer exams than the modality's minimum sample: a statistical finding, not yet a protocol's
         entry["actions"].append("protocol_review" if m["is_sample_adequate"] else "statistical_review")
         if m["exam_label"] not in entry["exams"]:
@@ -186,6 +200,23 @@ def summary_lines(inp: ReportInput, status: dict[str, str]) -> list[dict]:
     return out
 
 
+def _shown_lines(action: str, lines: list[dict]) -> tuple[list[dict], dict[str, int]]:
+    """The lines of one tier the summary lists, and how many of each kind it leaves out: every
+    follow-up line; else at most SUMMARY_LINES_PER_KIND study lines and as many room lines, the
+    largest factors (value / threshold, median / reference) kept, in the usual order."""
+    if action == "patient_follow_up":
+        return lines, {}
+    keep: set[int] = set()
+    hidden: dict[str, int] = {}
+    for kind in ("study", "room"):
+        mine = [x for x in lines if x["kind"] == kind]
+        top = sorted(mine, key=lambda x: -(x.get("factor") or 0.0))[:SUMMARY_LINES_PER_KIND]
+        keep |= {id(x) for x in top}
+        if len(mine) > len(top):
+            hidden[kind] = len(mine) - len(top)
+    return [x for x in lines if id(x) in keep], hidden
+
+
 def _resolved_lines(resolved: list[dict], rooms: dict[str, tuple[str, str]]) -> list[dict]:
     out = []
     for f in sorted(resolved, key=lambda f: (action_rank(f["action"]), f["subject"] or "")):
@@ -211,6 +242,16 @@ def _skin_figures(cells: list[dict], study_key: str) -> list[dict]:
     return out
 
 
+def detailed_follow_up(inp: ReportInput) -> list[str]:
+    """Study keys the follow-up section shows in detail (alerts, events, skin-dose maps), in
+    order: the first FOLLOW_UP_DETAILED follow-up studies of the executive summary. The reader
+    fetches events and map cells for these only (`ReportInput.events`, ``.skin_maps``)."""
+    status, _ = change_status(inp.findings, inp.previous_findings, inp.notes, inp.previous_audited)
+    lines = [x for x in summary_lines(inp, status)
+             if x["action"] == "patient_follow_up" and x["kind"] == "study"]
+    return [x["study_key"] for x in lines[:FOLLOW_UP_DETAILED]]
+
+
 def report_content(inp: ReportInput) -> ReportContent:
     """The report's sections in reading order (page 1: the executive summary).
 
@@ -226,8 +267,12 @@ def report_content(inp: ReportInput) -> ReportContent:
     status, resolved = change_status(inp.findings, inp.previous_findings, inp.notes,
                                      inp.previous_audited)
     lines = summary_lines(inp, status)
-    tiers = [{"action": a, "words": ACTION_WORDS[a], "lines": [x for x in lines if x["action"] == a]}
-             for a in ACTION_TIERS]
+    tiers = []
+    for a in ACTION_TIERS:
+        mine = [x for x in lines if x["action"] == a]
+        shown, hidden = _shown_lines(a, mine)
+        tiers.append({"action": a, "words": ACTION_WORDS[a], "lines": shown, "n_lines": len(mine),
+                      "hidden": hidden})
     counts = {s: sum(1 for v in status.values() if v == s)
               for s in ("new", "persisting", "known", "not compared")}
     counts["resolved"] = len(resolved)
@@ -243,33 +288,53 @@ def report_content(inp: ReportInput) -> ReportContent:
                "threshold_text": format_value(a["threshold"], a["unit"], a["quantity"]),
                "status": status.get(a["item_id"], ""), "note": inp.notes.get(a["item_id"])}
               for a in inp.alerts]
+    by_study: dict[str, list[dict]] = {}
+    for a in alerts:
+        by_study.setdefault(a["study_key"], []).append(a)
+    follow_up_lines = [e for e in tiers[0]["lines"] if e["kind"] == "study"]
+    detailed = {e["study_key"] for e in follow_up_lines[:FOLLOW_UP_DETAILED]}
+    events: dict[str, list[dict]] = {}
+    for e in inp.events:
+        if e["study_key"] in detailed:
+            events.setdefault(e["study_key"], []).append(e)
+    maps = [c for c in inp.skin_maps if c["study_key"] in detailed]
     follow_up = []
-    for entry in tiers[0]["lines"]:
-        if entry["kind"] == "study":
-            follow_up.append({**entry, "alerts": [a for a in alerts
-                                                  if a["study_key"] == entry["study_key"]],
-                              "events": [e for e in inp.events
-                                         if e["study_key"] == entry["study_key"]],
-                              "figures": _skin_figures(inp.skin_maps, entry["study_key"])})
+    for entry in follow_up_lines[:FOLLOW_UP_DETAILED]:
+        mine = events.get(entry["study_key"], [])
+        follow_up.append({**entry, "alerts": by_study.get(entry["study_key"], []),
+                          "events": mine[:FOLLOW_UP_EVENTS], "n_events": len(mine),
+                          "figures": _skin_figures(maps, entry["study_key"])})
+    follow_up_more = follow_up_lines[FOLLOW_UP_DETAILED:]
     medians = [{**m, "status": status.get(m["item_id"], ""), "note": inp.notes.get(m["item_id"]),
                 "median_text": format_value(m["median"], m["unit"], m["quantity"]),
                 "reference_text": format_value(m["reference_value"], m["unit"], m["quantity"])}
                for m in inp.medians]
     drift = [{**d, "status": status.get(d["item_id"], ""), "note": inp.notes.get(d["item_id"])}
              for d in inp.drift]
+    n_alerts, n_medians, n_drift = len(alerts), len(medians), len(drift)
+    if n_drift > SECTION_ROWS:   # the largest changes, in the usual order (site, room, exam)
+        size = {id(d): max(d["ratio_after_to_before"], 1 / d["ratio_after_to_before"])
+                if d.get("ratio_after_to_before") else 0.0 for d in drift}
+        kept = {id(d) for d in sorted(drift, key=lambda d: -size[id(d)])[:SECTION_ROWS]}
+        drift = [d for d in drift if id(d) in kept]
     summary = {"tiers": tiers, "counts": counts, "previous_text": previous_text,
                "previous_audited": inp.previous_audited, "coverage": inp.coverage,
                "cautions": CAUTIONS, "resolved": _resolved_lines(resolved, inp.rooms),
-               "data_checks": inp.data_checks}
+               "data_checks": inp.data_checks, "where_all": WHERE_ALL}
     sections = [
         ReportSection("summary", "Executive summary", "summary.html", summary),
         ReportSection("follow_up", "Patients needing follow-up", "follow_up.html",
-                      {"studies": follow_up}, wide=True),
-        ReportSection("alerts", "Every individual-exam alert", "alerts.html", {"alerts": alerts},
-                      wide=True),
+                      {"studies": follow_up, "more": follow_up_more,
+                       "events_cap": FOLLOW_UP_EVENTS}, wide=True),
+        ReportSection("alerts", "Every individual-exam alert" if n_alerts <= SECTION_ROWS else
+                      f"Individual-exam alerts: the {SECTION_ROWS} most urgent of {n_alerts:,}",
+                      "alerts.html", {"alerts": alerts[:SECTION_ROWS], "n_total": n_alerts,
+                                      "where_all": WHERE_ALL}, wide=True),
         ReportSection("medians", "Room medians against reference levels", "medians.html",
-                      {"medians": medians}, wide=True),
-        ReportSection("drift", "Changes of room medians (drift)", "drift.html", {"drift": drift}),
+                      {"medians": medians[:SECTION_ROWS], "n_total": n_medians,
+                       "where_all": WHERE_ALL}, wide=True),
+        ReportSection("drift", "Changes of room medians (drift)", "drift.html",
+                      {"drift": drift, "n_total": n_drift, "where_all": WHERE_ALL}),
         ReportSection("resolved", f"Resolved since {previous_text}", "resolved.html", summary),
         ReportSection("references", "Reference sets and method", "references.html",
                       {"sets": inp.reference_sets, "version": inp.version}),

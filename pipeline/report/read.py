@@ -45,12 +45,16 @@ def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> R
     pipeline.errors.WarehouseError
         The warehouse has not been audited.
     """
-    from dashboards.site import _exam_types, read_site_data
+    import dataclasses
+
+    import pyarrow as pa
+
+    from dashboards.site import _exam_types
     from pipeline.audit import previous_period
 
     from ..errors import WarehouseError
+    from .content import detailed_follow_up
 
-    _, _, _, _, sets = read_site_data(con)
     last_audit = _rows(con, "report_last_audit")
     if not last_audit:
         raise WarehouseError("the warehouse has no audit of a period: run `kerma audit` first")
@@ -67,13 +71,22 @@ def read_report_input(con, *, generated_at: dt.datetime, version: str = "") -> R
         inp = ReportInput(
             period=label, date_from=first, date_to=last, previous_from=prev_first,
             previous_to=prev_last, previous_audited=bool(audited),
-            reference_sets=sets.to_dict("records"), findings=findings, previous_findings=previous,
+            reference_sets=_rows(con, "dash_reference_sets"), findings=findings,
+            previous_findings=previous,
             notes={n["item_id"]: n for n in _rows(con, "report_latest_notes")},
             alerts=_rows(con, "report_alerts"), medians=_rows(con, "report_flagged_medians"),
             drift=_rows(con, "report_drift"), coverage=_rows(con, "report_coverage"),
             rooms={r.device_key: (r.site_label, r.room_label) for r in devices.itertuples()},
-            generated_at=generated_at, version=version, events=_rows(con, "dash_alert_events"),
-            data_checks=_data_checks(con), skin_maps=_skin_maps(con))
+            generated_at=generated_at, version=version, data_checks=_data_checks(con))
+        # events and skin-dose map cells only of the studies shown in detail (a network's year
+        # may hold hundreds of follow-up studies with thousands of events and cells each)
+        con.register("report_detail_study",
+                     pa.table({"study_key": pa.array(detailed_follow_up(inp), pa.string())}))
+        try:
+            inp = dataclasses.replace(inp, events=_rows(con, "report_follow_up_events"),
+                                      skin_maps=_skin_maps(con))
+        finally:
+            con.unregister("report_detail_study")
     finally:
         con.unregister("dash_exam_type")
         con.unregister("dash_device")

@@ -6,7 +6,8 @@ select
     m.around_mm, m.along_mm, m.dose_mgy
 from skin_dose_map as m
 join skin_dose as k using (study_key, device_key)
-where exists (select 1 from dose_alerts as a
+where m.study_key in (select study_key from report_detail_study)
+  and exists (select 1 from dose_alerts as a
               where a.study_key = m.study_key and a.device_key = m.device_key
                 and a.family = 'peak_skin_dose')
 order by m.study_key, m.device_key, m.around_mm, m.along_mm
