@@ -1,0 +1,423 @@
+"""DICOM Part 10 bytes for the generator's objects, the bytes pydicom's writer gives (speed only).
+
+Two inputs:
+
+* a pydicom Dataset (image headers, dose screens, spoilt reports): ``encode(ds)``;
+* a dose report as its header Dataset plus its root content item as an ``sr.Item`` (plain
+  tuples, see sr.py): ``encode(ds, root)``. The content tree, thousands of elements per
+  report, is never made into Datasets: each element goes straight to bytes, and the bytes
+  of what repeats (code sequences, relationship and value types) are made once per process.
+
+What is written is what ``Dataset.save_as(enforce_file_format=True)`` writes for the same
+dataset (pydicom 3's filewriter): explicit VR little endian, elements in tag order, group
+lengths above group 6 skipped, sequences and items of defined length, text in the dataset's
+character set padded with a space, UIDs padded with NUL, numbers packed little endian.
+Anything else (raw elements, ambiguous VRs inside items, undefined lengths, values over
+64 KiB in a 16-bit length field, another transfer syntax) raises ``_NotHandled`` and the
+whole object goes through pydicom instead. Values of content items are validated as
+pydicom's DataElement validates them (``validate_value`` in the reading validation mode);
+tests/synthetic_studies/test_encoder.py checks the bytes against pydicom's ``dcmwrite``.
+"""
+
+from __future__ import annotations
+
+import copy
+import io
+import struct
+import warnings
+
+import numpy as np
+import pydicom.config
+from pydicom.charset import convert_encodings, default_encoding, encode_string
+from pydicom.dataelem import DataElement
+from pydicom.dataset import Dataset, validate_file_meta
+from pydicom.filebase import DicomBytesIO
+from pydicom.filewriter import correct_ambiguous_vr_element, write_file_meta_info
+from pydicom.multival import MultiValue
+from pydicom.uid import UID, ExplicitVRLittleEndian
+from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32, validate_value
+
+from .sr import CONSTANT_TAGS, Item, is_shared, to_dataset
+
+__all__ = ["encode"]
+
+
+def encode(ds: Dataset, root: Item | None = None) -> bytes:
+    """The Part 10 bytes of `ds` (with, if given, the elements of its root content item
+    `root` at the top level), exactly as pydicom's ``save_as(enforce_file_format=True)``
+    writes them."""
+    try:
+        return _fast_encode(ds, root)
+    except _NotHandled:
+        if root is not None:  # the Dataset generator.make_dataset gives
+            for elem in to_dataset(root):
+                ds[elem.tag] = elem
+        return _pydicom_encode(ds)
+
+
+def _pydicom_encode(ds) -> bytes:
+    buf = io.BytesIO()
+    ds.save_as(buf, enforce_file_format=True)
+    return buf.getvalue()
+
+
+# --- Datasets ----------------------------------------------------------------------------------
+
+class _NotHandled(Exception):
+    pass
+
+
+_LONG_VR = frozenset(str(vr) for vr in EXPLICIT_VR_LENGTH_32)
+_STRING_VR = frozenset({"AE", "AS", "CS", "UR", "DA", "DT", "TM"})
+_TEXT_VR = frozenset({"LO", "LT", "SH", "ST", "UC", "UT"})
+_NUMBER_STRING_VR = frozenset({"DS", "IS"})
+_PACKED_VR = {"FD": "d", "FL": "f", "US": "H", "UL": "L", "SS": "h", "SL": "l", "SV": "q",
+              "UV": "Q"}
+_BYTES_VR = frozenset({"OB", "OW", "OD", "OF", "OL", "OV", "UN"})
+_ITEM = struct.pack("<HHL", 0xFFFE, 0xE000, 0)[:4]
+
+
+def _fast_encode(ds: Dataset, root: Item | None) -> bytes:
+    meta = getattr(ds, "file_meta", None)
+    if meta is None or meta.get("TransferSyntaxUID") != ExplicitVRLittleEndian:
+        raise _NotHandled
+    if getattr(ds, "preamble", None) is not None or any(t >> 16 in (0, 2) for t in ds._dict):
+        raise _NotHandled
+    out = [_file_meta_bytes(ds, meta)]
+    if "PixelData" in ds:
+        ds["PixelData"].is_undefined_length = False
+    if root is None:
+        _encode_dataset(out, ds, [default_encoding], top=True)
+        return b"".join(out)
+    # the header's elements and the root item's, each encoded alone, then merged in tag order
+    elements = ds._dict
+    encodings = _dataset_encodings(elements, [default_encoding])
+    tagged = []
+    for tag in sorted(elements, key=int):
+        parts: list[bytes] = []
+        if _encode_top_element(parts, ds, tag, elements[tag], encodings):
+            tagged.append((int(tag), b"".join(parts)))
+    for key, value in root:
+        if key[0] in elements:
+            raise _NotHandled
+        tagged.append((int(key[0]), _item_element(key, value, encodings)))
+    tagged.sort(key=_first)
+    out += [data for _, data in tagged]
+    return b"".join(out)
+
+
+def _first(pair: tuple) -> int:
+    return pair[0]
+
+
+# The File Meta Information the generator writes (generator._file_meta): these elements only.
+_META_TAGS = {0x00020002: "UI", 0x00020003: "UI", 0x00020010: "UI", 0x00020012: "UI",
+              0x00020013: "SH"}
+_SOP_TAGS = {0x00020002: 0x00080016, 0x00020003: 0x00080018}  # Media Storage SOP <- SOP
+_META_START = b"\x00" * 128 + b"DICM" + struct.pack("<HH2sH", 2, 0, b"UL", 4)
+_META_VERSION = struct.pack("<HH2sHL", 2, 1, b"OB", 0, 2) + b"\x00\x01"
+
+
+def _file_meta_bytes(ds: Dataset, meta) -> bytes:
+    """Preamble, "DICM" and the File Meta Information group, as ``save_as`` writes them
+    (with the group length and version it adds); pydicom's writer for a meta with more or
+    other elements, or whose SOP class or instance the dataset's own replace."""
+    elements = meta._dict
+    if elements.keys() == _META_TAGS.keys():
+        parts = []
+        for tag, vr in _META_TAGS.items():
+            elem = elements[tag]
+            value = elem.value
+            own = ds._dict.get(_SOP_TAGS.get(tag))
+            if elem.is_raw or elem.VR != vr or type(value) not in (str, UID) or not value or (
+                    own is not None and own.value and own.value != value):
+                break
+            parts.append(_string_bytes((tag, vr), value, [default_encoding]))
+        else:
+            body = _META_VERSION + b"".join(parts)
+            return _META_START + struct.pack("<L", len(body)) + body
+    meta = copy.deepcopy(meta)
+    sop_class, sop_instance = ds.get("SOPClassUID"), ds.get("SOPInstanceUID")
+    if meta.get("MediaStorageSOPClassUID") is None or (
+            sop_class and sop_class != meta.MediaStorageSOPClassUID):
+        meta.MediaStorageSOPClassUID = sop_class
+    if meta.get("MediaStorageSOPInstanceUID") is None or (
+            sop_instance and sop_instance != meta.MediaStorageSOPInstanceUID):
+        meta.MediaStorageSOPInstanceUID = sop_instance
+    validate_file_meta(meta, enforce_standard=True)
+    head = DicomBytesIO()
+    head.is_little_endian, head.is_implicit_VR = True, False
+    head.write(b"\x00" * 128 + b"DICM")
+    write_file_meta_info(head, meta, enforce_standard=True)
+    return head.getvalue()
+
+
+_CHARSET_TAG = 0x00080005
+_CODE_ITEM_TAGS = (0x00080100, 0x00080102, 0x00080104)  # Code Value, Scheme, Code Meaning
+_ENCODINGS: dict[tuple, list[str]] = {}
+# The bytes of a code sequence item (Code Value, Coding Scheme Designator, Code Meaning, all
+# text) by its three values and character set: thousands of content items share a few
+# hundred codes, so each distinct one is encoded once per process.
+_CODE_ITEMS: dict[tuple, bytes] = {}
+
+
+def _encodings(charset) -> list[str]:
+    key = charset if isinstance(charset, str) else tuple(charset)
+    found = _ENCODINGS.get(key)
+    if found is None:
+        found = _ENCODINGS[key] = convert_encodings(charset)
+    return found
+
+
+def _dataset_encodings(elements: dict, parent_encodings: list[str]) -> list[str]:
+    charset = elements.get(_CHARSET_TAG)
+    if charset is not None and charset.is_raw:
+        raise _NotHandled
+    charset = charset.value if charset is not None else None
+    return _encodings(charset if charset is not None else parent_encodings)
+
+
+def _encode_dataset(out: list[bytes], ds, parent_encodings: list[str], top: bool = False) -> int:
+    """Append the encoded elements of `ds` to `out`; returns the number of bytes."""
+    elements = ds._dict
+    encodings = _dataset_encodings(elements, parent_encodings)
+    if len(elements) == 3 and not top:
+        items = [elements.get(t) for t in _CODE_ITEM_TAGS]
+        if all(type(e) is DataElement and type(e.value) is str for e in items):
+            key = (*((e.VR, e.value) for e in items), *encodings)
+            data = _CODE_ITEMS.get(key)
+            if data is None:
+                parts: list[bytes] = []
+                _encode_elements(parts, ds, elements, encodings, top)
+                data = b"".join(parts)
+                if len(_CODE_ITEMS) < 65_536:
+                    _CODE_ITEMS[key] = data
+            out.append(data)
+            return len(data)
+    return _encode_elements(out, ds, elements, encodings, top)
+
+
+def _encode_elements(out: list[bytes], ds, elements: dict, encodings: list[str],
+                     top: bool) -> int:
+    n = 0
+    for tag in sorted(elements, key=int):
+        if top:
+            n += _encode_top_element(out, ds, tag, elements[tag], encodings)
+            continue
+        elem = elements[tag]
+        if elem.is_raw or elem.VR in AMBIGUOUS_VR:
+            raise _NotHandled
+        n += _encode_element(out, elem, encodings)
+    return n
+
+
+def _encode_top_element(out: list[bytes], ds, tag, elem, encodings: list[str]) -> int:
+    """One element at the top level of `ds` (group lengths above group 6 are not written,
+    an ambiguous VR is resolved as pydicom resolves it); returns the number of bytes."""
+    if not tag & 0xFFFF and tag >> 16 > 6:
+        return 0
+    if elem.is_raw:
+        raise _NotHandled
+    if elem.VR in AMBIGUOUS_VR:
+        correct_ambiguous_vr_element(elem, ds, True)
+    return _encode_element(out, elem, encodings)
+
+
+def _encode_element(out: list[bytes], elem, encodings: list[str]) -> int:
+    vr = str(elem.VR)
+    tag = elem.tag
+    if elem.is_undefined_length or elem.is_buffered:
+        raise _NotHandled
+    if vr == "SQ":
+        header_at = len(out)
+        out.append(b"")
+        length = 0
+        for item in elem.value:
+            if getattr(item, "is_undefined_length_sequence_item", False):
+                raise _NotHandled
+            item_at = len(out)
+            out.append(b"")
+            size = _encode_dataset(out, item, encodings)
+            out[item_at] = _ITEM + struct.pack("<L", size)
+            length += 8 + size
+        out[header_at] = struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, b"SQ", 0, length)
+        return 12 + length
+    value = elem.value
+    empty = not value if type(value) is str else elem.is_empty  # a str: VM 0 when ""
+    value = b"" if empty else _value_bytes(elem, vr, encodings)
+    if vr in _LONG_VR:
+        out.append(struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, vr.encode(), 0, len(value)))
+        out.append(value)
+        return 12 + len(value)
+    if len(value) > 0xFFFF:
+        raise _NotHandled  # pydicom rewrites the VR as UN, with a warning
+    out.append(struct.pack("<HH2sH", tag >> 16, tag & 0xFFFF, vr.encode(), len(value)))
+    out.append(value)
+    return 8 + len(value)
+
+
+def _text(value: str, encodings: list[str]) -> bytes:
+    if len(encodings) == 1 and encodings[0] in ("latin_1", "iso8859"):
+        try:
+            return value.encode(encodings[0])
+        except UnicodeError:
+            pass
+    return encode_string(value, encodings)
+
+
+def _is_multi(value) -> bool:
+    return type(value) is not str and isinstance(value, (MultiValue, list, tuple, np.ndarray))
+
+
+def _value_bytes(elem, vr: str, encodings: list[str]) -> bytes:
+    value = elem.value
+    if vr in _STRING_VR or vr == "UI":
+        if vr in ("DA", "DT", "TM") and not isinstance(value, str):
+            raise _NotHandled
+        text = "\\".join(value) if _is_multi(value) else value
+        if len(text) % 2:
+            text += "\0" if vr == "UI" else " "
+        return text.encode(default_encoding) if isinstance(text, str) else text
+    if vr in _TEXT_VR:
+        if _is_multi(value):
+            if not isinstance(value[0], str):
+                raise _NotHandled
+            data = b"\\".join(_text(v, encodings) for v in value)
+        elif isinstance(value, str):
+            data = _text(value, encodings)
+        else:
+            raise _NotHandled
+        return data + b" " if len(data) % 2 else data
+    if vr in _NUMBER_STRING_VR:
+        if _is_multi(value):
+            text = "\\".join(x.original_string if hasattr(x, "original_string") else str(x)
+                              for x in value)
+        else:
+            text = value.original_string if hasattr(value, "original_string") else str(value)
+        if len(text) % 2:
+            text += " "
+        return bytes(text, default_encoding)
+    if vr == "PN":
+        values = [value] if elem.VM == 1 else value
+        data = b"\\".join(v.encode(encodings) for v in values)
+        return data + b" " if len(data) % 2 else data
+    fmt = _PACKED_VR.get(vr)
+    if fmt is not None:
+        if value is None or value == "":
+            return b""
+        if hasattr(value, "append"):
+            if vr == "SS":
+                raise _NotHandled  # LUT descriptor rule
+            return struct.pack(f"<{len(value)}{fmt}", *value)
+        return struct.pack("<" + fmt, value)
+    if vr in _BYTES_VR and isinstance(value, bytes):
+        return value + b"\x00" if len(value) % 2 else value
+    raise _NotHandled
+
+
+# --- content items (sr.Item tuples) -------------------------------------------------------------
+#
+# An element of an Item is ((tag, VR), value), the value a str or a list of Items. Its bytes
+# are those _encode_element writes for the DataElement sr.to_dataset makes of it.
+
+# (tag, VR) -> the fixed start of the element: tag, VR and, for a 32-bit length, 2 zero bytes
+_HEADS: dict[tuple, tuple[bytes, bool]] = {}
+# Per validation mode and character set: the bytes of elements whose few values repeat in every item (codes,
+# relationship and value types, and sequences of one shared code item, sr.is_shared).
+_REPEATS: dict[tuple, dict] = {}
+
+
+def _head(key: tuple) -> tuple[bytes, bool]:
+    found = _HEADS.get(key)
+    if found is None:
+        tag, vr = key
+        is_long = vr in _LONG_VR
+        found = _HEADS[key] = (struct.pack("<HH2s", tag >> 16, tag & 0xFFFF, vr.encode())
+                               + (b"\0\0" if is_long else b""), is_long)
+    return found
+
+
+def _item_element(key: tuple, value, encodings: list[str]) -> bytes:
+    """The bytes of one element of an Item (a top-level element of the root item too)."""
+    mode = pydicom.config.settings.reading_validation_mode
+    repeats = _REPEATS.get((mode, *encodings))
+    if repeats is None:
+        repeats = _REPEATS[(mode, *encodings)] = {}
+    return _element_bytes(key, value, encodings, repeats)
+
+
+def _element_bytes(key: tuple, value, encodings: list[str], repeats: dict) -> bytes:
+    if type(value) is list:
+        if len(value) == 1 and is_shared(value[0]):
+            return _repeated(key, value, encodings, repeats, (key, id(value[0])))
+        return _sequence_bytes(key, value, encodings, repeats)
+    if type(value) is not str:
+        raise _NotHandled
+    if key[0] in CONSTANT_TAGS:
+        return _repeated(key, value, encodings, repeats, (key, value))
+    return _string_bytes(key, value, encodings)
+
+
+def _repeated(key: tuple, value, encodings: list[str], repeats: dict, cache_key) -> bytes:
+    """An element made once and remembered, unless its validation warned (then every file
+    that holds it warns again, as pydicom would)."""
+    data = repeats.get(cache_key)
+    if data is None:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            data = _sequence_bytes(key, value, encodings, repeats) if type(value) is list \
+                else _string_bytes(key, value, encodings)
+        for w in caught:  # hand them on, in order
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        if not caught and len(repeats) < 65_536:
+            repeats[cache_key] = data
+    return data
+
+
+def _sequence_bytes(key: tuple, items: list, encodings: list[str], repeats: dict) -> bytes:
+    parts = []
+    for node in items:
+        if type(node) is not tuple:  # a Dataset in a public sr.*_item tree
+            raise _NotHandled
+        body = _item_bytes(node, encodings, repeats)
+        parts.append(_ITEM + struct.pack("<L", len(body)))
+        parts.append(body)
+    data = b"".join(parts)
+    return _head(key)[0] + struct.pack("<L", len(data)) + data
+
+
+def _item_bytes(node: Item, encodings: list[str], repeats: dict) -> bytes:
+    parts = []
+    last = -1
+    for key, value in node:
+        tag = key[0]
+        if tag <= last or tag == _CHARSET_TAG:  # pydicom would sort; own charset: rare
+            raise _NotHandled
+        last = tag
+        parts.append(_element_bytes(key, value, encodings, repeats))
+    return b"".join(parts)
+
+
+def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
+    """A text, code string, UID, date-time or decimal string element, validated as
+    DataElement validates it."""
+    tag, vr = key
+    validate_value(vr, value, pydicom.config.settings.reading_validation_mode)
+    if not value:
+        data = b""
+    elif vr in _TEXT_VR:
+        data = _text(value, encodings)
+        if len(data) % 2:
+            data += b" "
+    elif vr in _STRING_VR or vr in _NUMBER_STRING_VR or vr == "UI":
+        data = value.encode(default_encoding)
+        if len(data) % 2:
+            data += b"\0" if vr == "UI" else b" "
+    else:
+        raise _NotHandled
+    head, is_long = _head(key)
+    if is_long:
+        return head + struct.pack("<L", len(data)) + data
+    if len(data) > 0xFFFF:
+        raise _NotHandled
+    return head + struct.pack("<H", len(data)) + data
