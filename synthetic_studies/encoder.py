@@ -24,7 +24,6 @@ from __future__ import annotations
 import copy
 import io
 import struct
-import warnings
 
 import numpy as np
 import pydicom.config
@@ -35,9 +34,9 @@ from pydicom.filebase import DicomBytesIO
 from pydicom.filewriter import correct_ambiguous_vr_element, write_file_meta_info
 from pydicom.multival import MultiValue
 from pydicom.uid import UID, ExplicitVRLittleEndian
-from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32, validate_value
+from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32, VALIDATORS, validate_value
 
-from .sr import CONSTANT_TAGS, Item, is_shared, to_dataset
+from .sr import CONSTANT_TAGS, Item, to_dataset
 
 __all__ = ["encode"]
 
@@ -317,14 +316,22 @@ def _value_bytes(elem, vr: str, encodings: list[str]) -> bytes:
 
 # --- content items (sr.Item tuples) -------------------------------------------------------------
 #
-# An element of an Item is ((tag, VR), value), the value a str or a list of Items. Its bytes
-# are those _encode_element writes for the DataElement sr.to_dataset makes of it.
+# An element of an Item is ((tag, VR), value), the value a str or a tuple of Items (a
+# sequence). Its bytes are those _encode_element writes for the DataElement sr.to_dataset
+# makes of it. What repeats is encoded once per validation mode and character set and
+# remembered: elements of the tags whose values repeat (codes, relationship and value types)
+# and whole items without content children (code items, and NUM, TEXT ... items whose value
+# recurs). Nothing that holds an invalid value is remembered, so each file that holds one
+# warns again, as pydicom would.
 
+_U16, _U32 = struct.Struct("<H").pack, struct.Struct("<L").pack
+_CONTENT_TAG = 0x0040A730
+_MEMO_LIMIT = 65_536  # entries per table; a full table starts again
+# (validation mode, *encodings) -> (element bytes by (key, value), item bytes by Item)
+_MEMOS: dict[tuple, tuple[dict, dict]] = {}
 # (tag, VR) -> the fixed start of the element: tag, VR and, for a 32-bit length, 2 zero bytes
 _HEADS: dict[tuple, tuple[bytes, bool]] = {}
-# Per validation mode and character set: the bytes of elements whose few values repeat in every item (codes,
-# relationship and value types, and sequences of one shared code item, sr.is_shared).
-_REPEATS: dict[tuple, dict] = {}
+_INVALID = [0]  # values found invalid so far in this process
 
 
 def _head(key: tuple) -> tuple[bytes, bool]:
@@ -340,53 +347,54 @@ def _head(key: tuple) -> tuple[bytes, bool]:
 def _item_element(key: tuple, value, encodings: list[str]) -> bytes:
     """The bytes of one element of an Item (a top-level element of the root item too)."""
     mode = pydicom.config.settings.reading_validation_mode
-    repeats = _REPEATS.get((mode, *encodings))
-    if repeats is None:
-        repeats = _REPEATS[(mode, *encodings)] = {}
-    return _element_bytes(key, value, encodings, repeats)
+    memo = _MEMOS.get((mode, *encodings))
+    if memo is None:
+        memo = _MEMOS[(mode, *encodings)] = ({}, {})
+    return _element_bytes(key, value, encodings, memo)
 
 
-def _element_bytes(key: tuple, value, encodings: list[str], repeats: dict) -> bytes:
-    if type(value) is list:
-        if len(value) == 1 and is_shared(value[0]):
-            return _repeated(key, value, encodings, repeats, (key, id(value[0])))
-        return _sequence_bytes(key, value, encodings, repeats)
+def _remember(table: dict, key, data: bytes) -> None:
+    if len(table) >= _MEMO_LIMIT:
+        table.clear()
+    table[key] = data
+
+
+def _element_bytes(key: tuple, value, encodings: list[str], memo: tuple[dict, dict]) -> bytes:
+    if type(value) is tuple:
+        return _sequence_bytes(key, value, encodings, memo)
     if type(value) is not str:
         raise _NotHandled
-    if key[0] in CONSTANT_TAGS:
-        return _repeated(key, value, encodings, repeats, (key, value))
-    return _string_bytes(key, value, encodings)
-
-
-def _repeated(key: tuple, value, encodings: list[str], repeats: dict, cache_key) -> bytes:
-    """An element made once and remembered, unless its validation warned (then every file
-    that holds it warns again, as pydicom would)."""
-    data = repeats.get(cache_key)
+    if key[0] not in CONSTANT_TAGS:
+        return _string_bytes(key, value, encodings)
+    data = memo[0].get((key, value))
     if data is None:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            data = _sequence_bytes(key, value, encodings, repeats) if type(value) is list \
-                else _string_bytes(key, value, encodings)
-        for w in caught:  # hand them on, in order
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-        if not caught and len(repeats) < 65_536:
-            repeats[cache_key] = data
+        invalid = _INVALID[0]
+        data = _string_bytes(key, value, encodings)
+        if _INVALID[0] == invalid:
+            _remember(memo[0], (key, value), data)
     return data
 
 
-def _sequence_bytes(key: tuple, items: list, encodings: list[str], repeats: dict) -> bytes:
+def _sequence_bytes(key: tuple, items: tuple, encodings: list[str],
+                    memo: tuple[dict, dict]) -> bytes:
     parts = []
     for node in items:
         if type(node) is not tuple:  # a Dataset in a public sr.*_item tree
             raise _NotHandled
-        body = _item_bytes(node, encodings, repeats)
-        parts.append(_ITEM + struct.pack("<L", len(body)))
+        body = _item_bytes(node, encodings, memo)
+        parts.append(_ITEM + _U32(len(body)))
         parts.append(body)
     data = b"".join(parts)
-    return _head(key)[0] + struct.pack("<L", len(data)) + data
+    return _head(key)[0] + _U32(len(data)) + data
 
 
-def _item_bytes(node: Item, encodings: list[str], repeats: dict) -> bytes:
+def _item_bytes(node: Item, encodings: list[str], memo: tuple[dict, dict]) -> bytes:
+    leaf = node[-1][0][0] != _CONTENT_TAG
+    if leaf:
+        data = memo[1].get(node)
+        if data is not None:
+            return data
+        invalid = _INVALID[0]
     parts = []
     last = -1
     for key, value in node:
@@ -394,15 +402,21 @@ def _item_bytes(node: Item, encodings: list[str], repeats: dict) -> bytes:
         if tag <= last or tag == _CHARSET_TAG:  # pydicom would sort; own charset: rare
             raise _NotHandled
         last = tag
-        parts.append(_element_bytes(key, value, encodings, repeats))
-    return b"".join(parts)
+        parts.append(_element_bytes(key, value, encodings, memo))
+    data = b"".join(parts)
+    if leaf and _INVALID[0] == invalid:
+        _remember(memo[1], node, data)
+    return data
 
 
 def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
-    """A text, code string, UID, date-time or decimal string element, validated as
-    DataElement validates it."""
+    """A text, code string, UID, date-time or decimal string element, its value validated
+    as DataElement validates it (the same validator; pydicom warns or raises if invalid)."""
     tag, vr = key
-    validate_value(vr, value, pydicom.config.settings.reading_validation_mode)
+    validator = VALIDATORS.get(vr)
+    if validator is not None and not validator(vr, value)[0]:
+        _INVALID[0] += 1
+        validate_value(vr, value, pydicom.config.settings.reading_validation_mode)
     if not value:
         data = b""
     elif vr in _TEXT_VR:
@@ -417,7 +431,7 @@ def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
         raise _NotHandled
     head, is_long = _head(key)
     if is_long:
-        return head + struct.pack("<L", len(data)) + data
+        return head + _U32(len(data)) + data
     if len(data) > 0xFFFF:
         raise _NotHandled
-    return head + struct.pack("<H", len(data)) + data
+    return head + _U16(len(data)) + data

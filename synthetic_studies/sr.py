@@ -20,6 +20,7 @@ from pydicom.sequence import Sequence
 from pydicom.sr.coding import Code
 
 __all__ = [
+    "CONSTANT_TAGS",
     "Item",
     "code_item",
     "code_node",
@@ -138,21 +139,14 @@ def _new_element(tag, vr: str, value) -> DataElement:
 #
 # An ``Item`` is a content item (or any sequence item) before it becomes a Dataset: its
 # elements in tag order as ((tag, VR), value) pairs, a value being a str or, for a sequence,
-# a list of Items. The generator builds its trees from these; ``to_dataset`` makes the
+# a tuple of Items. The generator builds its trees from these; ``to_dataset`` makes the
 # pydicom Dataset (what the public *_item functions return) and encoder.py writes the same
-# bytes straight from the tuples. Code items are made once per distinct code and shared
-# (tuples cannot change).
+# bytes straight from the tuples (hashable: it remembers the bytes of items that repeat).
+# Code items are made once per distinct code and shared.
 
-Item = tuple  # tuple[tuple[tuple[int, str], str | list[Item]], ...]
+Item = tuple  # tuple[tuple[tuple[int, str], str | tuple[Item, ...]], ...]
 
 _CODE_NODES: dict[tuple[str, str, str], Item] = {}
-_SHARED: set[int] = set()  # ids of the kept code Items (alive as long as the process)
-
-
-def is_shared(node) -> bool:
-    """Whether `node` is a code Item kept for every use of its code (encoder.py remembers
-    the bytes of a sequence holding only it)."""
-    return id(node) in _SHARED
 
 
 def code_sequence_node(code: Code | tuple[str, str, str]) -> Item:
@@ -164,36 +158,35 @@ def code_sequence_node(code: Code | tuple[str, str, str]) -> Item:
         node = ((_CODE_VALUE, key[0]), (_SCHEME, key[1]), (_MEANING, key[2]))
         if len(_CODE_NODES) < 65_536:
             _CODE_NODES[key] = node
-            _SHARED.add(id(node))
     return node
 
 
 def _item_node(relationship: str | None, value_type: str, concept: Code, *more) -> Item:
     """A content item: Relationship Type (unless None), Value Type, Concept Name, `more`
     (elements whose tags follow (0040,A043), in tag order)."""
-    name = ((_VALUE_TYPE, value_type), (_CONCEPT_NAME, [code_sequence_node(concept)]))
+    name = ((_VALUE_TYPE, value_type), (_CONCEPT_NAME, (code_sequence_node(concept),)))
     if relationship is not None:
         return ((_RELATIONSHIP, relationship), *name, *more)
     return (*name, *more)
 
 
 def _children_node(children: list[Item] | None) -> tuple:
-    return ((_CONTENT, children),) if children else ()
+    return ((_CONTENT, tuple(children)),) if children else ()
 
 
 def container_node(concept: Code, children: list[Item], relationship: str | None = CONTAINS,
                    template: str | None = None) -> Item:
     more = [(_CONTINUITY, "SEPARATE")]
     if template is not None:
-        more.append((_TEMPLATE, [((_MAPPING, "DCMR"), (_TEMPLATE_ID, template))]))
-    more.append((_CONTENT, children))
+        more.append((_TEMPLATE, (((_MAPPING, "DCMR"), (_TEMPLATE_ID, template)),)))
+    more.append((_CONTENT, tuple(children)))
     return _item_node(relationship, "CONTAINER", concept, *more)
 
 
 def code_node(concept: Code, value: Code | tuple[str, str, str], relationship: str = CONTAINS,
               children: list[Item] | None = None) -> Item:
     return _item_node(relationship, "CODE", concept,
-                      (_CONCEPT_CODE, [code_sequence_node(value)]), *_children_node(children))
+                      (_CONCEPT_CODE, (code_sequence_node(value),)), *_children_node(children))
 
 
 def num_node(concept: Code, value: float, unit: Code | None, relationship: str = CONTAINS,
@@ -202,8 +195,8 @@ def num_node(concept: Code, value: float, unit: Code | None, relationship: str =
     number = (_NUMERIC_VALUE, format_ds(value))
     # (0040,08EA) Measurement Units Code Sequence comes before (0040,A30A) Numeric Value
     measured = (number,) if unit is None else \
-        ((_UNITS, [code_sequence_node(unit)]), number)
-    return _item_node(relationship, "NUM", concept, (_MEASURED, [measured]),
+        ((_UNITS, (code_sequence_node(unit),)), number)
+    return _item_node(relationship, "NUM", concept, (_MEASURED, (measured,)),
                       *_children_node(children))
 
 
@@ -224,7 +217,7 @@ def to_dataset(node: Item) -> Dataset:
     may also hold Datasets already made: the public *_item functions take those)."""
     return _dataset(*(((key, Sequence([n if isinstance(n, Dataset) else to_dataset(n)
                                         for n in value]))
-                       if type(value) is list else (key, value)) for key, value in node))
+                       if type(value) is tuple else (key, value)) for key, value in node))
 
 
 # --- the same items as pydicom Datasets -------------------------------------------------------

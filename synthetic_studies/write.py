@@ -20,7 +20,8 @@ from __future__ import annotations
 
 import multiprocessing
 import os
-from concurrent.futures import ProcessPoolExecutor
+import threading
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -268,6 +269,60 @@ def _write_chunk(args) -> tuple[list[dict], list[dict]]:
     return files, studies
 
 
+def _run_jobs(jobs: list[tuple], workers: int) -> list:
+    """`_write_chunk` of every job on `workers` processes, this one among them; results in
+    job order.
+
+    This process has imported everything already, a spawned helper takes about half a second
+    to start: so it works through the jobs itself while `workers - 1` helpers start, each
+    handed its next job by a feeder thread as soon as it returns the last one. Jobs are
+    taken in order from one shared counter, so none is done twice and the output is the
+    same whichever process wrote which study.
+    """
+    if workers == 1 or len(jobs) == 1:
+        return [_write_chunk(job) for job in jobs]
+    results: list = [None] * len(jobs)
+    order = iter(range(len(jobs)))
+    lock = threading.Lock()
+    failed: list[BaseException] = []
+
+    def take() -> int | None:
+        with lock:
+            return None if failed else next(order, None)
+
+    def feed(pool: ProcessPoolExecutor) -> None:
+        try:
+            running: dict = {}
+            while True:
+                while len(running) < workers - 1 and (i := take()) is not None:
+                    running[pool.submit(_write_chunk, jobs[i])] = i
+                if not running:
+                    return
+                done, _ = wait(running, return_when=FIRST_COMPLETED)
+                for future in done:
+                    results[running.pop(future)] = future.result()
+        except BaseException as error:  # handed on to the caller
+            failed.append(error)
+
+    # "spawn", not the Linux default "fork": a forked child inherits the caller's native
+    # library state (e.g. an open DuckDB connection and its threads) and can crash on it.
+    # Helpers need nothing from this process but their picklable job tuple.
+    with ProcessPoolExecutor(max_workers=workers - 1,
+                             mp_context=multiprocessing.get_context("spawn")) as pool:
+        feeder = threading.Thread(target=feed, args=(pool,), name="corpus-feeder")
+        feeder.start()
+        try:
+            while (i := take()) is not None:
+                results[i] = _write_chunk(jobs[i])
+        except BaseException as error:
+            failed.append(error)
+        finally:
+            feeder.join()
+    if failed:
+        raise failed[0]
+    return results
+
+
 def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studies: int = 2000,
                  scenario_path: Path | str | None = None, workers: int | None = None) -> CorpusSummary:
     """Generate the corpus and its manifest under `out_dir`.
@@ -277,7 +332,7 @@ def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studi
     out_dir : folder to write (created; existing files with the same names are replaced)
     seed, months, n_studies : what to draw; the same values give byte-identical output
     scenario_path : a scenario TOML file; default the bundled demo network
-    workers : processes to use (default: CPU count, at most 8)
+    workers : processes to use, this one included (default: CPU count, at most 8)
     """
     if n_studies < 1 or months < 1:
         raise ValueError("need at least one study and one month")
@@ -289,16 +344,8 @@ def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studi
     chunk = max(25, n_studies // (workers * 8) or 1)
     jobs = [(scenario_path, seed, list(range(i, min(i + chunk, n_studies))), n_studies, months,
              plan, root) for i in range(0, n_studies, chunk)]
+    results = _run_jobs(jobs, workers)
     files, studies = [], []
-    if workers == 1 or len(jobs) == 1:
-        results = list(map(_write_chunk, jobs))
-    else:
-        # "spawn", not the Linux default "fork": a forked child inherits the caller's native
-        # library state (e.g. an open DuckDB connection and its threads) and can crash on it.
-        # Workers need nothing from the parent but their picklable job tuple.
-        with ProcessPoolExecutor(max_workers=workers,
-                                 mp_context=multiprocessing.get_context("spawn")) as pool:
-            results = list(pool.map(_write_chunk, jobs))
     for f, s in results:
         files += f
         studies += s
