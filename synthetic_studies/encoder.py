@@ -29,29 +29,63 @@ import numpy as np
 import pydicom.config
 from pydicom.charset import convert_encodings, default_encoding, encode_string
 from pydicom.dataelem import DataElement
-from pydicom.dataset import Dataset, validate_file_meta
+from pydicom.datadict import dictionary_VR, tag_for_keyword
+from pydicom.dataset import Dataset, FileMetaDataset, validate_file_meta
 from pydicom.filebase import DicomBytesIO
 from pydicom.filewriter import correct_ambiguous_vr_element, write_file_meta_info
 from pydicom.multival import MultiValue
+from pydicom.sequence import Sequence
 from pydicom.uid import UID, ExplicitVRLittleEndian
 from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32, VALIDATORS, validate_value
 
 from .sr import CONSTANT_TAGS, Item, to_dataset
 
-__all__ = ["encode"]
+__all__ = ["Header", "encode"]
 
 
-def encode(ds: Dataset, root: Item | None = None) -> bytes:
+class Header(dict):
+    """The top-level elements of a dataset by keyword, assigned as on a Dataset
+    (``h.PatientID = "P1"``), in order; ``h.file_meta`` a Header of the File Meta
+    Information's. ``dataset()`` makes the Dataset the same assignments make; ``encode``
+    writes its bytes without making one."""
+
+    def __setattr__(self, keyword: str, value) -> None:
+        self[keyword] = value
+
+    def __getattr__(self, keyword: str):
+        try:
+            return self[keyword]
+        except KeyError:
+            raise AttributeError(keyword) from None
+
+    def dataset(self, cls: type[Dataset] = Dataset) -> Dataset:
+        ds = cls()
+        for keyword, value in self.items():
+            if keyword == "file_meta":
+                ds.file_meta = value.dataset(FileMetaDataset)
+            else:
+                setattr(ds, keyword, value)
+        return ds
+
+
+def encode(ds: Dataset | Header, root: Item | None = None) -> bytes:
     """The Part 10 bytes of `ds` (with, if given, the elements of its root content item
     `root` at the top level), exactly as pydicom's ``save_as(enforce_file_format=True)``
     writes them."""
     try:
-        return _fast_encode(ds, root)
+        if isinstance(ds, Header):
+            return _encode_header(ds, root)
+        if root is None:
+            return _fast_encode(ds)
     except _NotHandled:
-        if root is not None:  # the Dataset generator.make_dataset gives
-            for elem in to_dataset(root):
-                ds[elem.tag] = elem
-        return _pydicom_encode(ds)
+        pass
+    if isinstance(ds, Header):
+        ds = ds.dataset()
+    if root is not None:
+        for elem in to_dataset(root):
+            ds[elem.tag] = elem
+        return encode(ds)
+    return _pydicom_encode(ds)
 
 
 def _pydicom_encode(ds) -> bytes:
@@ -76,7 +110,7 @@ _BYTES_VR = frozenset({"OB", "OW", "OD", "OF", "OL", "OV", "UN"})
 _ITEM = struct.pack("<HHL", 0xFFFE, 0xE000, 0)[:4]
 
 
-def _fast_encode(ds: Dataset, root: Item | None) -> bytes:
+def _fast_encode(ds: Dataset) -> bytes:
     meta = getattr(ds, "file_meta", None)
     if meta is None or meta.get("TransferSyntaxUID") != ExplicitVRLittleEndian:
         raise _NotHandled
@@ -85,28 +119,8 @@ def _fast_encode(ds: Dataset, root: Item | None) -> bytes:
     out = [_file_meta_bytes(ds, meta)]
     if "PixelData" in ds:
         ds["PixelData"].is_undefined_length = False
-    if root is None:
-        _encode_dataset(out, ds, [default_encoding], top=True)
-        return b"".join(out)
-    # the header's elements and the root item's, each encoded alone, then merged in tag order
-    elements = ds._dict
-    encodings = _dataset_encodings(elements, [default_encoding])
-    tagged = []
-    for tag in sorted(elements, key=int):
-        parts: list[bytes] = []
-        if _encode_top_element(parts, ds, tag, elements[tag], encodings):
-            tagged.append((int(tag), b"".join(parts)))
-    for key, value in root:
-        if key[0] in elements:
-            raise _NotHandled
-        tagged.append((int(key[0]), _item_element(key, value, encodings)))
-    tagged.sort(key=_first)
-    out += [data for _, data in tagged]
+    _encode_dataset(out, ds, [default_encoding], top=True)
     return b"".join(out)
-
-
-def _first(pair: tuple) -> int:
-    return pair[0]
 
 
 # The File Meta Information the generator writes (generator._file_meta): these elements only.
@@ -117,24 +131,33 @@ _META_START = b"\x00" * 128 + b"DICM" + struct.pack("<HH2sH", 2, 0, b"UL", 4)
 _META_VERSION = struct.pack("<HH2sHL", 2, 1, b"OB", 0, 2) + b"\x00\x01"
 
 
+def _meta_bytes(values: dict[int, object], own: dict[int, object]) -> bytes | None:
+    """Preamble, "DICM" and the File Meta Information group from its values by tag, as
+    ``save_as`` writes them (with the group length and version it adds); None unless the
+    values are those of _META_TAGS, all text, and the dataset's own SOP class and
+    instance UIDs (`own`, by tag) do not replace them."""
+    if values.keys() != _META_TAGS.keys():
+        return None
+    parts = []
+    for tag, vr in _META_TAGS.items():
+        value = values[tag]
+        mine = own.get(_SOP_TAGS.get(tag))
+        if type(value) not in (str, UID) or not value or (mine and mine != value):
+            return None
+        parts.append(_string_bytes((tag, vr), value, [default_encoding]))
+    body = _META_VERSION + b"".join(parts)
+    return _META_START + _U32(len(body)) + body
+
+
 def _file_meta_bytes(ds: Dataset, meta) -> bytes:
-    """Preamble, "DICM" and the File Meta Information group, as ``save_as`` writes them
-    (with the group length and version it adds); pydicom's writer for a meta with more or
-    other elements, or whose SOP class or instance the dataset's own replace."""
+    """The file meta of a Dataset: _meta_bytes if it can, else pydicom's writer."""
     elements = meta._dict
-    if elements.keys() == _META_TAGS.keys():
-        parts = []
-        for tag, vr in _META_TAGS.items():
-            elem = elements[tag]
-            value = elem.value
-            own = ds._dict.get(_SOP_TAGS.get(tag))
-            if elem.is_raw or elem.VR != vr or type(value) not in (str, UID) or not value or (
-                    own is not None and own.value and own.value != value):
-                break
-            parts.append(_string_bytes((tag, vr), value, [default_encoding]))
-        else:
-            body = _META_VERSION + b"".join(parts)
-            return _META_START + struct.pack("<L", len(body)) + body
+    if all(not e.is_raw and e.VR == _META_TAGS.get(t) for t, e in elements.items()):
+        own = {t: e.value for t, e in ((t, ds._dict.get(t)) for t in _SOP_TAGS.values())
+               if e is not None}
+        data = _meta_bytes({t: e.value for t, e in elements.items()}, own)
+        if data is not None:
+            return data
     meta = copy.deepcopy(meta)
     sop_class, sop_instance = ds.get("SOPClassUID"), ds.get("SOPInstanceUID")
     if meta.get("MediaStorageSOPClassUID") is None or (
@@ -344,15 +367,6 @@ def _head(key: tuple) -> tuple[bytes, bool]:
     return found
 
 
-def _item_element(key: tuple, value, encodings: list[str]) -> bytes:
-    """The bytes of one element of an Item (a top-level element of the root item too)."""
-    mode = pydicom.config.settings.reading_validation_mode
-    memo = _MEMOS.get((mode, *encodings))
-    if memo is None:
-        memo = _MEMOS[(mode, *encodings)] = ({}, {})
-    return _element_bytes(key, value, encodings, memo)
-
-
 def _remember(table: dict, key, data: bytes) -> None:
     if len(table) >= _MEMO_LIMIT:
         table.clear()
@@ -423,6 +437,10 @@ def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
         data = _text(value, encodings)
         if len(data) % 2:
             data += b" "
+    elif vr == "PN" and "=" not in value:  # one component group: its text
+        data = _text(value, encodings)
+        if len(data) % 2:
+            data += b" "
     elif vr in _STRING_VR or vr in _NUMBER_STRING_VR or vr == "UI":
         data = value.encode(default_encoding)
         if len(data) % 2:
@@ -435,3 +453,64 @@ def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
     if len(data) > 0xFFFF:
         raise _NotHandled
     return head + _U16(len(data)) + data
+
+
+# --- Headers --------------------------------------------------------------------------------------
+
+_KEYS: dict[str, tuple[int, str]] = {}  # keyword -> (tag, VR)
+
+
+def _key(keyword: str) -> tuple[int, str]:
+    found = _KEYS.get(keyword)
+    if found is None:
+        tag = tag_for_keyword(keyword)
+        if tag is None:
+            raise _NotHandled
+        found = _KEYS[keyword] = (tag, dictionary_VR(tag))
+    return found
+
+
+def _encode_header(header: Header, root: Item | None) -> bytes:
+    """A Header's bytes (and its root content item's): the meta, then every element in tag
+    order. Text, code strings, UIDs, dates and times, decimal and integer strings (an int
+    for IS), person names of one component group and empty sequences; anything else is
+    left to pydicom."""
+    meta = header.get("file_meta")
+    charset = header.get("SpecificCharacterSet")
+    if not isinstance(meta, Header) or type(charset) is not str:
+        raise _NotHandled
+    meta_values = {_key(k)[0]: v for k, v in meta.items()}
+    if meta_values.get(0x00020010) != ExplicitVRLittleEndian:
+        raise _NotHandled
+    keyed = [(_key(k), v) for k, v in header.items() if k != "file_meta"]
+    own = {key[0]: value for key, value in keyed if key[0] in (0x00080016, 0x00080018)}
+    head = _meta_bytes(meta_values, own)
+    if head is None:
+        raise _NotHandled
+    if root is not None:
+        keyed += root
+    keyed.sort(key=_tag_of)
+    encodings = _encodings(charset)
+    mode = pydicom.config.settings.reading_validation_mode
+    memo = _MEMOS.get((mode, *encodings))
+    if memo is None:
+        memo = _MEMOS[(mode, *encodings)] = ({}, {})
+    out = [head]
+    last = -1
+    for key, value in keyed:
+        tag, vr = key
+        if tag == last or tag >> 16 in (0, 2) or vr in AMBIGUOUS_VR:
+            raise _NotHandled
+        last = tag
+        if type(value) is UID:
+            value = str(value)
+        elif type(value) is int and vr == "IS":
+            value = str(value)
+        elif isinstance(value, Sequence) and not value and vr == "SQ":
+            value = ()
+        out.append(_element_bytes(key, value, encodings, memo))
+    return b"".join(out)
+
+
+def _tag_of(pair: tuple) -> int:
+    return pair[0][0]

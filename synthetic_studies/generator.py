@@ -17,12 +17,13 @@ from __future__ import annotations
 
 import datetime as dt
 
-from pydicom.dataset import Dataset, FileMetaDataset
+from pydicom.dataset import Dataset
 from pydicom.sequence import Sequence
 from pydicom.uid import ExplicitVRLittleEndian, UID
 
 from pipeline import concepts as C
 
+from .encoder import Header
 from .sampling import device_observer_uid, uid
 from .scenario import DeviceSpec, Scenario
 from .specs import CtEvent, ProjectionEvent, ReportSpec, StudySpec
@@ -93,8 +94,8 @@ _SIDE = {"L": C.LEFT, "R": C.RIGHT}
 
 # --- header modules -------------------------------------------------------------------------
 
-def _file_meta(sop_class: UID, sop_instance: str) -> FileMetaDataset:
-    meta = FileMetaDataset()
+def _file_meta(sop_class: UID, sop_instance: str) -> Header:
+    meta = Header()
     meta.MediaStorageSOPClassUID = sop_class
     meta.MediaStorageSOPInstanceUID = sop_instance
     meta.TransferSyntaxUID = ExplicitVRLittleEndian
@@ -122,10 +123,11 @@ def _age_string(age_years: float) -> str:
 
 
 def _base(scenario: Scenario, spec: StudySpec, report: ReportSpec, sop_class: UID,
-          modality: str, series_number: int) -> Dataset:
+          modality: str, series_number: int) -> Header:
+    """The header modules every object has, as a Header (``.dataset()`` makes the Dataset)."""
     device = scenario.device(spec.device)
     site = scenario.sites[device.site]
-    ds = Dataset()
+    ds = Header()
     ds.file_meta = _file_meta(sop_class, report.sop_instance_uid)
     ds.SpecificCharacterSet = "ISO_IR 100"
     ds.InstanceCreationDate = _da(report.content_time.date())
@@ -168,7 +170,7 @@ def _base(scenario: Scenario, spec: StudySpec, report: ReportSpec, sop_class: UI
     return ds
 
 
-def _sr_document(ds: Dataset, device: DeviceSpec) -> None:
+def _sr_document(ds: Header, device: DeviceSpec) -> None:
     """SR Document Series and General modules' remaining attributes (PS3.3 C.17.1, C.17.2)."""
     ds.ReferencedPerformedProcedureStepSequence = Sequence()
     ds.CompletionFlag = "COMPLETE"
@@ -256,10 +258,11 @@ def _ct_event(e: CtEvent) -> Item:
 
 def make_ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
     """X-Ray Radiation Dose SR with root TID 10011 for the first `report.n_events` events."""
-    return _with_content(*_ct_rdsr(scenario, spec, report))
+    header, root = _ct_rdsr(scenario, spec, report)
+    return _with_content(header.dataset(), root)
 
 
-def _ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> tuple[Dataset, Item]:
+def _ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> tuple[Header, Item]:
     device = scenario.device(spec.device)
     ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
     ds.SeriesDescription = "Radiation Dose Information"
@@ -439,11 +442,12 @@ def _accumulated(plane: str, events: list[ProjectionEvent], modality: str, rp_de
 def make_projection_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
     """X-Ray Radiation Dose SR with root TID 10001 (projection radiography, fluoroscopy,
     interventional or mammography) for the first `report.n_events` events."""
-    return _with_content(*_projection_rdsr(scenario, spec, report))
+    header, root = _projection_rdsr(scenario, spec, report)
+    return _with_content(header.dataset(), root)
 
 
 def _projection_rdsr(scenario: Scenario, spec: StudySpec,
-                     report: ReportSpec) -> tuple[Dataset, Item]:
+                     report: ReportSpec) -> tuple[Header, Item]:
     device = scenario.device(spec.device)
     modality = device.modality
     ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
@@ -485,7 +489,7 @@ def make_cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     0.1 Gy.cm2); (0040,8302) Entrance Dose in mGy is in mGy.
     """
     e = spec.projection_events[report.n_events - 1]
-    ds = _base(scenario, spec, report, CR_IMAGE, "CR", report.n_events)
+    ds = _base(scenario, spec, report, CR_IMAGE, "CR", report.n_events).dataset()
     ds.ImageType = ["ORIGINAL", "PRIMARY"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -602,7 +606,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     if e.kind == "localizer":
         raise ValueError("header images are written for non-localizer acquisitions only")
     exam = scenario.exams[spec.exam]
-    ds = _base(scenario, spec, report, CT_IMAGE, "CT", report.event_number)
+    ds = _base(scenario, spec, report, CT_IMAGE, "CT", report.event_number).dataset()
     ds.ImageType = ["ORIGINAL", "PRIMARY", "AXIAL"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -671,7 +675,7 @@ def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     Current mA, Exposure mAs, Exposure in uAs (PS3.3 C.8.7.8).
     """
     e = spec.projection_events[report.event_number - 1]
-    ds = _base(scenario, spec, report, MG_IMAGE, "MG", 1)
+    ds = _base(scenario, spec, report, MG_IMAGE, "MG", 1).dataset()
     ds.ImageType = ["ORIGINAL", "PRIMARY"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -735,7 +739,7 @@ def make_basic_text_sr(scenario: Scenario, spec: StudySpec, sop_instance_uid: st
                         uid(scenario.uid_namespace, spec.study_uid, "text-series"), 1,
                         spec.study_datetime + dt.timedelta(hours=1))
     device = scenario.device(spec.device)
-    ds = _base(scenario, spec, report, BASIC_TEXT_SR, "SR", 900)
+    ds = _base(scenario, spec, report, BASIC_TEXT_SR, "SR", 900).dataset()
     _sr_document(ds, device)
     ds.ValueType = "CONTAINER"
     ds.ConceptNameCodeSequence = Sequence([code_sequence_item(("18748-4", "LN", "Diagnostic imaging study"))])
@@ -767,7 +771,7 @@ def make_ct_dose_screen(scenario: Scenario, spec: StudySpec, report: ReportSpec)
     shortest round-trip repr, so the text gives back the exact value.
     """
     events = spec.ct_events[:report.n_events]
-    ds = _base(scenario, spec, report, SECONDARY_CAPTURE, "CT", 999)
+    ds = _base(scenario, spec, report, SECONDARY_CAPTURE, "CT", 999).dataset()
     ds.ImageType = ["DERIVED", "SECONDARY", "OTHER"]
     ds.ConversionType = "WSD"
     ds.SeriesDescription = "Dose Report"
@@ -820,9 +824,9 @@ _PARTS = {make_ct_rdsr: _ct_rdsr, make_projection_rdsr: _projection_rdsr}
 
 
 def make_parts(scenario: Scenario, spec: StudySpec,
-               report: ReportSpec) -> tuple[Dataset, Item | None]:
-    """What `make_dataset` makes, in two parts for encoder.py: a dose report's header Dataset
-    and its root content item as an Item; any other object whole, with None."""
+               report: ReportSpec) -> tuple[Header | Dataset, Item | None]:
+    """What `make_dataset` makes, in two parts for encoder.py: a dose report's header as a
+    Header and its root content item as an Item; any other object a whole Dataset, and None."""
     parts = _PARTS.get(_MAKERS.get((report.kind, spec.modality)))
     if parts is not None:
         return parts(scenario, spec, report)
