@@ -59,10 +59,13 @@ class Header(dict):
             raise AttributeError(keyword) from None
 
     def dataset(self, cls: type[Dataset] = Dataset) -> Dataset:
+        """The Dataset: each value assigned in turn (a tuple of sr Items as a Sequence)."""
         ds = cls()
         for keyword, value in self.items():
             if keyword == "file_meta":
                 ds.file_meta = value.dataset(FileMetaDataset)
+            elif type(value) is tuple:
+                setattr(ds, keyword, Sequence([to_dataset(item) for item in value]))
             else:
                 setattr(ds, keyword, value)
         return ds
@@ -423,14 +426,21 @@ def _item_bytes(node: Item, encodings: list[str], memo: tuple[dict, dict]) -> by
     return data
 
 
-def _string_bytes(key: tuple, value: str, encodings: list[str]) -> bytes:
-    """A text, code string, UID, date-time or decimal string element, its value validated
-    as DataElement validates it (the same validator; pydicom warns or raises if invalid)."""
-    tag, vr = key
+def _validate(vr: str, value) -> None:
+    """Validate as DataElement validates (the same validator; pydicom warns or raises if
+    `value` is invalid, and it is counted)."""
     validator = VALIDATORS.get(vr)
     if validator is not None and not validator(vr, value)[0]:
         _INVALID[0] += 1
         validate_value(vr, value, pydicom.config.settings.reading_validation_mode)
+
+
+def _string_bytes(key: tuple, value: str, encodings: list[str], validate: bool = True) -> bytes:
+    """A text, code string, UID, date-time, decimal or integer string or person name element,
+    its value validated unless `validate` is false (the caller validated its parts)."""
+    tag, vr = key
+    if validate:
+        _validate(vr, value)
     if not value:
         data = b""
     elif vr in _TEXT_VR:
@@ -499,17 +509,51 @@ def _encode_header(header: Header, root: Item | None) -> bytes:
     last = -1
     for key, value in keyed:
         tag, vr = key
-        if tag == last or tag >> 16 in (0, 2) or vr in AMBIGUOUS_VR:
+        if tag == last or tag >> 16 in (0, 2):
             raise _NotHandled
         last = tag
-        if type(value) is UID:
-            value = str(value)
-        elif type(value) is int and vr == "IS":
-            value = str(value)
-        elif isinstance(value, Sequence) and not value and vr == "SQ":
-            value = ()
-        out.append(_element_bytes(key, value, encodings, memo))
+        if vr in AMBIGUOUS_VR:
+            if tag != _PIXEL_DATA or type(value) is not bytes:
+                raise _NotHandled
+            key = (tag, "OW" if header.get("BitsAllocated", 0) > 8 else "OB")
+        out.append(_top_element_bytes(key, value, encodings, memo))
     return b"".join(out)
+
+
+_PIXEL_DATA = 0x7FE00010
+_NUMBERS = {vr: struct.Struct("<" + fmt) for vr, fmt in (
+    ("US", "H"), ("SS", "h"), ("UL", "L"), ("SL", "l"), ("FD", "d"), ("FL", "f"))}
+
+
+def _top_element_bytes(key: tuple, value, encodings: list[str], memo: tuple[dict, dict]) -> bytes:
+    """One element of a Header: a str (or UID), an int (IS, or a binary integer VR), a float
+    (FD, FL), a list of str (several values), bytes (OB, OW), an empty Sequence or a tuple
+    of Items; anything else is left to pydicom."""
+    tag, vr = key
+    kind = type(value)
+    if kind is str or kind is tuple:
+        return _element_bytes(key, value, encodings, memo)
+    if kind is UID:
+        return _element_bytes(key, str(value), encodings, memo)
+    if kind is int and vr == "IS":
+        return _string_bytes(key, str(value), encodings)
+    if (kind is int and vr in ("US", "SS", "UL", "SL")) or (kind is float and vr in ("FD", "FL")):
+        _validate(vr, value)
+        number = _NUMBERS[vr]
+        return _head(key)[0] + _U16(number.size) + number.pack(value)
+    if kind is list and value and all(type(v) is str for v in value):
+        if vr in _TEXT_VR and encodings[0] not in ("latin_1", "iso8859") or len(encodings) > 1:
+            raise _NotHandled  # each value encoded alone: the same bytes in one byte sets only
+        for v in value:
+            _validate(vr, v)
+        return _string_bytes(key, "\\".join(value), encodings, validate=False)
+    if kind is bytes and vr in ("OB", "OW"):
+        _validate(vr, value)
+        data = value + b"\0" if len(value) % 2 else value
+        return _head(key)[0] + _U32(len(data)) + data
+    if isinstance(value, Sequence) and not value and vr == "SQ":
+        return _head(key)[0] + _U32(0)
+    raise _NotHandled
 
 
 def _tag_of(pair: tuple) -> int:

@@ -34,8 +34,10 @@ from .sr import (
     Item,
     code_node,
     code_sequence_item,
+    code_sequence_node,
     container_node,
     datetime_node,
+    element_key,
     format_ds,
     num_node,
     text_item,
@@ -90,6 +92,7 @@ _MATERIAL_TERM = {"Al": "ALUMINUM", "Cu": "COPPER", "Rh": "RHODIUM", "Mo": "MOLY
 _VIEW = {"CC": ("399162004", "SCT", "cranio-caudal"),
          "MLO": ("399368009", "SCT", "medio-lateral oblique")}
 _SIDE = {"L": C.LEFT, "R": C.RIGHT}
+_VIEW_MODIFIERS = element_key("ViewModifierCodeSequence")
 
 
 # --- header modules -------------------------------------------------------------------------
@@ -483,13 +486,17 @@ def _projection_rdsr(scenario: Scenario, spec: StudySpec,
 # --- image headers (units that send no dose report) -----------------------------------------
 
 def make_cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _cr_image(scenario, spec, report).dataset()
+
+
+def _cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """CR Image Storage object for one radiograph, dose in the header (PS3.3 C.8.1, C.8.7.8).
 
     (0018,115E) Image and Fluoroscopy Area Dose Product is in dGy.cm2 (1 dGy.cm2 =
     0.1 Gy.cm2); (0040,8302) Entrance Dose in mGy is in mGy.
     """
     e = spec.projection_events[report.n_events - 1]
-    ds = _base(scenario, spec, report, CR_IMAGE, "CR", report.n_events).dataset()
+    ds = _base(scenario, spec, report, CR_IMAGE, "CR", report.n_events)
     ds.ImageType = ["ORIGINAL", "PRIMARY"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -552,7 +559,7 @@ _MG_ORIENTATION = {("L", "CC"): ["A", "R"], ("R", "CC"): ["P", "L"],
 CONTRAST_AGENT = "Iodinated contrast agent"  # generic description, no product name
 
 
-def _tiny_pixels(ds: Dataset, values) -> None:
+def _tiny_pixels(ds: Header | Dataset, values) -> None:
     """8x8 MONOCHROME2, 16 bits allocated, 12 stored, unsigned (PS3.3 C.7.6.3 Image Pixel)."""
     import numpy as np
 
@@ -589,6 +596,10 @@ def _per_image_exposure_ms(e: CtEvent) -> float:
 
 
 def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _ct_image(scenario, spec, report).dataset()
+
+
+def _ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """CT Image Storage (PS3.3 A.3) header for one CT acquisition, beside the study's RDSR.
 
     One representative image of acquisition number ``report.event_number`` (never a
@@ -606,7 +617,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     if e.kind == "localizer":
         raise ValueError("header images are written for non-localizer acquisitions only")
     exam = scenario.exams[spec.exam]
-    ds = _base(scenario, spec, report, CT_IMAGE, "CT", report.event_number).dataset()
+    ds = _base(scenario, spec, report, CT_IMAGE, "CT", report.event_number)
     ds.ImageType = ["ORIGINAL", "PRIMARY", "AXIAL"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -615,7 +626,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     ds.SeriesDescription = e.protocol
     ds.ProtocolName = e.protocol
     ds.BodyPartExamined = _BODY_PART[e.target_region[0]]
-    ds.AnatomicRegionSequence = Sequence([code_sequence_item(e.target_region)])
+    ds.AnatomicRegionSequence = (code_sequence_node(e.target_region),)
     ds.PatientPosition = "HFS"
     # Frame of Reference (PS3.3 C.7.4.1) and Image Plane (PS3.3 C.7.6.2), mm
     ds.FrameOfReferenceUID = report.frame_of_reference_uid
@@ -653,7 +664,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
         ds.SpiralPitchFactor = e.pitch_factor
     if e.ctdivol_mgy is not None:
         ds.CTDIvol = e.ctdivol_mgy
-        ds.CTDIPhantomTypeCodeSequence = Sequence([code_sequence_item(_PHANTOM[e.phantom])])
+        ds.CTDIPhantomTypeCodeSequence = (code_sequence_node(_PHANTOM[e.phantom]),)
     ds.RescaleIntercept = "-1024"
     ds.RescaleSlope = "1"
     ds.RescaleType = "HU"
@@ -664,6 +675,10 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
 
 
 def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _mg_image(scenario, spec, report).dataset()
+
+
+def _mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """Digital Mammography X-Ray Image Storage - For Presentation (PS3.3 A.27) for one view.
 
     Shares the RDSR event's Irradiation Event UID (0008,3010). Units: Organ Dose
@@ -675,7 +690,7 @@ def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     Current mA, Exposure mAs, Exposure in uAs (PS3.3 C.8.7.8).
     """
     e = spec.projection_events[report.event_number - 1]
-    ds = _base(scenario, spec, report, MG_IMAGE, "MG", 1).dataset()
+    ds = _base(scenario, spec, report, MG_IMAGE, "MG", 1)
     ds.ImageType = ["ORIGINAL", "PRIMARY"]
     ds.AcquisitionDate = _da(e.started.date())
     ds.AcquisitionTime = _tm(e.started)
@@ -686,15 +701,13 @@ def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     ds.BodyPartExamined = "BREAST"
     # DX Series (PS3.3 C.8.11.1), DX Anatomy Imaged (C.8.11.2), Mammography Image (C.8.11.7)
     ds.PresentationIntentType = "FOR PRESENTATION"
-    ds.AnatomicRegionSequence = Sequence([code_sequence_item(_BREAST)])
+    ds.AnatomicRegionSequence = (code_sequence_node(_BREAST),)
     ds.ImageLaterality = e.laterality
     ds.PatientOrientation = _MG_ORIENTATION[(e.laterality, e.view)]
     ds.PositionerType = "MAMMOGRAPHIC"
     ds.BreastImplantPresent = "NO"
     ds.OrganExposed = "BREAST"
-    view = code_sequence_item(_VIEW[e.view])
-    view.ViewModifierCodeSequence = Sequence()
-    ds.ViewCodeSequence = Sequence([view])
+    ds.ViewCodeSequence = ((*code_sequence_node(_VIEW[e.view]), (_VIEW_MODIFIERS, ())),)
     ds.ViewPosition = e.view
     # DX Positioning (PS3.3 C.8.11.5)
     ds.DistanceSourceToDetector = format_ds(e.sid_mm)
@@ -820,13 +833,17 @@ _MAKERS = {
     ("image_header", "MG"): make_mg_image,
 }
 
-_PARTS = {make_ct_rdsr: _ct_rdsr, make_projection_rdsr: _projection_rdsr}
+_PARTS = {make_ct_rdsr: _ct_rdsr, make_projection_rdsr: _projection_rdsr,
+          make_cr_image: lambda *args: (_cr_image(*args), None),
+          make_ct_image: lambda *args: (_ct_image(*args), None),
+          make_mg_image: lambda *args: (_mg_image(*args), None)}
 
 
 def make_parts(scenario: Scenario, spec: StudySpec,
                report: ReportSpec) -> tuple[Header | Dataset, Item | None]:
-    """What `make_dataset` makes, in two parts for encoder.py: a dose report's header as a
-    Header and its root content item as an Item; any other object a whole Dataset, and None."""
+    """What `make_dataset` makes, in the parts encoder.py writes fastest: a dose report's
+    header as a Header and its root content item as an Item; an image's header as a
+    Header, and None; a dose screen as a Dataset, and None."""
     parts = _PARTS.get(_MAKERS.get((report.kind, spec.modality)))
     if parts is not None:
         return parts(scenario, spec, report)

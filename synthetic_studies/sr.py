@@ -31,6 +31,7 @@ __all__ = [
     "datetime_item",
     "datetime_node",
     "dt_value",
+    "element_key",
     "format_ds",
     "num_item",
     "num_node",
@@ -68,10 +69,14 @@ def dt_value(when: dt.datetime) -> str:
     return when.strftime("%Y%m%d%H%M%S")
 
 
-def _element(keyword: str) -> tuple[int, str]:
-    """(tag, VR) of an element: the tag a plain int (compared fast), the VR the dictionary's."""
+def element_key(keyword: str) -> tuple[int, str]:
+    """(tag, VR) of an element, as an Item holds it: the tag a plain int (compared fast),
+    the VR the dictionary's."""
     tag = tag_for_keyword(keyword)
     return int(tag), dictionary_VR(tag)
+
+
+_element = element_key
 
 
 _CODE_VALUE, _SCHEME, _MEANING = (_element(k) for k in (
