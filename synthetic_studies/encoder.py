@@ -38,7 +38,7 @@ from pydicom.sequence import Sequence
 from pydicom.uid import UID, ExplicitVRLittleEndian
 from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32, VALIDATORS, validate_value
 
-from .sr import CONSTANT_TAGS, Item, to_dataset
+from .sr import Item, to_dataset
 
 __all__ = ["Header", "encode"]
 
@@ -345,10 +345,10 @@ def _value_bytes(elem, vr: str, encodings: list[str]) -> bytes:
 # An element of an Item is ((tag, VR), value), the value a str or a tuple of Items (a
 # sequence). Its bytes are those _encode_element writes for the DataElement sr.to_dataset
 # makes of it. What repeats is encoded once per validation mode and character set and
-# remembered: elements of the tags whose values repeat (codes, relationship and value types)
-# and whole items without content children (code items, and NUM, TEXT ... items whose value
-# recurs). Nothing that holds an invalid value is remembered, so each file that holds one
-# warns again, as pydicom would.
+# remembered: text elements (codes, relationship and value types, a unit's names, recurring
+# numbers) and whole items without content children (code items, and NUM, TEXT ... items
+# whose value recurs). Nothing that holds an invalid value is remembered, so each file that
+# holds one warns again, as pydicom would.
 
 _U16, _U32 = struct.Struct("<H").pack, struct.Struct("<L").pack
 _CONTENT_TAG = 0x0040A730
@@ -381,8 +381,6 @@ def _element_bytes(key: tuple, value, encodings: list[str], memo: tuple[dict, di
         return _sequence_bytes(key, value, encodings, memo)
     if type(value) is not str:
         raise _NotHandled
-    if key[0] not in CONSTANT_TAGS:
-        return _string_bytes(key, value, encodings)
     data = memo[0].get((key, value))
     if data is None:
         invalid = _INVALID[0]

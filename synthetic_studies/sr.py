@@ -20,7 +20,6 @@ from pydicom.sequence import Sequence
 from pydicom.sr.coding import Code
 
 __all__ = [
-    "CONSTANT_TAGS",
     "Item",
     "code_item",
     "code_node",
@@ -89,8 +88,7 @@ _CONTINUITY, _TEMPLATE, _MAPPING, _TEMPLATE_ID, _CONTENT, _CONCEPT_CODE = (_elem
     "ContinuityOfContent", "ContentTemplateSequence", "MappingResource", "TemplateIdentifier",
     "ContentSequence", "ConceptCodeSequence"))
 _TEXT, _UID, _DATETIME = (_element(k) for k in ("TextValue", "UID", "DateTime"))
-# Tags whose few distinct values repeat in every item (codes, relationship and value types)
-CONSTANT_TAGS = _CONSTANT = frozenset(e[0] for e in (
+_CONSTANT = frozenset(e[0] for e in (
     _CODE_VALUE, _SCHEME, _MEANING, _RELATIONSHIP, _VALUE_TYPE, _CONTINUITY, _MAPPING,
     _TEMPLATE_ID))
 
