@@ -257,9 +257,25 @@ def _strict_writing():
         settings.writing_validation_mode = before
 
 
+_SCENARIOS: dict[tuple | None, Scenario] = {}
+
+
+def _scenario(path: Path | str | None) -> Scenario:
+    """load_scenario, once per process and version of the file (parsing takes some 7 ms;
+    every chunk of studies needs the scenario)."""
+    key = None
+    if path is not None:
+        stat = os.stat(path)
+        key = (str(Path(path).resolve()), stat.st_mtime_ns, stat.st_size)
+    found = _SCENARIOS.get(key)
+    if found is None:
+        found = _SCENARIOS[key] = load_scenario(path)
+    return found
+
+
 def _write_chunk(args) -> tuple[list[dict], list[dict]]:
     scenario_path, seed, indices, n_studies, months, plan, root = args
-    scenario = load_scenario(scenario_path)
+    scenario = _scenario(scenario_path)
     files, studies = [], []
     with _strict_writing():
         for index in indices:
