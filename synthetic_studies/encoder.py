@@ -2,21 +2,25 @@
 
 Two inputs:
 
-* a pydicom Dataset (image headers, dose screens, spoilt reports): ``encode(ds)``;
-* a dose report as its header Dataset plus its root content item as an ``sr.Item`` (plain
-  tuples, see sr.py): ``encode(ds, root)``. The content tree, thousands of elements per
-  report, is never made into Datasets: each element goes straight to bytes, and the bytes
-  of what repeats (code sequences, relationship and value types) are made once per process.
+* a ``Header`` (keyword -> value, what the generator assigns to a dataset's top level) and,
+  for a dose report, its root content item as an ``sr.Item`` (plain tuples, see sr.py):
+  ``encode(header, root)``. Neither is ever made into a Dataset: each element goes straight
+  to bytes (the content tree of a report has thousands), and the bytes of what repeats
+  (codes, a unit's names, recurring values, whole leaf items) are made once per process.
+* a pydicom Dataset (dose screens, spoilt reports, the Basic Text SR): ``encode(ds)``, by a
+  small writer over its DataElements.
 
 What is written is what ``Dataset.save_as(enforce_file_format=True)`` writes for the same
-dataset (pydicom 3's filewriter): explicit VR little endian, elements in tag order, group
-lengths above group 6 skipped, sequences and items of defined length, text in the dataset's
-character set padded with a space, UIDs padded with NUL, numbers packed little endian.
-Anything else (raw elements, ambiguous VRs inside items, undefined lengths, values over
-64 KiB in a 16-bit length field, another transfer syntax) raises ``_NotHandled`` and the
-whole object goes through pydicom instead. Values of content items are validated as
-pydicom's DataElement validates them (``validate_value`` in the reading validation mode);
-tests/synthetic_studies/test_encoder.py checks the bytes against pydicom's ``dcmwrite``.
+dataset (pydicom 3's filewriter): explicit VR little endian, the file meta with its group
+length and version, elements in tag order, group lengths above group 6 skipped, sequences
+and items of defined length, text in the dataset's character set padded with a space, UIDs
+padded with NUL, numbers packed little endian, pixel data OW above 8 bits allocated.
+Anything else (raw elements, ambiguous VRs other than pixel data, undefined lengths, values
+over 64 KiB in a 16-bit length field, another transfer syntax, a float for a decimal
+string ...) raises ``_NotHandled`` inside and the whole object goes through pydicom instead.
+Values are validated as pydicom's DataElement validates them (the same validators, in the
+reading validation mode). tests/synthetic_studies/test_encoder.py checks the bytes against
+pydicom's ``dcmwrite`` of the Dataset ``generator.make_dataset`` builds.
 """
 
 from __future__ import annotations
@@ -46,8 +50,9 @@ __all__ = ["Header", "encode"]
 class Header(dict):
     """The top-level elements of a dataset by keyword, assigned as on a Dataset
     (``h.PatientID = "P1"``), in order; ``h.file_meta`` a Header of the File Meta
-    Information's. ``dataset()`` makes the Dataset the same assignments make; ``encode``
-    writes its bytes without making one."""
+    Information's. Several values go in a list; a tuple is a sequence of sr Items.
+    ``dataset()`` makes the Dataset the same assignments make; ``encode`` writes its bytes
+    without making one."""
 
     def __setattr__(self, keyword: str, value) -> None:
         self[keyword] = value
@@ -479,10 +484,8 @@ def _key(keyword: str) -> tuple[int, str]:
 
 
 def _encode_header(header: Header, root: Item | None) -> bytes:
-    """A Header's bytes (and its root content item's): the meta, then every element in tag
-    order. Text, code strings, UIDs, dates and times, decimal and integer strings (an int
-    for IS), person names of one component group and empty sequences; anything else is
-    left to pydicom."""
+    """A Header's bytes, with its root content item's elements: the file meta, then every
+    element in tag order (the values _top_element_bytes takes)."""
     meta = header.get("file_meta")
     charset = header.get("SpecificCharacterSet")
     if not isinstance(meta, Header) or type(charset) is not str:
@@ -510,10 +513,11 @@ def _encode_header(header: Header, root: Item | None) -> bytes:
         if tag == last or tag >> 16 in (0, 2):
             raise _NotHandled
         last = tag
-        if vr in AMBIGUOUS_VR:
-            if tag != _PIXEL_DATA or type(value) is not bytes:
+        if vr in AMBIGUOUS_VR:  # pixel data: OW above 8 bits allocated, as pydicom decides
+            bits = header.get("BitsAllocated")
+            if tag != _PIXEL_DATA or type(value) is not bytes or type(bits) is not int:
                 raise _NotHandled
-            key = (tag, "OW" if header.get("BitsAllocated", 0) > 8 else "OB")
+            key = (tag, "OW" if bits > 8 else "OB")
         out.append(_top_element_bytes(key, value, encodings, memo))
     return b"".join(out)
 

@@ -11,6 +11,10 @@
   Presentation (Organ Dose in the X-Ray Acquisition Dose module) headers, tiny pixel
   matrices, each with the Irradiation Event UID of the RDSR event it shows.
 * A Basic Text SR that is not a dose report (for the corpus's "not a dose object" files).
+
+``make_dataset`` gives each object as a pydicom Dataset; ``make_parts`` gives dose reports
+and image headers as an ``encoder.Header`` (and a report's content tree as ``sr`` Items),
+which encoder.py writes byte for byte as pydicom would, without building the Dataset.
 """
 
 from __future__ import annotations

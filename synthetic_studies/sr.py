@@ -75,19 +75,17 @@ def element_key(keyword: str) -> tuple[int, str]:
     return int(tag), dictionary_VR(tag)
 
 
-_element = element_key
-
-
-_CODE_VALUE, _SCHEME, _MEANING = (_element(k) for k in (
+_CODE_VALUE, _SCHEME, _MEANING = (element_key(k) for k in (
     "CodeValue", "CodingSchemeDesignator", "CodeMeaning"))
-_RELATIONSHIP, _VALUE_TYPE, _CONCEPT_NAME = (_element(k) for k in (
+_RELATIONSHIP, _VALUE_TYPE, _CONCEPT_NAME = (element_key(k) for k in (
     "RelationshipType", "ValueType", "ConceptNameCodeSequence"))
-_NUMERIC_VALUE, _UNITS, _MEASURED = (_element(k) for k in (
+_NUMERIC_VALUE, _UNITS, _MEASURED = (element_key(k) for k in (
     "NumericValue", "MeasurementUnitsCodeSequence", "MeasuredValueSequence"))
-_CONTINUITY, _TEMPLATE, _MAPPING, _TEMPLATE_ID, _CONTENT, _CONCEPT_CODE = (_element(k) for k in (
+_CONTINUITY, _TEMPLATE, _MAPPING, _TEMPLATE_ID, _CONTENT, _CONCEPT_CODE = (
+    element_key(k) for k in (
     "ContinuityOfContent", "ContentTemplateSequence", "MappingResource", "TemplateIdentifier",
     "ContentSequence", "ConceptCodeSequence"))
-_TEXT, _UID, _DATETIME = (_element(k) for k in ("TextValue", "UID", "DateTime"))
+_TEXT, _UID, _DATETIME = (element_key(k) for k in ("TextValue", "UID", "DateTime"))
 _CONSTANT = frozenset(e[0] for e in (
     _CODE_VALUE, _SCHEME, _MEANING, _RELATIONSHIP, _VALUE_TYPE, _CONTINUITY, _MAPPING,
     _TEMPLATE_ID))

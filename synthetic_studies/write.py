@@ -292,7 +292,8 @@ def _prepare_arrow() -> None:
     pa.array([0])
 
 
-def _run_jobs(jobs: list[tuple], workers: int, meanwhile: Callable[[], None] | None = None) -> list:
+def _run_jobs(jobs: list[tuple], workers: int,
+              meanwhile: Callable[[], None] | None = None) -> list:
     """`_write_chunk` of every job on `workers` processes, this one among them; results in
     job order. `meanwhile`: work for this process while the helpers start.
 
@@ -363,7 +364,7 @@ def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studi
         raise ValueError("need at least one study and one month")
     root = Path(out_dir)
     root.mkdir(parents=True, exist_ok=True)
-    scenario = load_scenario(scenario_path)
+    scenario = _scenario(scenario_path)
     plan = plan_defects(scenario, seed, n_studies, months)
     workers = workers or min(8, os.cpu_count() or 1)
     chunk = max(25, n_studies // (workers * 8) or 1)
