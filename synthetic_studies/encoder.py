@@ -382,16 +382,19 @@ def _remember(table: dict, key, data: bytes) -> None:
 
 
 def _element_bytes(key: tuple, value, encodings: list[str], memo: tuple[dict, dict]) -> bytes:
+    if type(value) is str:
+        data = memo[0].get((key, value))
+        return data if data is not None else _new_string(key, value, encodings, memo[0])
     if type(value) is tuple:
         return _sequence_bytes(key, value, encodings, memo)
-    if type(value) is not str:
-        raise _NotHandled
-    data = memo[0].get((key, value))
-    if data is None:
-        invalid = _INVALID[0]
-        data = _string_bytes(key, value, encodings)
-        if _INVALID[0] == invalid:
-            _remember(memo[0], (key, value), data)
+    raise _NotHandled
+
+
+def _new_string(key: tuple, value: str, encodings: list[str], strings: dict) -> bytes:
+    invalid = _INVALID[0]
+    data = _string_bytes(key, value, encodings)
+    if _INVALID[0] == invalid:
+        _remember(strings, (key, value), data)
     return data
 
 
@@ -409,9 +412,10 @@ def _sequence_bytes(key: tuple, items: tuple, encodings: list[str],
 
 
 def _item_bytes(node: Item, encodings: list[str], memo: tuple[dict, dict]) -> bytes:
+    strings, items = memo
     leaf = node[-1][0][0] != _CONTENT_TAG
     if leaf:
-        data = memo[1].get(node)
+        data = items.get(node)
         if data is not None:
             return data
         invalid = _INVALID[0]
@@ -422,10 +426,16 @@ def _item_bytes(node: Item, encodings: list[str], memo: tuple[dict, dict]) -> by
         if tag <= last or tag == _CHARSET_TAG:  # pydicom would sort; own charset: rare
             raise _NotHandled
         last = tag
-        parts.append(_element_bytes(key, value, encodings, memo))
+        if type(value) is str:  # _element_bytes, inline: most elements are text
+            data = strings.get((key, value))
+            if data is None:
+                data = _new_string(key, value, encodings, strings)
+        else:
+            data = _element_bytes(key, value, encodings, memo)
+        parts.append(data)
     data = b"".join(parts)
     if leaf and _INVALID[0] == invalid:
-        _remember(memo[1], node, data)
+        _remember(items, node, data)
     return data
 
 
