@@ -145,3 +145,29 @@ def test_dsrdump_reads_a_fast_encoded_dose_report(tmp_path):
     dlp = round(sum(e.dlp_mgy_cm for e in events if e.dlp_mgy_cm is not None), 4)
     line = next(ln for ln in run.stdout.splitlines() if "CT Dose Length Product Total" in ln)
     assert float(line.split('="')[1].split('"')[0]) == pytest.approx(dlp, rel=1e-12)
+
+
+def test_helper_processes_write_the_same_corpus(tmp_path, monkeypatch):
+    """With helpers forced to start (their start made free), two processes write the very
+    bytes one writes; and the helper did write some of the studies."""
+    import hashlib
+
+    from synthetic_studies import write
+
+    def digests(root):
+        return {str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest()
+                for p in sorted(root.rglob("*")) if p.is_file()}
+
+    here = []  # studies this process wrote (a spawned helper imports the module afresh)
+    original = write._write_study
+
+    def counted(scenario, seed, index, *args):
+        here.append(index)
+        return original(scenario, seed, index, *args)
+
+    monkeypatch.setattr(write, "HELPER_START_CPU_S", 0.0)
+    write.write_corpus(tmp_path / "one", seed=13, months=1, n_studies=100, workers=1)
+    monkeypatch.setattr(write, "_write_study", counted)
+    write.write_corpus(tmp_path / "two", seed=13, months=1, n_studies=100, workers=2)
+    assert digests(tmp_path / "one") == digests(tmp_path / "two")
+    assert 25 <= len(here) < 100  # the first chunk of 25 here, some chunks in the helper
