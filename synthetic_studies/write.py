@@ -306,8 +306,9 @@ def _run_jobs(jobs: list[tuple], workers: int,
     This process has imported everything already; a spawned helper costs about
     HELPER_START_CPU_S before it writes anything. So this process writes the first chunk
     and measures it (CPU time: the same on a busy machine); helpers are started only if the
-    chunks left would take more than twice that start (then one helper saves wall time, and
-    on a machine whose cores are all busy it costs at most half again the CPU). While they
+    chunks left would take more than twice that start (then a helper saves wall time on
+    free cores, and on a machine whose cores are all busy its start costs at most half of
+    the CPU time of the work left). While they
     start this process goes on with the jobs, and a feeder thread hands each helper its next
     job as soon as it returns the last. Jobs are taken in order from one shared counter, so
     none is done twice and the output is the same whichever process wrote which study.
@@ -318,8 +319,6 @@ def _run_jobs(jobs: list[tuple], workers: int,
     first = _write_chunk(jobs[0])
     left_cpu_s = (time.process_time() - started) * (len(jobs) - 1)
     if left_cpu_s <= 2 * HELPER_START_CPU_S:
-        if meanwhile is not None:
-            meanwhile()
         return [first, *(_write_chunk(job) for job in jobs[1:])]
     results: list = [first, *([None] * (len(jobs) - 1))]
     order = iter(range(1, len(jobs)))
