@@ -6,7 +6,9 @@ Prints studies/s and files/s, and the CPU seconds this process and its worker pr
 used (on a machine shared with other jobs the wall time varies, the CPU time much less);
 with --repeat N, N runs and the best; with --digest, one SHA-256 over every file's relative
 path and SHA-256 (manifests included), to compare byte for byte across versions of the
-generator.
+generator. --workers is the most processes used, this one included: write_corpus starts a
+helper only when the studies left outweigh its start (see synthetic_studies.write._run_jobs),
+so a few hundred studies are written by this process alone.
 """
 
 from __future__ import annotations
