@@ -11,18 +11,23 @@
   Presentation (Organ Dose in the X-Ray Acquisition Dose module) headers, tiny pixel
   matrices, each with the Irradiation Event UID of the RDSR event it shows.
 * A Basic Text SR that is not a dose report (for the corpus's "not a dose object" files).
+
+``make_dataset`` gives each object as a pydicom Dataset; ``make_parts`` gives dose reports
+and image headers as an ``encoder.Header`` (and a report's content tree as ``sr`` Items),
+which encoder.py writes byte for byte as pydicom would, without building the Dataset.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 
-from pydicom.dataset import Dataset, FileMetaDataset
+from pydicom.dataset import Dataset
 from pydicom.sequence import Sequence
 from pydicom.uid import ExplicitVRLittleEndian, UID
 
 from pipeline import concepts as C
 
+from .encoder import Header
 from .sampling import device_observer_uid, uid
 from .scenario import DeviceSpec, Scenario
 from .specs import CtEvent, ProjectionEvent, ReportSpec, StudySpec
@@ -30,14 +35,19 @@ from .sr import (
     HAS_CONCEPT_MOD,
     HAS_OBS_CONTEXT,
     HAS_PROPERTIES,
-    code_item,
+    Item,
+    code_node,
     code_sequence_item,
-    container,
-    datetime_item,
+    code_sequence_node,
+    container_node,
+    datetime_node,
+    element_key,
     format_ds,
-    num_item,
+    num_node,
     text_item,
-    uid_item,
+    text_node,
+    to_dataset,
+    uid_node,
 )
 
 __all__ = [
@@ -53,6 +63,7 @@ __all__ = [
     "make_ct_rdsr",
     "make_dataset",
     "make_mg_image",
+    "make_parts",
     "make_projection_rdsr",
 ]
 
@@ -85,12 +96,13 @@ _MATERIAL_TERM = {"Al": "ALUMINUM", "Cu": "COPPER", "Rh": "RHODIUM", "Mo": "MOLY
 _VIEW = {"CC": ("399162004", "SCT", "cranio-caudal"),
          "MLO": ("399368009", "SCT", "medio-lateral oblique")}
 _SIDE = {"L": C.LEFT, "R": C.RIGHT}
+_VIEW_MODIFIERS = element_key("ViewModifierCodeSequence")
 
 
 # --- header modules -------------------------------------------------------------------------
 
-def _file_meta(sop_class: UID, sop_instance: str) -> FileMetaDataset:
-    meta = FileMetaDataset()
+def _file_meta(sop_class: UID, sop_instance: str) -> Header:
+    meta = Header()
     meta.MediaStorageSOPClassUID = sop_class
     meta.MediaStorageSOPInstanceUID = sop_instance
     meta.TransferSyntaxUID = ExplicitVRLittleEndian
@@ -118,10 +130,11 @@ def _age_string(age_years: float) -> str:
 
 
 def _base(scenario: Scenario, spec: StudySpec, report: ReportSpec, sop_class: UID,
-          modality: str, series_number: int) -> Dataset:
+          modality: str, series_number: int) -> Header:
+    """The header modules every object has, as a Header (``.dataset()`` makes the Dataset)."""
     device = scenario.device(spec.device)
     site = scenario.sites[device.site]
-    ds = Dataset()
+    ds = Header()
     ds.file_meta = _file_meta(sop_class, report.sop_instance_uid)
     ds.SpecificCharacterSet = "ISO_IR 100"
     ds.InstanceCreationDate = _da(report.content_time.date())
@@ -164,7 +177,7 @@ def _base(scenario: Scenario, spec: StudySpec, report: ReportSpec, sop_class: UI
     return ds
 
 
-def _sr_document(ds: Dataset, device: DeviceSpec) -> None:
+def _sr_document(ds: Header, device: DeviceSpec) -> None:
     """SR Document Series and General modules' remaining attributes (PS3.3 C.17.1, C.17.2)."""
     ds.ReferencedPerformedProcedureStepSequence = Sequence()
     ds.CompletionFlag = "COMPLETE"
@@ -172,83 +185,91 @@ def _sr_document(ds: Dataset, device: DeviceSpec) -> None:
     ds.PerformedProcedureCodeSequence = Sequence()
 
 
-def _observer_context(scenario: Scenario, device: DeviceSpec) -> list[Dataset]:
+def _observer_context(scenario: Scenario, device: DeviceSpec) -> list[Item]:
     """TID 1002 Observer Context with TID 1004 device observer attributes."""
     return [
-        code_item(C.OBSERVER_TYPE, C.DEVICE, HAS_OBS_CONTEXT),
-        uid_item(C.DEVICE_OBSERVER_UID, device_observer_uid(scenario, device.id), HAS_OBS_CONTEXT),
-        text_item(C.DEVICE_OBSERVER_NAME, device.station_name, HAS_OBS_CONTEXT),
-        text_item(C.DEVICE_OBSERVER_MANUFACTURER, device.manufacturer, HAS_OBS_CONTEXT),
-        text_item(C.DEVICE_OBSERVER_MODEL_NAME, device.model, HAS_OBS_CONTEXT),
-        text_item(C.DEVICE_OBSERVER_SERIAL_NUMBER, device.serial, HAS_OBS_CONTEXT),
-        text_item(C.DEVICE_OBSERVER_PHYSICAL_LOCATION, device.location, HAS_OBS_CONTEXT),
-        code_item(C.DEVICE_ROLE_IN_PROCEDURE, C.IRRADIATING_DEVICE, HAS_OBS_CONTEXT),
+        code_node(C.OBSERVER_TYPE, C.DEVICE, HAS_OBS_CONTEXT),
+        uid_node(C.DEVICE_OBSERVER_UID, device_observer_uid(scenario, device.id), HAS_OBS_CONTEXT),
+        text_node(C.DEVICE_OBSERVER_NAME, device.station_name, HAS_OBS_CONTEXT),
+        text_node(C.DEVICE_OBSERVER_MANUFACTURER, device.manufacturer, HAS_OBS_CONTEXT),
+        text_node(C.DEVICE_OBSERVER_MODEL_NAME, device.model, HAS_OBS_CONTEXT),
+        text_node(C.DEVICE_OBSERVER_SERIAL_NUMBER, device.serial, HAS_OBS_CONTEXT),
+        text_node(C.DEVICE_OBSERVER_PHYSICAL_LOCATION, device.location, HAS_OBS_CONTEXT),
+        code_node(C.DEVICE_ROLE_IN_PROCEDURE, C.IRRADIATING_DEVICE, HAS_OBS_CONTEXT),
     ]
 
 
-def _scope(spec: StudySpec) -> Dataset:
-    return code_item(C.SCOPE_OF_ACCUMULATION, C.SCOPE_STUDY, HAS_OBS_CONTEXT, children=[
-        uid_item(C.STUDY_INSTANCE_UID, spec.study_uid, HAS_PROPERTIES)])
+def _scope(spec: StudySpec) -> Item:
+    return code_node(C.SCOPE_OF_ACCUMULATION, C.SCOPE_STUDY, HAS_OBS_CONTEXT, children=[
+        uid_node(C.STUDY_INSTANCE_UID, spec.study_uid, HAS_PROPERTIES)])
 
 
-def _procedure_reported(procedure) -> Dataset:
-    return code_item(C.PROCEDURE_REPORTED, procedure, HAS_CONCEPT_MOD, children=[
-        code_item(C.HAS_INTENT, C.DIAGNOSTIC_INTENT, HAS_CONCEPT_MOD)])
+def _procedure_reported(procedure) -> Item:
+    return code_node(C.PROCEDURE_REPORTED, procedure, HAS_CONCEPT_MOD, children=[
+        code_node(C.HAS_INTENT, C.DIAGNOSTIC_INTENT, HAS_CONCEPT_MOD)])
 
 
-def _root(ds: Dataset, template: str, children: list[Dataset]) -> None:
-    ds.ValueType = "CONTAINER"
-    ds.ConceptNameCodeSequence = Sequence([code_sequence_item(C.XRAY_RADIATION_DOSE_REPORT)])
-    ds.ContinuityOfContent = "SEPARATE"
-    tpl = Dataset()
-    tpl.MappingResource = "DCMR"
-    tpl.TemplateIdentifier = template
-    ds.ContentTemplateSequence = Sequence([tpl])
-    ds.ContentSequence = Sequence(children)
+def _root(template: str, children: list[Item]) -> Item:
+    """The document's root content item (its elements sit at the top level of the dataset)."""
+    return container_node(C.XRAY_RADIATION_DOSE_REPORT, children, relationship=None,
+                          template=template)
+
+
+def _with_content(ds: Dataset, root: Item) -> Dataset:
+    """`ds` with the elements of its root content item added (Value Type, Concept Name,
+    Continuity Of Content, Content Template Sequence, Content Sequence)."""
+    for elem in to_dataset(root):
+        ds[elem.tag] = elem
+    return ds
 
 
 # --- CT: TID 10011 --------------------------------------------------------------------------
 
-def _ct_event(e: CtEvent) -> Dataset:
+def _ct_event(e: CtEvent) -> Item:
     source = [
-        text_item(C.IDENTIFICATION_OF_XRAY_SOURCE, "A"),
-        num_item(C.KVP, e.kvp, C.UNIT_KV),
-        num_item(C.MAXIMUM_XRAY_TUBE_CURRENT, e.max_tube_current_ma, C.UNIT_MA),
-        num_item(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
+        text_node(C.IDENTIFICATION_OF_XRAY_SOURCE, "A"),
+        num_node(C.KVP, e.kvp, C.UNIT_KV),
+        num_node(C.MAXIMUM_XRAY_TUBE_CURRENT, e.max_tube_current_ma, C.UNIT_MA),
+        num_node(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
     ]
     if e.rotation_time_s is not None and e.kind in ("spiral", "sequenced"):
-        source.append(num_item(C.EXPOSURE_TIME_PER_ROTATION, e.rotation_time_s, C.UNIT_S))
+        source.append(num_node(C.EXPOSURE_TIME_PER_ROTATION, e.rotation_time_s, C.UNIT_S))
     params = [
-        num_item(C.EXPOSURE_TIME, e.exposure_time_s, C.UNIT_S),
-        num_item(C.SCANNING_LENGTH, e.scanning_length_mm, C.UNIT_MM),
-        num_item(C.NOMINAL_SINGLE_COLLIMATION_WIDTH, e.single_collimation_mm, C.UNIT_MM),
-        num_item(C.NOMINAL_TOTAL_COLLIMATION_WIDTH, e.total_collimation_mm, C.UNIT_MM),
+        num_node(C.EXPOSURE_TIME, e.exposure_time_s, C.UNIT_S),
+        num_node(C.SCANNING_LENGTH, e.scanning_length_mm, C.UNIT_MM),
+        num_node(C.NOMINAL_SINGLE_COLLIMATION_WIDTH, e.single_collimation_mm, C.UNIT_MM),
+        num_node(C.NOMINAL_TOTAL_COLLIMATION_WIDTH, e.total_collimation_mm, C.UNIT_MM),
     ]
     if e.pitch_factor is not None:
-        params.append(num_item(C.PITCH_FACTOR, e.pitch_factor, C.UNIT_RATIO))
+        params.append(num_node(C.PITCH_FACTOR, e.pitch_factor, C.UNIT_RATIO))
     params += [
-        num_item(C.NUMBER_OF_XRAY_SOURCES, 1, C.UNIT_XRAY_SOURCES),
-        container(C.CT_XRAY_SOURCE_PARAMETERS, source),
+        num_node(C.NUMBER_OF_XRAY_SOURCES, 1, C.UNIT_XRAY_SOURCES),
+        container_node(C.CT_XRAY_SOURCE_PARAMETERS, source),
     ]
     children = [
-        text_item(C.ACQUISITION_PROTOCOL, e.protocol),
-        code_item(C.TARGET_REGION, e.target_region),
-        code_item(C.CT_ACQUISITION_TYPE, _CT_KIND[e.kind]),
-        uid_item(C.IRRADIATION_EVENT_UID, e.event_uid),
-        datetime_item(C.DATETIME_STARTED, e.started),
-        container(C.CT_ACQUISITION_PARAMETERS, params),
+        text_node(C.ACQUISITION_PROTOCOL, e.protocol),
+        code_node(C.TARGET_REGION, e.target_region),
+        code_node(C.CT_ACQUISITION_TYPE, _CT_KIND[e.kind]),
+        uid_node(C.IRRADIATION_EVENT_UID, e.event_uid),
+        datetime_node(C.DATETIME_STARTED, e.started),
+        container_node(C.CT_ACQUISITION_PARAMETERS, params),
     ]
     if e.ctdivol_mgy is not None:
-        children.append(container(C.CT_DOSE, [
-            num_item(C.MEAN_CTDIVOL, e.ctdivol_mgy, C.UNIT_MGY),
-            code_item(C.CTDIW_PHANTOM_TYPE, _PHANTOM[e.phantom]),
-            num_item(C.DLP, e.dlp_mgy_cm, C.UNIT_MGY_CM),
+        children.append(container_node(C.CT_DOSE, [
+            num_node(C.MEAN_CTDIVOL, e.ctdivol_mgy, C.UNIT_MGY),
+            code_node(C.CTDIW_PHANTOM_TYPE, _PHANTOM[e.phantom]),
+            num_node(C.DLP, e.dlp_mgy_cm, C.UNIT_MGY_CM),
         ]))
-    return container(C.CT_ACQUISITION, children)
+    return container_node(C.CT_ACQUISITION, children)
 
 
 def make_ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
     """X-Ray Radiation Dose SR with root TID 10011 for the first `report.n_events` events."""
+    header, root = _ct_rdsr(scenario, spec, report)
+    return _with_content(header.dataset(), root)
+
+
+def _ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> tuple[Header, Item]:
     device = scenario.device(spec.device)
     ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
     ds.SeriesDescription = "Radiation Dose Information"
@@ -258,20 +279,19 @@ def make_ct_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dat
     children = [
         _procedure_reported(C.COMPUTED_TOMOGRAPHY_XRAY),
         *_observer_context(scenario, device),
-        datetime_item(C.START_OF_XRAY_IRRADIATION, events[0].started, HAS_OBS_CONTEXT),
-        datetime_item(C.END_OF_XRAY_IRRADIATION, events[-1].started
+        datetime_node(C.START_OF_XRAY_IRRADIATION, events[0].started, HAS_OBS_CONTEXT),
+        datetime_node(C.END_OF_XRAY_IRRADIATION, events[-1].started
                       + dt.timedelta(seconds=max(1, int(events[-1].exposure_time_s))),
                       HAS_OBS_CONTEXT),
         _scope(spec),
-        container(C.CT_ACCUMULATED_DOSE_DATA, [
-            num_item(C.TOTAL_NUMBER_OF_IRRADIATION_EVENTS, len(events), C.UNIT_EVENTS),
-            num_item(C.CT_DLP_TOTAL, round(dlp_total, 4), C.UNIT_MGY_CM),
+        container_node(C.CT_ACCUMULATED_DOSE_DATA, [
+            num_node(C.TOTAL_NUMBER_OF_IRRADIATION_EVENTS, len(events), C.UNIT_EVENTS),
+            num_node(C.CT_DLP_TOTAL, round(dlp_total, 4), C.UNIT_MGY_CM),
         ]),
         *(_ct_event(e) for e in events),
-        code_item(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION),
+        code_node(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION),
     ]
-    _root(ds, "10011", children)
-    return ds
+    return ds, _root("10011", children)
 
 
 # --- projection: TID 10001 ------------------------------------------------------------------
@@ -285,12 +305,12 @@ def _gy(mgy: float) -> float:
     return mgy / 1e3
 
 
-def _filters(e: ProjectionEvent) -> Dataset:
-    return container(C.XRAY_FILTERS, [
-        code_item(C.XRAY_FILTER_TYPE, C.FLAT_FILTER),
-        code_item(C.XRAY_FILTER_MATERIAL, _MATERIAL[e.filter_material]),
-        num_item(C.XRAY_FILTER_THICKNESS_MINIMUM, e.filter_thickness_mm, C.UNIT_MM),
-        num_item(C.XRAY_FILTER_THICKNESS_MAXIMUM, e.filter_thickness_mm, C.UNIT_MM),
+def _filters(e: ProjectionEvent) -> Item:
+    return container_node(C.XRAY_FILTERS, [
+        code_node(C.XRAY_FILTER_TYPE, C.FLAT_FILTER),
+        code_node(C.XRAY_FILTER_MATERIAL, _MATERIAL[e.filter_material]),
+        num_node(C.XRAY_FILTER_THICKNESS_MINIMUM, e.filter_thickness_mm, C.UNIT_MM),
+        num_node(C.XRAY_FILTER_THICKNESS_MAXIMUM, e.filter_thickness_mm, C.UNIT_MM),
     ])
 
 
@@ -298,109 +318,109 @@ _POSITION = {"supine": C.SUPINE, "prone": C.PRONE, "headfirst": C.HEADFIRST,
              "feet-first": C.FEET_FIRST}
 
 
-def _patient_position(e: ProjectionEvent) -> list[Dataset]:
+def _patient_position(e: ProjectionEvent) -> list[Item]:
     """TID 10003 Patient Table Relationship (CID 21) and Patient Orientation (CID 19) with its
     Modifier (CID 20), when the spec carries them."""
     items = []
     if e.patient_table_relationship is not None:
-        items.append(code_item(C.PATIENT_TABLE_RELATIONSHIP, _POSITION[e.patient_table_relationship]))
+        items.append(code_node(C.PATIENT_TABLE_RELATIONSHIP, _POSITION[e.patient_table_relationship]))
     if e.patient_orientation_modifier is not None:
-        items.append(code_item(C.PATIENT_ORIENTATION, C.RECUMBENT, children=[
-            code_item(C.PATIENT_ORIENTATION_MODIFIER, _POSITION[e.patient_orientation_modifier],
+        items.append(code_node(C.PATIENT_ORIENTATION, C.RECUMBENT, children=[
+            code_node(C.PATIENT_ORIENTATION_MODIFIER, _POSITION[e.patient_orientation_modifier],
                       HAS_CONCEPT_MOD)]))
     return items
 
 
-def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Dataset:
+def _projection_event(e: ProjectionEvent, is_mammo: bool, rp_definition) -> Item:
     children = [
-        code_item(C.ACQUISITION_PLANE, _PLANE[e.plane], HAS_CONCEPT_MOD),
-        uid_item(C.IRRADIATION_EVENT_UID, e.event_uid),
-        datetime_item(C.DATETIME_STARTED, e.started),
-        code_item(C.IRRADIATION_EVENT_TYPE, _EVENT_TYPE[e.event_type]),
-        text_item(C.ACQUISITION_PROTOCOL, e.protocol),
+        code_node(C.ACQUISITION_PLANE, _PLANE[e.plane], HAS_CONCEPT_MOD),
+        uid_node(C.IRRADIATION_EVENT_UID, e.event_uid),
+        datetime_node(C.DATETIME_STARTED, e.started),
+        code_node(C.IRRADIATION_EVENT_TYPE, _EVENT_TYPE[e.event_type]),
+        text_node(C.ACQUISITION_PROTOCOL, e.protocol),
     ]
     if e.anatomy is not None:
-        mods = [code_item(C.LATERALITY, _SIDE[e.laterality], HAS_CONCEPT_MOD)] if e.laterality else None
-        children.append(code_item(C.TARGET_REGION, e.anatomy, children=mods))
+        mods = [code_node(C.LATERALITY, _SIDE[e.laterality], HAS_CONCEPT_MOD)] if e.laterality else None
+        children.append(code_node(C.TARGET_REGION, e.anatomy, children=mods))
     if is_mammo and e.view in _VIEW:
-        children.append(code_item(C.IMAGE_VIEW, _VIEW[e.view]))
+        children.append(code_node(C.IMAGE_VIEW, _VIEW[e.view]))
     children += _patient_position(e)
     if e.entrance_exposure_mgy is not None:
-        children.append(num_item(C.ENTRANCE_EXPOSURE_AT_RP, e.entrance_exposure_mgy, C.UNIT_MGY))
+        children.append(num_node(C.ENTRANCE_EXPOSURE_AT_RP, e.entrance_exposure_mgy, C.UNIT_MGY))
     if e.dap_gy_cm2 is not None:
-        children.append(num_item(C.DOSE_AREA_PRODUCT, _gy_m2(e.dap_gy_cm2), C.UNIT_GY_M2))
+        children.append(num_node(C.DOSE_AREA_PRODUCT, _gy_m2(e.dap_gy_cm2), C.UNIT_GY_M2))
     # TID 10003A detector data
     if e.exposure_index is not None:
         children += [
-            num_item(C.EXPOSURE_INDEX, e.exposure_index, C.UNIT_NONE),
-            num_item(C.TARGET_EXPOSURE_INDEX, e.target_exposure_index, C.UNIT_NONE),
-            num_item(C.DEVIATION_INDEX, e.deviation_index, C.UNIT_NONE),
+            num_node(C.EXPOSURE_INDEX, e.exposure_index, C.UNIT_NONE),
+            num_node(C.TARGET_EXPOSURE_INDEX, e.target_exposure_index, C.UNIT_NONE),
+            num_node(C.DEVIATION_INDEX, e.deviation_index, C.UNIT_NONE),
         ]
     # TID 10003B source data
     if e.dose_rp_mgy is not None:
         children += [
-            num_item(C.DOSE_RP, _gy(e.dose_rp_mgy), C.UNIT_GY),
-            code_item(C.REFERENCE_POINT_DEFINITION, rp_definition),
+            num_node(C.DOSE_RP, _gy(e.dose_rp_mgy), C.UNIT_GY),
+            code_node(C.REFERENCE_POINT_DEFINITION, rp_definition),
         ]
     if e.agd_mgy is not None:
-        children.append(num_item(C.AVERAGE_GLANDULAR_DOSE, e.agd_mgy, C.UNIT_MGY))
+        children.append(num_node(C.AVERAGE_GLANDULAR_DOSE, e.agd_mgy, C.UNIT_MGY))
     if e.event_type == "fluoroscopy":
-        children.append(code_item(C.FLUORO_MODE, C.PULSED))
+        children.append(code_node(C.FLUORO_MODE, C.PULSED))
     if e.pulse_rate_per_s is not None:
-        children.append(num_item(C.PULSE_RATE, e.pulse_rate_per_s, C.UNIT_PULSE_PER_S))
+        children.append(num_node(C.PULSE_RATE, e.pulse_rate_per_s, C.UNIT_PULSE_PER_S))
     if e.number_of_pulses is not None:
-        children.append(num_item(C.NUMBER_OF_PULSES, e.number_of_pulses, C.UNIT_NONE))
+        children.append(num_node(C.NUMBER_OF_PULSES, e.number_of_pulses, C.UNIT_NONE))
     if e.pulse_width_ms is not None:
-        children.append(num_item(C.PULSE_WIDTH, e.pulse_width_ms, C.UNIT_MS))
+        children.append(num_node(C.PULSE_WIDTH, e.pulse_width_ms, C.UNIT_MS))
     if e.irradiation_duration_s is not None:
-        children.append(num_item(C.IRRADIATION_DURATION, e.irradiation_duration_s, C.UNIT_S))
+        children.append(num_node(C.IRRADIATION_DURATION, e.irradiation_duration_s, C.UNIT_S))
     children += [
-        num_item(C.KVP, e.kvp, C.UNIT_KV),
-        num_item(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
+        num_node(C.KVP, e.kvp, C.UNIT_KV),
+        num_node(C.XRAY_TUBE_CURRENT, e.tube_current_ma, C.UNIT_MA),
     ]
     if e.exposure_time_ms is not None:
-        children.append(num_item(C.EXPOSURE_TIME, e.exposure_time_ms, C.UNIT_MS))
+        children.append(num_node(C.EXPOSURE_TIME, e.exposure_time_ms, C.UNIT_MS))
     if e.exposure_uas is not None:
-        children.append(num_item(C.EXPOSURE, e.exposure_uas, C.UNIT_UAS))
+        children.append(num_node(C.EXPOSURE, e.exposure_uas, C.UNIT_UAS))
     if e.anode is not None:
-        children.append(code_item(C.ANODE_TARGET_MATERIAL, _MATERIAL[e.anode]))
+        children.append(code_node(C.ANODE_TARGET_MATERIAL, _MATERIAL[e.anode]))
     if e.filter_material is not None:
         children.append(_filters(e))
     if e.hvl_mm is not None:
-        children.append(num_item(C.HALF_VALUE_LAYER, e.hvl_mm, C.UNIT_MM))
+        children.append(num_node(C.HALF_VALUE_LAYER, e.hvl_mm, C.UNIT_MM))
     if e.field_area_m2 is not None:
-        children.append(num_item(C.COLLIMATED_FIELD_AREA, e.field_area_m2, C.UNIT_M2))
+        children.append(num_node(C.COLLIMATED_FIELD_AREA, e.field_area_m2, C.UNIT_M2))
     # TID 10003C mechanical data
     if e.primary_angle_deg is not None:
         children += [
-            num_item(C.POSITIONER_PRIMARY_ANGLE, e.primary_angle_deg, C.UNIT_DEG),
-            num_item(C.POSITIONER_SECONDARY_ANGLE, e.secondary_angle_deg, C.UNIT_DEG),
+            num_node(C.POSITIONER_PRIMARY_ANGLE, e.primary_angle_deg, C.UNIT_DEG),
+            num_node(C.POSITIONER_SECONDARY_ANGLE, e.secondary_angle_deg, C.UNIT_DEG),
         ]
     if e.compressed_thickness_mm is not None:
-        children.append(num_item(C.COMPRESSION_THICKNESS, e.compressed_thickness_mm, C.UNIT_MM))
+        children.append(num_node(C.COMPRESSION_THICKNESS, e.compressed_thickness_mm, C.UNIT_MM))
     if e.source_to_isocenter_mm is not None:
-        children.append(num_item(C.DISTANCE_SOURCE_TO_ISOCENTER, e.source_to_isocenter_mm, C.UNIT_MM))
+        children.append(num_node(C.DISTANCE_SOURCE_TO_ISOCENTER, e.source_to_isocenter_mm, C.UNIT_MM))
     if e.sid_mm is not None:
-        children.append(num_item(C.DISTANCE_SOURCE_TO_DETECTOR, e.sid_mm, C.UNIT_MM))
+        children.append(num_node(C.DISTANCE_SOURCE_TO_DETECTOR, e.sid_mm, C.UNIT_MM))
     for concept, value in ((C.TABLE_LONGITUDINAL_POSITION, e.table_longitudinal_mm),
                            (C.TABLE_LATERAL_POSITION, e.table_lateral_mm),
                            (C.TABLE_HEIGHT_POSITION, e.table_height_mm)):
         if value is not None:
-            children.append(num_item(concept, value, C.UNIT_MM))
-    return container(C.IRRADIATION_EVENT_XRAY_DATA, children)
+            children.append(num_node(concept, value, C.UNIT_MM))
+    return container_node(C.IRRADIATION_EVENT_XRAY_DATA, children)
 
 
-def _accumulated(plane: str, events: list[ProjectionEvent], modality: str, rp_definition) -> Dataset:
+def _accumulated(plane: str, events: list[ProjectionEvent], modality: str, rp_definition) -> Item:
     """TID 10002 for one plane, with TID 10004 / 10005 / 10007 as the device type requires."""
-    children = [code_item(C.ACQUISITION_PLANE, _PLANE[plane], HAS_CONCEPT_MOD)]
+    children = [code_node(C.ACQUISITION_PLANE, _PLANE[plane], HAS_CONCEPT_MOD)]
     if modality == "MG":
         for side in ("L", "R"):
             agd = [e.agd_mgy for e in events if e.laterality == side and e.agd_mgy is not None]
             if agd:
-                children.append(num_item(C.ACCUMULATED_AVERAGE_GLANDULAR_DOSE, round(sum(agd), 6),
+                children.append(num_node(C.ACCUMULATED_AVERAGE_GLANDULAR_DOSE, round(sum(agd), 6),
                                          C.UNIT_MGY, children=[
-                                             code_item(C.LATERALITY, _SIDE[side], HAS_CONCEPT_MOD)]))
-        return container(C.ACCUMULATED_XRAY_DOSE_DATA, children)
+                                             code_node(C.LATERALITY, _SIDE[side], HAS_CONCEPT_MOD)]))
+        return container_node(C.ACCUMULATED_XRAY_DOSE_DATA, children)
 
     def total(values) -> float:
         return round(sum(v for v in values if v is not None), 6)
@@ -409,26 +429,32 @@ def _accumulated(plane: str, events: list[ProjectionEvent], modality: str, rp_de
         fluoro = [e for e in events if e.event_type == "fluoroscopy"]
         acq = [e for e in events if e.event_type != "fluoroscopy"]
         children += [
-            num_item(C.FLUORO_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in fluoro)), C.UNIT_GY_M2),
-            num_item(C.FLUORO_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in fluoro)), C.UNIT_GY),
-            num_item(C.TOTAL_FLUORO_TIME, total(e.irradiation_duration_s for e in fluoro), C.UNIT_S),
-            num_item(C.ACQUISITION_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in acq)), C.UNIT_GY_M2),
-            num_item(C.ACQUISITION_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in acq)), C.UNIT_GY),
-            num_item(C.TOTAL_ACQUISITION_TIME, total(e.irradiation_duration_s for e in acq), C.UNIT_S),
-            num_item(C.TOTAL_NUMBER_OF_RADIOGRAPHIC_FRAMES,
+            num_node(C.FLUORO_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in fluoro)), C.UNIT_GY_M2),
+            num_node(C.FLUORO_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in fluoro)), C.UNIT_GY),
+            num_node(C.TOTAL_FLUORO_TIME, total(e.irradiation_duration_s for e in fluoro), C.UNIT_S),
+            num_node(C.ACQUISITION_DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in acq)), C.UNIT_GY_M2),
+            num_node(C.ACQUISITION_DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in acq)), C.UNIT_GY),
+            num_node(C.TOTAL_ACQUISITION_TIME, total(e.irradiation_duration_s for e in acq), C.UNIT_S),
+            num_node(C.TOTAL_NUMBER_OF_RADIOGRAPHIC_FRAMES,
                      sum(e.number_of_pulses or 1 for e in acq), C.UNIT_NONE),
         ]
     children += [
-        num_item(C.DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in events)), C.UNIT_GY_M2),
-        num_item(C.DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in events)), C.UNIT_GY),
-        code_item(C.REFERENCE_POINT_DEFINITION, rp_definition),
+        num_node(C.DOSE_AREA_PRODUCT_TOTAL, _gy_m2(total(e.dap_gy_cm2 for e in events)), C.UNIT_GY_M2),
+        num_node(C.DOSE_RP_TOTAL, _gy(total(e.dose_rp_mgy for e in events)), C.UNIT_GY),
+        code_node(C.REFERENCE_POINT_DEFINITION, rp_definition),
     ]
-    return container(C.ACCUMULATED_XRAY_DOSE_DATA, children)
+    return container_node(C.ACCUMULATED_XRAY_DOSE_DATA, children)
 
 
 def make_projection_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
     """X-Ray Radiation Dose SR with root TID 10001 (projection radiography, fluoroscopy,
     interventional or mammography) for the first `report.n_events` events."""
+    header, root = _projection_rdsr(scenario, spec, report)
+    return _with_content(header.dataset(), root)
+
+
+def _projection_rdsr(scenario: Scenario, spec: StudySpec,
+                     report: ReportSpec) -> tuple[Header, Item]:
     device = scenario.device(spec.device)
     modality = device.modality
     ds = _base(scenario, spec, report, XRAY_RADIATION_DOSE_SR, "SR", 990)
@@ -445,26 +471,29 @@ def make_projection_rdsr(scenario: Scenario, spec: StudySpec, report: ReportSpec
     if not is_mammo:
         kind = C.FLUORO_GUIDED_PROJECTION_SYSTEM if modality in ("RF", "XA") \
             else C.INTEGRATED_PROJECTION_SYSTEM
-        children.append(code_item(C.ACQUISITION_DEVICE_TYPE, kind))
+        children.append(code_node(C.ACQUISITION_DEVICE_TYPE, kind))
     children += [*_observer_context(scenario, device), _scope(spec)]
     children += [
-        code_item(C.XRAY_DETECTOR_DATA_AVAILABLE, C.YES if modality in ("DX", "CR") else C.NO),
-        code_item(C.XRAY_SOURCE_DATA_AVAILABLE, C.YES),
-        code_item(C.XRAY_MECHANICAL_DATA_AVAILABLE, C.YES),
+        code_node(C.XRAY_DETECTOR_DATA_AVAILABLE, C.YES if modality in ("DX", "CR") else C.NO),
+        code_node(C.XRAY_SOURCE_DATA_AVAILABLE, C.YES),
+        code_node(C.XRAY_MECHANICAL_DATA_AVAILABLE, C.YES),
     ]
     planes = ["A", "B"] if device.biplane else ["single"]
     for plane in planes:
         mine = [e for e in events if e.plane == plane]
         children.append(_accumulated(plane, mine, modality, rp))
     children += [_projection_event(e, is_mammo, rp) for e in events]
-    children.append(code_item(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION))
-    _root(ds, "10001", children)
-    return ds
+    children.append(code_node(C.SOURCE_OF_DOSE_INFORMATION, C.AUTOMATED_DATA_COLLECTION))
+    return ds, _root("10001", children)
 
 
 # --- image headers (units that send no dose report) -----------------------------------------
 
 def make_cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _cr_image(scenario, spec, report).dataset()
+
+
+def _cr_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """CR Image Storage object for one radiograph, dose in the header (PS3.3 C.8.1, C.8.7.8).
 
     (0018,115E) Image and Fluoroscopy Area Dose Product is in dGy.cm2 (1 dGy.cm2 =
@@ -534,7 +563,7 @@ _MG_ORIENTATION = {("L", "CC"): ["A", "R"], ("R", "CC"): ["P", "L"],
 CONTRAST_AGENT = "Iodinated contrast agent"  # generic description, no product name
 
 
-def _tiny_pixels(ds: Dataset, values) -> None:
+def _tiny_pixels(ds: Header | Dataset, values) -> None:
     """8x8 MONOCHROME2, 16 bits allocated, 12 stored, unsigned (PS3.3 C.7.6.3 Image Pixel)."""
     import numpy as np
 
@@ -571,6 +600,10 @@ def _per_image_exposure_ms(e: CtEvent) -> float:
 
 
 def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _ct_image(scenario, spec, report).dataset()
+
+
+def _ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """CT Image Storage (PS3.3 A.3) header for one CT acquisition, beside the study's RDSR.
 
     One representative image of acquisition number ``report.event_number`` (never a
@@ -597,7 +630,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     ds.SeriesDescription = e.protocol
     ds.ProtocolName = e.protocol
     ds.BodyPartExamined = _BODY_PART[e.target_region[0]]
-    ds.AnatomicRegionSequence = Sequence([code_sequence_item(e.target_region)])
+    ds.AnatomicRegionSequence = (code_sequence_node(e.target_region),)
     ds.PatientPosition = "HFS"
     # Frame of Reference (PS3.3 C.7.4.1) and Image Plane (PS3.3 C.7.6.2), mm
     ds.FrameOfReferenceUID = report.frame_of_reference_uid
@@ -635,7 +668,7 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
         ds.SpiralPitchFactor = e.pitch_factor
     if e.ctdivol_mgy is not None:
         ds.CTDIvol = e.ctdivol_mgy
-        ds.CTDIPhantomTypeCodeSequence = Sequence([code_sequence_item(_PHANTOM[e.phantom])])
+        ds.CTDIPhantomTypeCodeSequence = (code_sequence_node(_PHANTOM[e.phantom]),)
     ds.RescaleIntercept = "-1024"
     ds.RescaleSlope = "1"
     ds.RescaleType = "HU"
@@ -646,6 +679,10 @@ def make_ct_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
 
 
 def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:
+    return _mg_image(scenario, spec, report).dataset()
+
+
+def _mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Header:
     """Digital Mammography X-Ray Image Storage - For Presentation (PS3.3 A.27) for one view.
 
     Shares the RDSR event's Irradiation Event UID (0008,3010). Units: Organ Dose
@@ -668,15 +705,13 @@ def make_mg_image(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Da
     ds.BodyPartExamined = "BREAST"
     # DX Series (PS3.3 C.8.11.1), DX Anatomy Imaged (C.8.11.2), Mammography Image (C.8.11.7)
     ds.PresentationIntentType = "FOR PRESENTATION"
-    ds.AnatomicRegionSequence = Sequence([code_sequence_item(_BREAST)])
+    ds.AnatomicRegionSequence = (code_sequence_node(_BREAST),)
     ds.ImageLaterality = e.laterality
     ds.PatientOrientation = _MG_ORIENTATION[(e.laterality, e.view)]
     ds.PositionerType = "MAMMOGRAPHIC"
     ds.BreastImplantPresent = "NO"
     ds.OrganExposed = "BREAST"
-    view = code_sequence_item(_VIEW[e.view])
-    view.ViewModifierCodeSequence = Sequence()
-    ds.ViewCodeSequence = Sequence([view])
+    ds.ViewCodeSequence = ((*code_sequence_node(_VIEW[e.view]), (_VIEW_MODIFIERS, ())),)
     ds.ViewPosition = e.view
     # DX Positioning (PS3.3 C.8.11.5)
     ds.DistanceSourceToDetector = format_ds(e.sid_mm)
@@ -721,7 +756,7 @@ def make_basic_text_sr(scenario: Scenario, spec: StudySpec, sop_instance_uid: st
                         uid(scenario.uid_namespace, spec.study_uid, "text-series"), 1,
                         spec.study_datetime + dt.timedelta(hours=1))
     device = scenario.device(spec.device)
-    ds = _base(scenario, spec, report, BASIC_TEXT_SR, "SR", 900)
+    ds = _base(scenario, spec, report, BASIC_TEXT_SR, "SR", 900).dataset()
     _sr_document(ds, device)
     ds.ValueType = "CONTAINER"
     ds.ConceptNameCodeSequence = Sequence([code_sequence_item(("18748-4", "LN", "Diagnostic imaging study"))])
@@ -753,7 +788,7 @@ def make_ct_dose_screen(scenario: Scenario, spec: StudySpec, report: ReportSpec)
     shortest round-trip repr, so the text gives back the exact value.
     """
     events = spec.ct_events[:report.n_events]
-    ds = _base(scenario, spec, report, SECONDARY_CAPTURE, "CT", 999)
+    ds = _base(scenario, spec, report, SECONDARY_CAPTURE, "CT", 999).dataset()
     ds.ImageType = ["DERIVED", "SECONDARY", "OTHER"]
     ds.ConversionType = "WSD"
     ds.SeriesDescription = "Dose Report"
@@ -801,6 +836,22 @@ _MAKERS = {
     ("image_header", "CT"): make_ct_image,
     ("image_header", "MG"): make_mg_image,
 }
+
+_PARTS = {make_ct_rdsr: _ct_rdsr, make_projection_rdsr: _projection_rdsr,
+          make_cr_image: lambda *args: (_cr_image(*args), None),
+          make_ct_image: lambda *args: (_ct_image(*args), None),
+          make_mg_image: lambda *args: (_mg_image(*args), None)}
+
+
+def make_parts(scenario: Scenario, spec: StudySpec,
+               report: ReportSpec) -> tuple[Header | Dataset, Item | None]:
+    """What `make_dataset` makes, in the parts encoder.py writes fastest: a dose report's
+    header as a Header and its root content item as an Item; an image's header as a
+    Header, and None; a dose screen as a Dataset, and None."""
+    parts = _PARTS.get(_MAKERS.get((report.kind, spec.modality)))
+    if parts is not None:
+        return parts(scenario, spec, report)
+    return make_dataset(scenario, spec, report), None
 
 
 def make_dataset(scenario: Scenario, spec: StudySpec, report: ReportSpec) -> Dataset:

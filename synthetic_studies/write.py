@@ -18,12 +18,12 @@ whatever the number of worker processes.
 
 from __future__ import annotations
 
-import copy
-import io
 import multiprocessing
-import struct
 import os
-from concurrent.futures import ProcessPoolExecutor
+import threading
+import time
+from collections.abc import Callable
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -32,17 +32,10 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import numpy as np
 import pydicom.config
-from pydicom.charset import convert_encodings, default_encoding, encode_string
-from pydicom.dataelem import DataElement
-from pydicom.filebase import DicomBytesIO
-from pydicom.filewriter import correct_ambiguous_vr_element, write_file_meta_info
-from pydicom.dataset import validate_file_meta
-from pydicom.multival import MultiValue
-from pydicom.uid import ExplicitVRLittleEndian
-from pydicom.valuerep import AMBIGUOUS_VR, EXPLICIT_VR_LENGTH_32
 
 from .defects import CONTENT_DEFECTS, FILE_DEFECTS, apply_content_defect, is_eligible
-from .generator import make_basic_text_sr, make_dataset
+from .encoder import encode as _encode
+from .generator import make_basic_text_sr, make_dataset, make_parts
 from .sampling import _rng, device_observer_uid, make_study, uid
 from .scenario import Scenario, load_scenario
 from .specs import StudySpec, study_truth
@@ -137,241 +130,31 @@ def plan_defects(scenario: Scenario, seed: int, n_studies: int, months: int) -> 
     return plan
 
 
-def _encode(ds) -> bytes:
-    """The DICOM Part 10 bytes of `ds`, exactly as ``ds.save_as(enforce_file_format=True)``
-    writes them; a dedicated explicit-VR-little-endian encoder for the datasets we build,
-    with pydicom's writer for anything else (an element or a dataset it does not handle)."""
-    try:
-        return _fast_encode(ds)
-    except _NotHandled:
-        return _pydicom_encode(ds)
-
-
-def _pydicom_encode(ds) -> bytes:
-    buf = io.BytesIO()
-    ds.save_as(buf, enforce_file_format=True)
-    return buf.getvalue()
-
-
-# --- a small explicit VR little endian writer (speed only: same bytes as pydicom's) ----------
-#
-# It mirrors pydicom 3's filewriter for what generator.py builds: elements in tag order,
-# group lengths above group 6 skipped, sequences and items of defined length, text in the
-# dataset's character set padded with a space, UIDs padded with NUL, numbers packed little
-# endian. Anything else (raw elements, ambiguous VRs inside items, undefined lengths, values
-# over 64 KiB in a 16-bit length field, an unusual transfer syntax) raises _NotHandled and
-# the whole dataset goes through pydicom instead.
-
-class _NotHandled(Exception):
-    pass
-
-
-_LONG_VR = frozenset(str(vr) for vr in EXPLICIT_VR_LENGTH_32)
-_STRING_VR = frozenset({"AE", "AS", "CS", "UR", "DA", "DT", "TM"})
-_TEXT_VR = frozenset({"LO", "LT", "SH", "ST", "UC", "UT"})
-_NUMBER_STRING_VR = frozenset({"DS", "IS"})
-_PACKED_VR = {"FD": "d", "FL": "f", "US": "H", "UL": "L", "SS": "h", "SL": "l", "SV": "q",
-              "UV": "Q"}
-_BYTES_VR = frozenset({"OB", "OW", "OD", "OF", "OL", "OV", "UN"})
-_ITEM = struct.pack("<HHL", 0xFFFE, 0xE000, 0)[:4]
-
-
-def _fast_encode(ds) -> bytes:
-    meta = getattr(ds, "file_meta", None)
-    if meta is None or meta.get("TransferSyntaxUID") != ExplicitVRLittleEndian:
-        raise _NotHandled
-    if getattr(ds, "preamble", None) is not None or any(t.group in (0, 2) for t in ds.keys()):
-        raise _NotHandled
-    meta = copy.deepcopy(meta)
-    sop_class, sop_instance = ds.get("SOPClassUID"), ds.get("SOPInstanceUID")
-    if meta.get("MediaStorageSOPClassUID") is None or (
-            sop_class and sop_class != meta.MediaStorageSOPClassUID):
-        meta.MediaStorageSOPClassUID = sop_class
-    if meta.get("MediaStorageSOPInstanceUID") is None or (
-            sop_instance and sop_instance != meta.MediaStorageSOPInstanceUID):
-        meta.MediaStorageSOPInstanceUID = sop_instance
-    validate_file_meta(meta, enforce_standard=True)
-    head = DicomBytesIO()
-    head.is_little_endian, head.is_implicit_VR = True, False
-    head.write(b"\x00" * 128 + b"DICM")
-    write_file_meta_info(head, meta, enforce_standard=True)
-    if "PixelData" in ds:
-        ds["PixelData"].is_undefined_length = False
-    out = [head.getvalue()]
-    _encode_dataset(out, ds, [default_encoding], top=True)
-    return b"".join(out)
-
-
-_CHARSET_TAG = 0x00080005
-_CODE_ITEM_TAGS = (0x00080100, 0x00080102, 0x00080104)  # Code Value, Scheme, Code Meaning
-_ENCODINGS: dict[tuple, list[str]] = {}
-# The bytes of a code sequence item (Code Value, Coding Scheme Designator, Code Meaning, all
-# text) by its three values and character set: thousands of content items share a few
-# hundred codes, so each distinct one is encoded once per process.
-_CODE_ITEMS: dict[tuple, bytes] = {}
-
-
-def _encodings(charset) -> list[str]:
-    key = charset if isinstance(charset, str) else tuple(charset)
-    found = _ENCODINGS.get(key)
-    if found is None:
-        found = _ENCODINGS[key] = convert_encodings(charset)
-    return found
-
-
-def _encode_dataset(out: list[bytes], ds, parent_encodings: list[str], top: bool = False) -> int:
-    """Append the encoded elements of `ds` to `out`; returns the number of bytes."""
-    elements = ds._dict
-    charset = elements.get(_CHARSET_TAG)
-    if charset is not None and charset.is_raw:
-        raise _NotHandled
-    charset = charset.value if charset is not None else None
-    encodings = _encodings(charset if charset is not None else parent_encodings)
-    if len(elements) == 3 and not top:
-        items = [elements.get(t) for t in _CODE_ITEM_TAGS]
-        if all(type(e) is DataElement and type(e.value) is str for e in items):
-            key = (*((e.VR, e.value) for e in items), *encodings)
-            data = _CODE_ITEMS.get(key)
-            if data is None:
-                parts: list[bytes] = []
-                _encode_elements(parts, ds, elements, encodings, top)
-                data = b"".join(parts)
-                if len(_CODE_ITEMS) < 65_536:
-                    _CODE_ITEMS[key] = data
-            out.append(data)
-            return len(data)
-    return _encode_elements(out, ds, elements, encodings, top)
-
-
-def _encode_elements(out: list[bytes], ds, elements: dict, encodings: list[str],
-                     top: bool) -> int:
-    n = 0
-    for tag in sorted(elements, key=int):
-        if not tag & 0xFFFF and tag >> 16 > 6:
-            continue
-        elem = elements[tag]
-        if elem.is_raw:
-            raise _NotHandled
-        if elem.VR in AMBIGUOUS_VR:
-            if not top:
-                raise _NotHandled
-            correct_ambiguous_vr_element(elem, ds, True)
-        n += _encode_element(out, elem, encodings)
-    return n
-
-
-def _encode_element(out: list[bytes], elem, encodings: list[str]) -> int:
-    vr = str(elem.VR)
-    tag = elem.tag
-    if elem.is_undefined_length or elem.is_buffered:
-        raise _NotHandled
-    if vr == "SQ":
-        header_at = len(out)
-        out.append(b"")
-        length = 0
-        for item in elem.value:
-            if getattr(item, "is_undefined_length_sequence_item", False):
-                raise _NotHandled
-            item_at = len(out)
-            out.append(b"")
-            size = _encode_dataset(out, item, encodings)
-            out[item_at] = _ITEM + struct.pack("<L", size)
-            length += 8 + size
-        out[header_at] = struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, b"SQ", 0, length)
-        return 12 + length
-    value = elem.value
-    empty = not value if type(value) is str else elem.is_empty  # a str: VM 0 when ""
-    value = b"" if empty else _value_bytes(elem, vr, encodings)
-    if vr in _LONG_VR:
-        out.append(struct.pack("<HH2sHL", tag >> 16, tag & 0xFFFF, vr.encode(), 0, len(value)))
-        out.append(value)
-        return 12 + len(value)
-    if len(value) > 0xFFFF:
-        raise _NotHandled  # pydicom rewrites the VR as UN, with a warning
-    out.append(struct.pack("<HH2sH", tag >> 16, tag & 0xFFFF, vr.encode(), len(value)))
-    out.append(value)
-    return 8 + len(value)
-
-
-def _text(value: str, encodings: list[str]) -> bytes:
-    if len(encodings) == 1 and encodings[0] in ("latin_1", "iso8859"):
-        try:
-            return value.encode(encodings[0])
-        except UnicodeError:
-            pass
-    return encode_string(value, encodings)
-
-
-def _is_multi(value) -> bool:
-    return type(value) is not str and isinstance(value, (MultiValue, list, tuple, np.ndarray))
-
-
-def _value_bytes(elem, vr: str, encodings: list[str]) -> bytes:
-    value = elem.value
-    if vr in _STRING_VR or vr == "UI":
-        if vr in ("DA", "DT", "TM") and not isinstance(value, str):
-            raise _NotHandled
-        text = "\\".join(value) if _is_multi(value) else value
-        if len(text) % 2:
-            text += "\0" if vr == "UI" else " "
-        return text.encode(default_encoding) if isinstance(text, str) else text
-    if vr in _TEXT_VR:
-        if _is_multi(value):
-            if not isinstance(value[0], str):
-                raise _NotHandled
-            data = b"\\".join(_text(v, encodings) for v in value)
-        elif isinstance(value, str):
-            data = _text(value, encodings)
-        else:
-            raise _NotHandled
-        return data + b" " if len(data) % 2 else data
-    if vr in _NUMBER_STRING_VR:
-        if _is_multi(value):
-            text = "\\".join(x.original_string if hasattr(x, "original_string") else str(x)
-                              for x in value)
-        else:
-            text = value.original_string if hasattr(value, "original_string") else str(value)
-        if len(text) % 2:
-            text += " "
-        return bytes(text, default_encoding)
-    if vr == "PN":
-        values = [value] if elem.VM == 1 else value
-        data = b"\\".join(v.encode(encodings) for v in values)
-        return data + b" " if len(data) % 2 else data
-    fmt = _PACKED_VR.get(vr)
-    if fmt is not None:
-        if value is None or value == "":
-            return b""
-        if hasattr(value, "append"):
-            if vr == "SS":
-                raise _NotHandled  # LUT descriptor rule
-            return struct.pack(f"<{len(value)}{fmt}", *value)
-        return struct.pack("<" + fmt, value)
-    if vr in _BYTES_VR and isinstance(value, bytes):
-        return value + b"\x00" if len(value) % 2 else value
-    raise _NotHandled
-
 
 def _write_bytes(root: Path, rel: str, data: bytes) -> None:
-    path = root / rel
-    path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_bytes(data)
+    """Write one file (its study's folder is made before the first)."""
+    with open(root / rel, "wb") as f:
+        f.write(data)
 
 
 def _write_study(scenario: Scenario, seed: int, index: int, n_studies: int, months: int,
                  defects: list[str], root: Path) -> tuple[list[dict], dict]:
     spec = make_study(scenario, seed, index, n_studies, months)
     folder = _study_dir(spec)
+    (root / folder).mkdir(parents=True, exist_ok=True)
     sid = _study_id(index)
     content_defect = next((d for d in defects if d in CONTENT_DEFECTS), None)
     files: list[dict] = []
     for report in spec.reports:
-        ds = make_dataset(scenario, spec, report)
         defect = None
         if content_defect and report.kind == "rdsr" and report.instance_number == 1:
+            ds = make_dataset(scenario, spec, report)  # spoilt as a whole Dataset
             apply_content_defect(ds, content_defect)
             defect = content_defect
-        data = _encode(ds)
+            data = _encode(ds)
+        else:
+            ds, content = make_parts(scenario, spec, report)
+            data = _encode(ds, content)
         name = f"rdsr_{report.instance_number}.dcm" if report.kind == "rdsr" \
             else f"dose_screen_{report.instance_number}.dcm" if report.kind == "dose_screen" \
             else f"img_{report.n_events}.dcm"
@@ -475,9 +258,25 @@ def _strict_writing():
         settings.writing_validation_mode = before
 
 
+_SCENARIOS: dict[tuple | None, Scenario] = {}
+
+
+def _scenario(path: Path | str | None) -> Scenario:
+    """load_scenario, once per process and version of the file (parsing takes some 7 ms;
+    every chunk of studies needs the scenario)."""
+    key = None
+    if path is not None:
+        stat = os.stat(path)
+        key = (str(Path(path).resolve()), stat.st_mtime_ns, stat.st_size)
+    found = _SCENARIOS.get(key)
+    if found is None:
+        found = _SCENARIOS[key] = load_scenario(path)
+    return found
+
+
 def _write_chunk(args) -> tuple[list[dict], list[dict]]:
     scenario_path, seed, indices, n_studies, months, plan, root = args
-    scenario = load_scenario(scenario_path)
+    scenario = _scenario(scenario_path)
     files, studies = [], []
     with _strict_writing():
         for index in indices:
@@ -486,6 +285,83 @@ def _write_chunk(args) -> tuple[list[dict], list[dict]]:
             files += f
             studies.append(s)
     return files, studies
+
+
+def _prepare_arrow() -> None:
+    """Have pyarrow load now what its first conversion of Python values loads (it imports
+    pandas, some 0.3 s): while helper processes start, not after the last study."""
+    pa.array([0])
+
+
+# CPU seconds a spawned helper process spends before its first study (importing numpy,
+# pydicom and pyarrow, then its first encodings): measured 0.5 s on the 2-core machine.
+HELPER_START_CPU_S = 0.5
+
+
+def _run_jobs(jobs: list[tuple], workers: int,
+              meanwhile: Callable[[], None] | None = None) -> list:
+    """`_write_chunk` of every job on at most `workers` processes, this one among them;
+    results in job order. `meanwhile`: work for this process while the helpers start.
+
+    This process has imported everything already; a spawned helper costs about
+    HELPER_START_CPU_S before it writes anything. So this process writes the first chunk
+    and measures it (CPU time: the same on a busy machine); helpers are started only if the
+    chunks left would take more than twice that start (then a helper saves wall time on
+    free cores, and on a machine whose cores are all busy its start costs at most half of
+    the CPU time of the work left). While they
+    start this process goes on with the jobs, and a feeder thread hands each helper its next
+    job as soon as it returns the last. Jobs are taken in order from one shared counter, so
+    none is done twice and the output is the same whichever process wrote which study.
+    """
+    if workers == 1 or len(jobs) == 1:
+        return [_write_chunk(job) for job in jobs]
+    started = time.process_time()
+    first = _write_chunk(jobs[0])
+    left_cpu_s = (time.process_time() - started) * (len(jobs) - 1)
+    if left_cpu_s <= 2 * HELPER_START_CPU_S:
+        return [first, *(_write_chunk(job) for job in jobs[1:])]
+    results: list = [first, *([None] * (len(jobs) - 1))]
+    order = iter(range(1, len(jobs)))
+    lock = threading.Lock()
+    failed: list[BaseException] = []
+
+    def take() -> int | None:
+        with lock:
+            return None if failed else next(order, None)
+
+    def feed(pool: ProcessPoolExecutor) -> None:
+        try:
+            running: dict = {}
+            while True:
+                while len(running) < workers - 1 and (i := take()) is not None:
+                    running[pool.submit(_write_chunk, jobs[i])] = i
+                if not running:
+                    return
+                done, _ = wait(running, return_when=FIRST_COMPLETED)
+                for future in done:
+                    results[running.pop(future)] = future.result()
+        except BaseException as error:  # handed on to the caller
+            failed.append(error)
+
+    # "spawn", not the Linux default "fork": a forked child inherits the caller's native
+    # library state (e.g. an open DuckDB connection and its threads) and can crash on it.
+    # Helpers need nothing from this process but their picklable job tuple.
+    with ProcessPoolExecutor(max_workers=workers - 1,
+                             mp_context=multiprocessing.get_context("spawn")) as pool:
+        feeder = threading.Thread(target=feed, args=(pool,), name="corpus-feeder")
+        feeder.start()
+        try:
+            if meanwhile is not None:
+                meanwhile()
+            while (i := take()) is not None:
+                results[i] = _write_chunk(jobs[i])
+        except BaseException as error:
+            failed.append(error)
+        finally:
+            feeder.join()
+    if failed:
+        raise failed[0]
+    return results
 
 
 def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studies: int = 2000,
@@ -497,28 +373,21 @@ def write_corpus(out_dir: Path | str, *, seed: int = 7, months: int = 3, n_studi
     out_dir : folder to write (created; existing files with the same names are replaced)
     seed, months, n_studies : what to draw; the same values give byte-identical output
     scenario_path : a scenario TOML file; default the bundled demo network
-    workers : processes to use (default: CPU count, at most 8)
+    workers : processes to use at most, this one included (default: CPU count, at most 8);
+        helpers are started only for work that outweighs their start (see _run_jobs)
     """
     if n_studies < 1 or months < 1:
         raise ValueError("need at least one study and one month")
     root = Path(out_dir)
     root.mkdir(parents=True, exist_ok=True)
-    scenario = load_scenario(scenario_path)
+    scenario = _scenario(scenario_path)
     plan = plan_defects(scenario, seed, n_studies, months)
     workers = workers or min(8, os.cpu_count() or 1)
     chunk = max(25, n_studies // (workers * 8) or 1)
     jobs = [(scenario_path, seed, list(range(i, min(i + chunk, n_studies))), n_studies, months,
              plan, root) for i in range(0, n_studies, chunk)]
+    results = _run_jobs(jobs, workers, meanwhile=_prepare_arrow)
     files, studies = [], []
-    if workers == 1 or len(jobs) == 1:
-        results = list(map(_write_chunk, jobs))
-    else:
-        # "spawn", not the Linux default "fork": a forked child inherits the caller's native
-        # library state (e.g. an open DuckDB connection and its threads) and can crash on it.
-        # Workers need nothing from the parent but their picklable job tuple.
-        with ProcessPoolExecutor(max_workers=workers,
-                                 mp_context=multiprocessing.get_context("spawn")) as pool:
-            results = list(pool.map(_write_chunk, jobs))
     for f, s in results:
         files += f
         studies += s
