@@ -296,6 +296,13 @@ _MATERIALISED = ("study_dose", "audit_observation")
 # the warehouse holds (common practice, no source: half of a small 2-core, 4 GiB machine's RAM
 # leaves room for Python and the OS).
 AUDIT_MEMORY_LIMIT = "1GB"
+# Medians, quantiles, sorted lists and distinct counts hold their values in memory (DuckDB does
+# not spill these aggregate states), so the statements that group every observation of the
+# period per room (audit_medians, monthly_medians, dose_alerts) run over parts of the rooms, by a
+# hash of device_key, of about this many observations each: memory then stays flat however many
+# rooms a network holds. Up to this many, one part: the plan and the row order are as before.
+# Common practice, no source: measured to fit the limit above with room to spare.
+ROWS_PER_PART = 1_000_000
 
 
 def _register_temp(con, name: str, table: pa.Table) -> None:
@@ -315,6 +322,25 @@ def _run_statements(con, text: str, params: dict) -> None:
         if re.sub(r"--[^\n]*", "", statement).strip():
             names = set(re.findall(r"\$(\w+)", statement))
             con.execute(statement, {k: v for k, v in params.items() if k in names})
+
+
+def _by_parts(con, name: str, params: dict, parts: int) -> None:
+    """Run queries/audit/<name>.sql, a ``create or replace table T as ...`` whose rows each belong
+    to one room and which keeps rows with ``hash(device_key) % $parts = $part``: the first part
+    creates T, the others are inserted into it. With several parts, T's row order is by part
+    (the audit tables' order is not part of their interface: read them with ORDER BY)."""
+    import re
+
+    text = sql(name)
+    head = re.search(r"create or replace table (\w+) as", text)
+    for part in range(parts):
+        if part:
+            text_part = text[:head.start()] + f"insert into {head.group(1)}" + text[head.end():]
+        else:
+            text_part = text
+        used = {k: v for k, v in {**params, "part": part, "parts": parts}.items()
+                if f"${k}" in text_part}
+        con.execute(text_part, used)
 
 
 def _records(cursor) -> list[dict]:
@@ -569,15 +595,18 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                   "weight_min": settings.standard_weight_min_kg,
                   "weight_max": settings.standard_weight_max_kg,
                   "low_fraction": settings.well_below_fraction}
-        con.execute(sql("audit_medians"), params)
+        (n_obs,) = con.execute(sql("count_period_observations"),
+                               {"date_to": after}).fetchall()[0]
+        parts = max(1, -(-n_obs // ROWS_PER_PART))
+        _by_parts(con, "audit_medians", params, parts)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
         con.execute(sql("create_ct_accumulated"), {
             "date_from": first, "date_to": after, "method_by_position": METHOD_BY_POSITION,
             "method_upper_bound": METHOD_UPPER_BOUND})
-        con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
-                                         "outlier_min_n": settings.outlier_min_n,
-                                         "adult_min_age": settings.adult_min_age_years})
+        _by_parts(con, "dose_alerts", {"date_from": first, "date_to": after,
+                                       "outlier_min_n": settings.outlier_min_n,
+                                       "adult_min_age": settings.adult_min_age_years}, parts)
         con.register("effective_dose_factor", _effective_dose_factors(con, after, settings))
         con.register("ssde_fit", _ssde_fits(settings))
         try:
@@ -591,7 +620,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         _skin_dose(con, first, after, min(psd_thresholds) if psd_thresholds else None)
         con.execute(sql("skin_dose_alerts"))
         adult = {"date_to": after, "adult_min_age": settings.adult_min_age_years}
-        con.execute(sql("monthly_medians"), adult)
+        _by_parts(con, "monthly_medians", adult, parts)
         drift = _drift_flags(con, after, settings)
         drift.insert(0, "period", label)
         con.register("incoming_drift_flags",

@@ -8,6 +8,9 @@
 -- A reference is compared only with the same exam type, quantity, population and band, and
 -- CTDIvol only when the reference's source states its phantom and it equals the group's;
 -- reference_scope_note says what else the reader must know (indication, fallback, why not).
+-- Every group lies within one room, so the statement runs over parts of the rooms ($part of
+-- $parts, by a hash of device_key) when the period holds many observations: the quantile and list
+-- states, which DuckDB holds in memory, then stay within the audit's memory limit.
 create or replace table audit_medians as
 with
 observed as (
@@ -21,6 +24,7 @@ observed as (
     from audit_input as o
     left join exam_stratum_basis as b using (exam_type)
     where o.study_date >= $date_from and o.study_date < $date_to
+      and hash(o.device_key) % $parts = $part   -- one part of the rooms (pipeline.audit._by_parts)
 ),
 obs as (
     select o.*,

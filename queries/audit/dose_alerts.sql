@@ -6,6 +6,7 @@ create or replace table dose_alerts as
 with
 studies as (
     select * from study_dose where study_date >= $date_from and study_date < $date_to
+      and hash(device_key) % $parts = $part   -- one part of the rooms (pipeline.audit._by_parts)
 ),
 rules as (
     select * from alert_rule_in_force
@@ -95,6 +96,7 @@ obs as (
     select o.*, ln(o.value) as log_value
     from audit_observation as o
     where o.study_date >= $date_from and o.study_date < $date_to and o.value > 0
+      and hash(o.device_key) % $parts = $part
 ),
 centre as (
     select exam_type, device_key, quantity, median(log_value) as med, count(*) as n

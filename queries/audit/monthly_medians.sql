@@ -6,6 +6,7 @@ select site, device_key, exam_type, quantity, unit, phantom, period as month,
 from audit_observation
 where study_date < $date_to
   and patient_age_years >= $adult_min_age  -- unknown age is not adult
+  and hash(device_key) % $parts = $part     -- one part of the rooms (pipeline.audit._by_parts)
 group by all
 order by device_key, exam_type, quantity, month
 

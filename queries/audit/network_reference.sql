@@ -23,7 +23,13 @@ select
     any_value(reference_country) as reference_country,
     any_value(reference_indication) as reference_indication,
     any_value(reference_population) as reference_population,
-    any_value(reference_scope_note) as reference_scope_note
+    -- the scope note of the network's group (not of one room: the room's indication count is
+    -- replaced by the network's), the same whatever the order of audit_medians' rows
+    regexp_replace(arg_min(reference_scope_note, device_key),
+                   '\(\d+ of \d+ marked with that indication by the indication rules\)',
+                   '(' || coalesce(sum(n_indication_matched), 0) || ' of ' || sum(n)
+                       || ' marked with that indication by the indication rules)')
+        as reference_scope_note
 from audit_medians
 group by period, exam_type, quantity, unit, population, stratum, phantom
 order by exam_type, quantity, population, stratum
