@@ -1,7 +1,7 @@
 """The generator's speed-only paths give what the plain pydicom way gives.
 
 sr.py builds content items from their elements (a blank Dataset's attributes, constant
-elements copied from a template); write.py encodes with its own explicit VR little endian
+elements copied from a template); encoder.py encodes with its own explicit VR little endian
 writer that reuses the bytes of code items. Check values here come from pydicom itself
 (keyword assignment, ``Dataset.save_as``), the independent reference.
 """
