@@ -2,8 +2,12 @@
 
 from __future__ import annotations
 
+import fcntl
 import os
+import pickle
+import shutil
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 
 # Prefect runs in its own local mode (no server) with a throw-away home: set before anything
@@ -29,12 +33,39 @@ CORPUS_STUDIES = 320   # enough for every unit, story and defect to appear
 CORPUS_SEED = 7
 
 
+def built_once(tmp_path_factory, name: str, build: Callable[[Path], object]):
+    """`build(folder)` run once per test run, its folder and (pickled) result shared.
+
+    Alone, pytest builds it in a fresh temporary folder, as any session fixture. Under
+    pytest-xdist (`make test` runs two workers) each worker is a process of its own with its own
+    session; the first worker to ask builds the input in the run's common temporary folder under
+    an exclusive lock, the others wait on that lock and reuse the folder read-only. Tests that
+    write copy first (shutil.copy), as they do alone.
+    """
+    if "PYTEST_XDIST_WORKER" not in os.environ:
+        return build(tmp_path_factory.mktemp(name))
+    shared = tmp_path_factory.getbasetemp().parent / f"shared-{name}"
+    result_file = shared.with_name(shared.name + ".pickle")
+    with open(shared.with_name(shared.name + ".lock"), "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)          # released when the file is closed
+        if result_file.exists():
+            return pickle.loads(result_file.read_bytes())
+        if shared.exists():                        # a worker failed half-way: start again
+            shutil.rmtree(shared)
+        shared.mkdir()
+        result = build(shared)
+        result_file.write_bytes(pickle.dumps(result))
+        return result
+
+
 @pytest.fixture(scope="session")
 def corpus(tmp_path_factory) -> Path:
     """The demo scenario at small size: seed 7, 3 months, 320 studies."""
-    out = tmp_path_factory.mktemp("corpus")
-    write_corpus(out, seed=CORPUS_SEED, months=3, n_studies=CORPUS_STUDIES, workers=2)
-    return out
+    def build(out: Path) -> Path:
+        write_corpus(out, seed=CORPUS_SEED, months=3, n_studies=CORPUS_STUDIES, workers=2)
+        return out
+
+    return built_once(tmp_path_factory, "corpus", build)
 
 
 @pytest.fixture(scope="session")
@@ -53,9 +84,11 @@ def warehouse(corpus, tmp_path_factory):
     from pipeline.ingest import ingest
     from tests.helpers import KEY
 
-    db = tmp_path_factory.mktemp("warehouse") / "kerma.duckdb"
-    summary = ingest([corpus], db, KEY, workers=2)
-    return db, summary
+    def build(root: Path):
+        db = root / "kerma.duckdb"
+        return db, ingest([corpus], db, KEY, workers=2)
+
+    return built_once(tmp_path_factory, "warehouse", build)
 
 
 @pytest.fixture(scope="session")
@@ -68,9 +101,11 @@ def audited(tmp_path_factory):
     from pipeline.ingest import ingest
     from tests.helpers import KEY
 
-    root = tmp_path_factory.mktemp("audited")
-    write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
-    db = root / "kerma.duckdb"
-    ingest([root / "corpus"], db, KEY, workers=2)
-    summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
-    return db, summary, root / "corpus"
+    def build(root: Path):
+        write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
+        db = root / "kerma.duckdb"
+        ingest([root / "corpus"], db, KEY, workers=2)
+        summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
+        return db, summary, root / "corpus"
+
+    return built_once(tmp_path_factory, "audited", build)
