@@ -2,12 +2,8 @@
 
 from __future__ import annotations
 
-import fcntl
 import os
-import pickle
-import shutil
 import tempfile
-from collections.abc import Callable
 from pathlib import Path
 
 # Prefect runs in its own local mode (no server) with a throw-away home: set before anything
@@ -24,6 +20,7 @@ import pydicom.config  # noqa: E402
 import pytest  # noqa: E402
 
 from synthetic_studies.write import write_corpus  # noqa: E402
+from tests.helpers import built_once  # noqa: E402
 
 # Tests run strict (STYLE A.8): invalid values raise instead of warning.
 pydicom.config.settings.reading_validation_mode = pydicom.config.RAISE
@@ -31,31 +28,6 @@ pydicom.config.settings.writing_validation_mode = pydicom.config.RAISE
 
 CORPUS_STUDIES = 320   # enough for every unit, story and defect to appear
 CORPUS_SEED = 7
-
-
-def built_once(tmp_path_factory, name: str, build: Callable[[Path], object]):
-    """`build(folder)` run once per test run, its folder and (pickled) result shared.
-
-    Alone, pytest builds it in a fresh temporary folder, as any session fixture. Under
-    pytest-xdist (`make test` runs two workers) each worker is a process of its own with its own
-    session; the first worker to ask builds the input in the run's common temporary folder under
-    an exclusive lock, the others wait on that lock and reuse the folder read-only. Tests that
-    write copy first (shutil.copy), as they do alone.
-    """
-    if "PYTEST_XDIST_WORKER" not in os.environ:
-        return build(tmp_path_factory.mktemp(name))
-    shared = tmp_path_factory.getbasetemp().parent / f"shared-{name}"
-    result_file = shared.with_name(shared.name + ".pickle")
-    with open(shared.with_name(shared.name + ".lock"), "w") as lock:
-        fcntl.flock(lock, fcntl.LOCK_EX)          # released when the file is closed
-        if result_file.exists():
-            return pickle.loads(result_file.read_bytes())
-        if shared.exists():                        # a worker failed half-way: start again
-            shutil.rmtree(shared)
-        shared.mkdir()
-        result = build(shared)
-        result_file.write_bytes(pickle.dumps(result))
-        return result
 
 
 @pytest.fixture(scope="session")
