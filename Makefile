@@ -24,8 +24,11 @@ tools:
 demo: $(STAMP) tools
 	$(BIN)/kerma demo
 
+# Two pytest-xdist workers (CI is a 2-core machine); a test file stays on one worker, so its
+# module fixtures (Orthanc, Chromium, the Prefect server) start once. TEST_WORKERS=0: one process.
+TEST_WORKERS ?= 2
 test: $(STAMP) tools
-	$(BIN)/python -m pytest
+	$(BIN)/python -m pytest -n $(TEST_WORKERS) --dist loadfile
 
 clean:
 	rm -rf kerma-demo .pytest_cache

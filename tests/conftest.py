@@ -20,6 +20,7 @@ import pydicom.config  # noqa: E402
 import pytest  # noqa: E402
 
 from synthetic_studies.write import write_corpus  # noqa: E402
+from tests.helpers import built_once  # noqa: E402
 
 # Tests run strict (STYLE A.8): invalid values raise instead of warning.
 pydicom.config.settings.reading_validation_mode = pydicom.config.RAISE
@@ -32,9 +33,11 @@ CORPUS_SEED = 7
 @pytest.fixture(scope="session")
 def corpus(tmp_path_factory) -> Path:
     """The demo scenario at small size: seed 7, 3 months, 320 studies."""
-    out = tmp_path_factory.mktemp("corpus")
-    write_corpus(out, seed=CORPUS_SEED, months=3, n_studies=CORPUS_STUDIES, workers=2)
-    return out
+    def build(out: Path) -> Path:
+        write_corpus(out, seed=CORPUS_SEED, months=3, n_studies=CORPUS_STUDIES, workers=2)
+        return out
+
+    return built_once(tmp_path_factory, "corpus", build)
 
 
 @pytest.fixture(scope="session")
@@ -53,9 +56,11 @@ def warehouse(corpus, tmp_path_factory):
     from pipeline.ingest import ingest
     from tests.helpers import KEY
 
-    db = tmp_path_factory.mktemp("warehouse") / "kerma.duckdb"
-    summary = ingest([corpus], db, KEY, workers=2)
-    return db, summary
+    def build(root: Path):
+        db = root / "kerma.duckdb"
+        return db, ingest([corpus], db, KEY, workers=2)
+
+    return built_once(tmp_path_factory, "warehouse", build)
 
 
 @pytest.fixture(scope="session")
@@ -68,9 +73,11 @@ def audited(tmp_path_factory):
     from pipeline.ingest import ingest
     from tests.helpers import KEY
 
-    root = tmp_path_factory.mktemp("audited")
-    write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
-    db = root / "kerma.duckdb"
-    ingest([root / "corpus"], db, KEY, workers=2)
-    summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
-    return db, summary, root / "corpus"
+    def build(root: Path):
+        write_corpus(root / "corpus", seed=7, months=3, n_studies=1200, workers=2)
+        db = root / "kerma.duckdb"
+        ingest([root / "corpus"], db, KEY, workers=2)
+        summary = run_audit(db, date_from=dt.date(2026, 9, 1), date_to=dt.date(2026, 11, 30))
+        return db, summary, root / "corpus"
+
+    return built_once(tmp_path_factory, "audited", build)

@@ -1,6 +1,11 @@
 """Small helpers shared by tests."""
 
+import fcntl
+import os
+import pickle
 import shutil
+from collections.abc import Callable
+from pathlib import Path
 
 import pytest
 
@@ -12,6 +17,31 @@ def require_tool(name: str) -> str:
         pytest.fail(f"external tool {name!r} not found: install Debian packages dcmtk and "
                     f"dicom3tools (.ci/run does)", pytrace=False)
     return path
+
+
+def built_once(tmp_path_factory, name: str, build: Callable[[Path], object]):
+    """`build(folder)` run once per test run, its folder and (pickled) result shared.
+
+    Alone, pytest builds it in a fresh temporary folder, as any session fixture. Under
+    pytest-xdist (`make test` runs two workers) each worker is a process of its own with its own
+    session; the first worker to ask builds the input in the run's common temporary folder under
+    an exclusive lock, the others wait on that lock and reuse the folder read-only. Tests that
+    write copy first (shutil.copy), as they do alone.
+    """
+    if "PYTEST_XDIST_WORKER" not in os.environ:
+        return build(tmp_path_factory.mktemp(name))
+    shared = tmp_path_factory.getbasetemp().parent / f"shared-{name}"
+    result_file = shared.with_name(shared.name + ".pickle")
+    with open(shared.with_name(shared.name + ".lock"), "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)          # released when the file is closed
+        if result_file.exists():
+            return pickle.loads(result_file.read_bytes())
+        if shared.exists():                        # a worker failed half-way: start again
+            shutil.rmtree(shared)
+        shared.mkdir()
+        result = build(shared)
+        result_file.write_bytes(pickle.dumps(result))
+        return result
 
 
 def round_trip(ds, **save_kwargs):

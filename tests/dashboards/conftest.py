@@ -1,4 +1,5 @@
-"""Fixtures: the session corpus's warehouse, audited on a copy, and the site written from it."""
+"""Fixtures: the session corpus's warehouse, audited on a copy, and the site written from it
+(each built once per run, shared by the pytest-xdist workers: tests.helpers.built_once)."""
 
 from __future__ import annotations
 
@@ -7,6 +8,8 @@ import shutil
 from pathlib import Path
 
 import pytest
+
+from tests.helpers import built_once
 
 GENERATED_AT = dt.datetime(2026, 12, 1, 8, 30, tzinfo=dt.UTC)
 PERIOD_FROM, PERIOD_TO = dt.date(2026, 9, 1), dt.date(2026, 11, 30)
@@ -17,11 +20,13 @@ def audited(warehouse, tmp_path_factory) -> Path:
     """A copy of the session warehouse (320 studies), audited for Sep-Nov 2026."""
     from pipeline.audit import run_audit
 
-    db, _ = warehouse
-    copy = tmp_path_factory.mktemp("audited") / "kerma.duckdb"
-    shutil.copyfile(db, copy)
-    run_audit(copy, date_from=PERIOD_FROM, date_to=PERIOD_TO)
-    return copy
+    def build(root: Path) -> Path:
+        copy = root / "kerma.duckdb"
+        shutil.copyfile(warehouse[0], copy)
+        run_audit(copy, date_from=PERIOD_FROM, date_to=PERIOD_TO)
+        return copy
+
+    return built_once(tmp_path_factory, "dashboards-audited", build)
 
 
 @pytest.fixture(scope="session")
@@ -29,10 +34,12 @@ def site(audited, tmp_path_factory) -> Path:
     """The static site of the audited warehouse, generated at a fixed time."""
     from dashboards.site import write_site
 
-    out = tmp_path_factory.mktemp("site")
-    index = write_site(audited, out, generated_at=GENERATED_AT)
-    assert index == out / "index.html"
-    return out
+    def build(out: Path) -> Path:
+        index = write_site(audited, out, generated_at=GENERATED_AT)
+        assert index == out / "index.html"
+        return out
+
+    return built_once(tmp_path_factory, "site", build)
 
 
 @pytest.fixture(scope="session")

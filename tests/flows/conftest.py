@@ -1,6 +1,7 @@
-"""Flow tests share one Prefect local-mode server; it and Prefect's background workers are
-stopped after the module, so no thread of theirs outlives these tests (a leftover thread
-drawing on the `random` module makes later hypothesis tests flaky)."""
+"""Flow tests share one Prefect local-mode server (its start-up takes 10-15 s on a loaded 2-core
+machine, so the modules of this package share it); it and Prefect's background workers are
+stopped after the last flow test, so no thread of theirs outlives these tests (a leftover
+thread drawing on the `random` module makes later hypothesis tests flaky)."""
 
 from __future__ import annotations
 
@@ -9,7 +10,7 @@ import inspect
 import pytest
 
 
-@pytest.fixture(scope="module", autouse=True)
+@pytest.fixture(scope="package", autouse=True)
 def stop_prefect_afterwards():
     yield
     from prefect.events.worker import EventsWorker
