@@ -174,6 +174,39 @@ def csv_text(rows: pd.DataFrame) -> str:
     return rows.to_csv(index=False, lineterminator="\n", float_format="%.12g")
 
 
+# Rows per piece when a table is written to CSV: the text of a piece, not of the whole table, is in
+# memory at once (a network's year: tables of millions of rows). Pieces are cut at row boundaries,
+# so the file is the same as one csv_text of the whole table (header once).
+CSV_CHUNK_ROWS = 50_000
+
+
+def _write_csv(path: Path, rows: pd.DataFrame) -> None:
+    """`csv_text(rows)` written piece by piece; an unchanged file is left untouched."""
+    import filecmp
+    import os
+
+    # pandas writes a timestamp column as dates only when every value of what it writes is at
+    # midnight: such columns are turned into pandas' text once, over the whole column, so that a
+    # piece of all-midnight values is written as the whole table would be
+    stamps = [c for c, dtype in rows.dtypes.items() if pd.api.types.is_datetime64_any_dtype(dtype)]
+    if stamps:
+        rows = rows.copy(deep=False)
+        for column in stamps:
+            text = rows[[column]].to_csv(index=False, header=False, lineterminator="\n")
+            # a lone empty field (NaT) comes back quoted: it is NULL, written empty
+            values = [None if v == '""' else v for v in text.split("\n")[:-1]]
+            rows[column] = pd.Series(values, index=rows.index, dtype=object)
+    tmp = path.with_name(path.name + ".tmp")
+    with open(tmp, "w", encoding="utf-8", newline="") as f:
+        for start in range(0, max(len(rows), 1), CSV_CHUNK_ROWS):
+            text = csv_text(rows.iloc[start:start + CSV_CHUNK_ROWS])
+            f.write(text if start == 0 else text.split("\n", 1)[1])
+    if path.exists() and filecmp.cmp(tmp, path, shallow=False):
+        tmp.unlink()
+    else:
+        os.replace(tmp, path)
+
+
 def _write_text(path: Path, text: str) -> None:
     data = text.encode("utf-8")
     if not path.exists() or path.read_bytes() != data:   # leave unchanged files untouched
@@ -223,5 +256,5 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     for name, html in site.pages.items():
         _write_text(out / name, html)
     for name, rows in site.tables.items():
-        _write_text(out / f"{name}.csv", csv_text(rows))
+        _write_csv(out / f"{name}.csv", rows)
     return out / "index.html"

@@ -496,3 +496,26 @@ def test_csv_text_writes_what_pandas_float_format_writes():
     # 12 significant figures: 1234567.89123, and 0.1 + 0.2 without its last-bit noise
     assert ",1234567.89123," in expected and ",0.3," in expected and "0.30000000000000004" not in expected
     assert rows["median"].dtype == np.float64                          # the caller's frame unchanged
+
+
+def test_csv_written_in_pieces_is_the_csv_of_the_whole_table(tmp_path, monkeypatch):
+    """Large tables are written to CSV piece by piece (memory); the file must be byte for byte
+    csv_text of the whole table, also where one piece's timestamps are all at midnight (pandas
+    would then write that piece as dates only) and with text that needs quoting."""
+    import numpy as np
+
+    rows = pd.DataFrame({
+        "site_label": ["North, \"A\"", None, "South", "East", "West"],
+        "median": [1234567.891234567, np.nan, 0.1 + 0.2, 2.0, -1.5],
+        "flag": [True, False, True, None, False],
+        "started_at": pd.to_datetime(["2026-09-01 00:00:00", "2026-09-02 00:00:00", None,
+                                      "2026-11-30 10:07:11", "2026-11-30 00:00:00"]),
+        "study_date": pd.to_datetime(["2026-09-01", "2026-09-02", None, "2026-11-30", "2026-11-30"]),
+    })
+    monkeypatch.setattr(site_module, "CSV_CHUNK_ROWS", 2)
+    path = tmp_path / "t.csv"
+    site_module._write_csv(path, rows)
+    assert path.read_text(encoding="utf-8") == site_module.csv_text(rows)
+    assert "2026-09-01 00:00:00" in path.read_text()     # the first piece alone would say 2026-09-01
+    site_module._write_csv(path, rows.iloc[:0])
+    assert path.read_text() == site_module.csv_text(rows.iloc[:0])
