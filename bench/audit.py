@@ -50,19 +50,26 @@ TABLES = ("device", "study", "dose_object", "source_object", "ct_event", "projec
 COPIES_PER_ROOM = 2  # each room copy gets at most this many copies of its studies
 
 
-def base_warehouse() -> Path:
-    """A warehouse of a real 1000-study synthetic corpus (cached)."""
-    from pipeline.ingest import ingest
+def base_corpus() -> Path:
+    """A real 1000-study synthetic corpus, seed 7, 3 months (cached; bench/ingest_scale.py too)."""
     from synthetic_studies.write import write_corpus
 
-    db = CACHE / "audit-base.duckdb"
-    if db.exists():
-        return db
     corpus = CACHE / "corpus-n1000-s7-m3"
     if not (corpus / ".complete").exists():
         shutil.rmtree(corpus, ignore_errors=True)
         write_corpus(corpus, seed=7, months=3, n_studies=1000, workers=2)
         (corpus / ".complete").write_text("{}")
+    return corpus
+
+
+def base_warehouse() -> Path:
+    """A warehouse of the 1000-study corpus (cached)."""
+    from pipeline.ingest import ingest
+
+    db = CACHE / "audit-base.duckdb"
+    if db.exists():
+        return db
+    corpus = base_corpus()
     ingest([corpus], CACHE / "audit-base.tmp.duckdb", KEY, workers=2)
     (CACHE / "audit-base.tmp.duckdb").rename(db)
     return db

@@ -34,19 +34,8 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 CACHE = ROOT / "bench" / ".cache"
 KEY = b"bench-key-0123456789abcdef"
-BASE_STUDIES = 1000
+BASE_STUDIES = 1000   # bench/audit.py's base corpus
 _UID = re.compile(rb"2\.25\.(\d{4})(\d+)")
-
-
-def base_corpus() -> Path:
-    from synthetic_studies.write import write_corpus
-
-    corpus = CACHE / "corpus-n1000-s7-m3"
-    if not (corpus / ".complete").exists():
-        shutil.rmtree(corpus, ignore_errors=True)
-        write_corpus(corpus, seed=7, months=3, n_studies=BASE_STUDIES, workers=2)
-        (corpus / ".complete").write_text("{}")
-    return corpus
 
 
 def shifted(data: bytes, k: int) -> bytes:
@@ -63,6 +52,8 @@ def replicated(n_studies: int) -> Path:
     out = CACHE / f"corpus-scale-{copies}x1000"
     if (out / ".complete").exists():
         return out
+    from audit import base_corpus   # bench/audit.py (this folder is first on sys.path)
+
     base = base_corpus()
     files = sorted(p for p in base.rglob("*") if p.is_file() and p.suffix != ".parquet"
                    and p.name != ".complete")

@@ -247,9 +247,13 @@ def detailed_follow_up(inp: ReportInput) -> list[str]:
     order: the first FOLLOW_UP_DETAILED follow-up studies of the executive summary. The reader
     fetches events and map cells for these only (`ReportInput.events`, ``.skin_maps``)."""
     status, _ = change_status(inp.findings, inp.previous_findings, inp.notes, inp.previous_audited)
-    lines = [x for x in summary_lines(inp, status)
-             if x["action"] == "patient_follow_up" and x["kind"] == "study"]
+    lines = _follow_up_studies(summary_lines(inp, status))
     return [x["study_key"] for x in lines[:FOLLOW_UP_DETAILED]]
+
+
+def _follow_up_studies(lines: list[dict]) -> list[dict]:
+    """The summary's study lines whose most urgent action is patient follow-up, in order."""
+    return [x for x in lines if x["action"] == "patient_follow_up" and x["kind"] == "study"]
 
 
 def report_content(inp: ReportInput) -> ReportContent:
@@ -291,7 +295,7 @@ def report_content(inp: ReportInput) -> ReportContent:
     by_study: dict[str, list[dict]] = {}
     for a in alerts:
         by_study.setdefault(a["study_key"], []).append(a)
-    follow_up_lines = [e for e in tiers[0]["lines"] if e["kind"] == "study"]
+    follow_up_lines = _follow_up_studies(lines)
     detailed = {e["study_key"] for e in follow_up_lines[:FOLLOW_UP_DETAILED]}
     events: dict[str, list[dict]] = {}
     for e in inp.events:

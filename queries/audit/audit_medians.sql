@@ -122,7 +122,7 @@ noted as (
                    'the reference is defined for the clinical indication "' || c.indication
                    || '"; this group holds every study the exam rules map to ' || c.exam_type
                    || ' (' || c.n_indication_matched || ' of ' || c.n
-                   || ' marked with that indication by the indication rules)'
+                   || ' marked with that indication by the indication rules)'   -- network_reference.sql rewrites this count: keep the wording
                end,
                case when c.is_comparable and c.is_fallback then
                    'fallback: a set of ' || c.issuing_body || ' (' || coalesce(c.country, '?')

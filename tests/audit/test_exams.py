@@ -34,7 +34,8 @@ def test_bad_user_rule_is_refused(tmp_path):
         load_exam_rules(config)
 
 
-def _warehouse_with_odd_descriptions(tmp_path):
+def _odd_radiograph_inbox(tmp_path):
+    """An inbox holding one chest radiograph report whose texts no shipped rule maps: (inbox, ds)."""
     inbox = tmp_path / "in"
     inbox.mkdir()
     _, ds = demo_dataset("ovh-dx1", exam="dx_chest_pa")
@@ -44,6 +45,11 @@ def _warehouse_with_odd_descriptions(tmp_path):
             if child.ValueType == "TEXT" and child.ConceptNameCodeSequence[0].CodeValue == "125203":
                 child.TextValue = "Inlet view"
     (inbox / "odd.dcm").write_bytes(encode(ds))
+    return inbox, ds
+
+
+def _warehouse_with_odd_descriptions(tmp_path):
+    inbox, _ = _odd_radiograph_inbox(tmp_path)
     db = tmp_path / "w.duckdb"
     ingest([inbox], db, KEY)
     return db
@@ -86,15 +92,7 @@ def test_ingest_keeps_the_matches_of_the_rules_the_audit_uses(tmp_path, monkeypa
 
     from pipeline.audit import run_audit
 
-    inbox = tmp_path / "in"
-    inbox.mkdir()
-    _, ds = demo_dataset("ovh-dx1", exam="dx_chest_pa")
-    ds.StudyDescription = "XR Thoracic Inlet Special"
-    for item in ds.ContentSequence:
-        for child in item.get("ContentSequence", []):
-            if child.ValueType == "TEXT" and child.ConceptNameCodeSequence[0].CodeValue == "125203":
-                child.TextValue = "Inlet view"
-    (inbox / "odd.dcm").write_bytes(encode(ds))
+    inbox, ds = _odd_radiograph_inbox(tmp_path)
     config = tmp_path / "kerma.toml"
     config.write_text('[[exam_rule]]\nexam = "dx_chest_pa"\nmodality = ["DX", "CR"]\n'
                       'field = "acquisition_protocol"\nany = ["inlet view"]\n')

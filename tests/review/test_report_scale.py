@@ -5,6 +5,7 @@ where all of them are. Pure: ReportInput rows in, sections and HTML out."""
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 
 from pipeline.report.content import (FOLLOW_UP_DETAILED, FOLLOW_UP_EVENTS, SECTION_ROWS,
@@ -50,7 +51,7 @@ def _input() -> ReportInput:
         notes={}, alerts=alerts, medians=medians, drift=[], coverage=[], rooms={},
         generated_at=dt.datetime(2026, 10, 1, 9, 0))
     keys = set(detailed_follow_up(inp))
-    return ReportInput(**{**inp.__dict__, "events": [e for e in events if e["study_key"] in keys]})
+    return dataclasses.replace(inp, events=[e for e in events if e["study_key"] in keys])
 
 
 def test_every_follow_up_patient_is_listed_and_the_other_tiers_are_capped():
