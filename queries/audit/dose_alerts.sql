@@ -108,22 +108,29 @@ spread as (
     from obs as o join centre as c using (exam_type, device_key, quantity)
     group by all
 ),
+spread_rule as (
+    -- each group's spread with each outlier rule, before meeting the observations: they then
+    -- join on the group's keys alone (a join on the rule family with the |M| test beside it ran
+    -- as a nested loop over every observation)
+    select s.*, r.family, r.action, r.verified, r.threshold as z_threshold, r.source
+    from spread as s
+    join rules as r on r.family = 'robust_outlier'
+    where s.n >= $outlier_min_n and s.mad > 0
+),
 outliers as (
     -- modified z-score on log dose within exam type x device (Iglewicz & Hoaglin 1993):
     -- M = 0.6745 (x - median) / MAD; |M| > threshold is an outlier; high and low apart
     select o.study_key, o.patient_key, o.device_key, o.site, o.exam_type, o.study_date,
            case when o.log_value > s.med then 'robust_outlier_high' else 'robust_outlier_low' end as rule,
-           r.family, r.action, r.verified as threshold_verified,
+           s.family, s.action, s.verified as threshold_verified,
            o.quantity, o.value,
-           exp(s.med + sign(o.log_value - s.med) * r.threshold * s.mad / 0.6745) as threshold,
-           o.unit, r.source,
+           exp(s.med + sign(o.log_value - s.med) * s.z_threshold * s.mad / 0.6745) as threshold,
+           o.unit, s.source,
            'modified z-score of log ' || o.quantity || ' within exam type x device (n = ' || s.n || ')'
                as method
     from obs as o
-    join spread as s using (exam_type, device_key, quantity)
-    join rules as r on r.family = 'robust_outlier'
-    where s.n >= $outlier_min_n and s.mad > 0
-      and abs(0.6745 * (o.log_value - s.med) / s.mad) > r.threshold
+    join spread_rule as s using (exam_type, device_key, quantity)
+    where abs(0.6745 * (o.log_value - s.med) / s.mad) > s.z_threshold
 )
 select study_key, patient_key, device_key, site, exam_type, study_date, rule, family, action,
        quantity, value, threshold, unit, source, method, threshold_verified
