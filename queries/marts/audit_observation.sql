@@ -6,19 +6,21 @@ studies as (
     select * from study_dose where exam_type is not null
 ),
 study_values as (
+    -- one row per audited quantity of the modality: an unnest of a list of structs (a lateral
+    -- VALUES join was decorrelated into a grouping and a join on every value column)
     select s.*, q.quantity, q.unit, q.value, null::varchar as event_uid
-    from studies as s
-    cross join lateral (
-        select * from (values
-            ('dlp', 'mGy.cm', s.dlp_total_mgy_cm),
-            ('ctdivol', 'mGy', s.ctdivol_mgy),
-            ('dap', 'Gy.cm2', s.dap_total_gy_cm2),
-            ('dose_rp', 'mGy', s.dose_rp_total_mgy),
-            ('fluoro_time', 's', s.fluoro_time_total_s)
-        ) as v(quantity, unit, value)
-    ) as q
-    where (s.modality = 'CT' and q.quantity in ('dlp', 'ctdivol'))
-       or (s.modality in ('RF', 'XA') and q.quantity in ('dap', 'dose_rp', 'fluoro_time'))
+    from (
+        select s.*,
+               unnest(case when s.modality = 'CT' then
+                          [{'quantity': 'dlp', 'unit': 'mGy.cm', 'value': s.dlp_total_mgy_cm},
+                           {'quantity': 'ctdivol', 'unit': 'mGy', 'value': s.ctdivol_mgy}]
+                      when s.modality in ('RF', 'XA') then
+                          [{'quantity': 'dap', 'unit': 'Gy.cm2', 'value': s.dap_total_gy_cm2},
+                           {'quantity': 'dose_rp', 'unit': 'mGy', 'value': s.dose_rp_total_mgy},
+                           {'quantity': 'fluoro_time', 'unit': 's', 'value': s.fluoro_time_total_s}]
+                      end) as q
+        from studies as s
+    ) as s
 ),
 event_exam as (
     select e.*, coalesce(m.exam_type, case when s.event_count = 1 or s.modality = 'MG'
@@ -32,18 +34,19 @@ event_exam as (
 ),
 event_values as (
     select e.*, q.quantity, q.unit, q.value
-    from event_exam as e
-    cross join lateral (
-        select * from (values
-            ('dap', 'Gy.cm2', e.dap_gy_cm2),
-            ('dose_rp', 'mGy', e.dose_rp_mgy),
-            (case when e.entrance_dose_derivation = 'ESAK' then 'ka_e' else 'entrance_dose' end,
-             'mGy', e.entrance_dose_mgy),
-            ('agd', 'mGy', e.agd_mgy)
-        ) as v(quantity, unit, value)
-    ) as q
-    where (e.modality in ('DX', 'CR') and q.quantity in ('dap', 'dose_rp', 'entrance_dose', 'ka_e'))
-       or (e.modality = 'MG' and q.quantity = 'agd')
+    from (
+        select e.*,
+               unnest(case when e.modality in ('DX', 'CR') then
+                          [{'quantity': 'dap', 'unit': 'Gy.cm2', 'value': e.dap_gy_cm2},
+                           {'quantity': 'dose_rp', 'unit': 'mGy', 'value': e.dose_rp_mgy},
+                           {'quantity': case when e.entrance_dose_derivation = 'ESAK'
+                                             then 'ka_e' else 'entrance_dose' end,
+                            'unit': 'mGy', 'value': e.entrance_dose_mgy}]
+                      when e.modality = 'MG' then
+                          [{'quantity': 'agd', 'unit': 'mGy', 'value': e.agd_mgy}]
+                      end) as q
+        from event_exam as e
+    ) as e
 )
 select study_key, patient_key, device_key, site, modality, exam_type, quantity, unit, value,
        study_date, strftime(study_date, '%Y-%m') as period, patient_age_years, patient_weight_kg,
