@@ -7,19 +7,24 @@
 -- domain (table ssde_fit, from pipeline.reference). An estimate that cannot be made is NULL.
 create or replace table study_estimate as
 with
+ct_events as (
+    -- the acquisitions' size and SSDE per study, grouped on the two keys alone
+    select study_key, device_key,
+           avg(water_equivalent_diameter_mm) as water_equivalent_diameter_mm,
+           sum(ssde_mgy * scanning_length_mm)
+             / nullif(sum(scanning_length_mm) filter (where ssde_mgy is not null), 0)
+               as reported_ssde_mgy
+    from irradiation_event
+    where event_type in ('spiral', 'sequenced')   -- CT acquisitions only
+    group by study_key, device_key
+),
 ct as (
     select s.study_key, s.patient_key, s.device_key, s.exam_type, s.study_date,
            s.patient_age_years, s.dlp_total_mgy_cm, s.ctdivol_mgy, s.ctdi_phantom,
-           avg(e.water_equivalent_diameter_mm) filter (where e.event_type in ('spiral', 'sequenced'))
-               as water_equivalent_diameter_mm,
-           sum(e.ssde_mgy * e.scanning_length_mm) filter (where e.event_type in ('spiral', 'sequenced'))
-             / nullif(sum(e.scanning_length_mm) filter (
-                   where e.event_type in ('spiral', 'sequenced') and e.ssde_mgy is not null), 0)
-               as reported_ssde_mgy
+           e.water_equivalent_diameter_mm, e.reported_ssde_mgy
     from study_dose as s
-    left join irradiation_event as e using (study_key, device_key)
+    left join ct_events as e using (study_key, device_key)
     where s.modality = 'CT' and s.study_date < $date_to
-    group by all
 ),
 estimated as (
     select c.*,
