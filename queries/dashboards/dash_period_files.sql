@@ -6,16 +6,18 @@
 create temp table dash_period_file as
 with
 dated as (
-    select distinct e.sop_instance_uid, s.study_date >= $date_from and s.study_date < $date_to as in_period
+    -- per file: does any of its events belong to a study of the period (one grouping)
+    select e.sop_instance_uid,
+           bool_or(s.study_date >= $date_from and s.study_date < $date_to) as in_period
     from irradiation_event as e
     join study_dose as s on s.study_key = e.study_key and s.device_key = e.device_key
+    group by e.sop_instance_uid
 ),
 files as (
     select o.*, d.in_period,
            bool_or(coalesce(d.in_period, false)) over (partition by o.run_id) as run_has_period
     from source_object as o
-    left join (select sop_instance_uid, bool_or(in_period) as in_period from dated group by all) as d
-      on d.sop_instance_uid = o.sop_instance_uid
+    left join dated as d on d.sop_instance_uid = o.sop_instance_uid
 )
 select status, reason, sha256, size_bytes, run_id, in_period is null as is_undated
 from files
