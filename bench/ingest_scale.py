@@ -88,7 +88,15 @@ def _rss_mib(pid: int) -> float:
 def child(corpus: Path, db: Path) -> None:
     from pipeline.ingest import ingest
 
-    summary = ingest([corpus], db, KEY, workers=2)
+    done = [0, 0]   # files so far, files at the last progress line
+
+    def progress(n_files: int) -> None:
+        done[0] += n_files
+        if done[0] - done[1] >= 10_000:
+            done[1] = done[0]
+            print(f"FILES {done[0]}", flush=True)
+
+    summary = ingest([corpus], db, KEY, workers=2, progress=progress)
     print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
                                   "derived": repr(summary.derived)}), flush=True)
 
@@ -118,7 +126,16 @@ def main() -> None:
 
     thread = threading.Thread(target=sample, daemon=True)
     thread.start()
-    out, _ = proc.communicate()
+    lines: list[str] = []
+    for line in proc.stdout:   # a line every 10 000 files: memory so far, as studies go in
+        lines.append(line)
+        if line.startswith("FILES "):
+            now = samples[-1][1] if samples else float("nan")
+            peak_so_far = max((s[1] for s in samples), default=float("nan"))
+            print(f"   {int(line.split()[1]):7d} files in {time.perf_counter() - started:5.0f} s: "
+                  f"RSS {now:5.0f} MiB, peak so far {peak_so_far:5.0f} MiB", flush=True)
+    proc.wait()
+    out = "".join(lines)
     stop.set()
     thread.join()
     seconds = time.perf_counter() - started

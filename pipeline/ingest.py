@@ -40,7 +40,10 @@ BATCH_SIZE = 256
 # its end: a refresh's transaction holds the new rows of its studies in memory until it commits,
 # so a bulk load of 100k studies refreshed once grew the run's peak memory at the end (574 MiB at
 # 10 % of the run, 1110 MiB at its end; bench/ingest_scale.py). Common practice, no source.
-REFRESH_EVERY_STUDIES = 10_000
+# 10 000 studies per refresh still lifted the run's memory by ~125 MiB while its transaction was
+# open (406 -> 529 MiB in the ingest process at 10 000 studies of bench/ingest_scale.py, measured
+# per statement): 2 500 studies hold a quarter of that. Measured, no other source.
+REFRESH_EVERY_STUDIES = 2_500
 
 
 @dataclass
@@ -211,7 +214,6 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
             "inputs": "; ".join(str(p) for p in paths), "workers": workers}]))
         con.execute(_sql("insert_run"))
         con.unregister("incoming_run")
-        loaded_sops = {r[0] for r in con.execute(_sql("select_loaded_sops")).fetchall()}
         since = raw_state(con)   # the derived tables are refreshed from here for what is loaded
         touched: set[str] = set()
         refreshes: list[RefreshResult] = []
@@ -222,13 +224,14 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
             for chunk in _chunks(iter_candidates(list(paths)), batch_size):
                 dispatched = _dispatch_chunk(con, chunk, pool, pseudonymise, summary, parse)
                 if in_flight is not None:
-                    _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress, touched)
+                    _load_chunk(con, in_flight, run_id, summary, progress, touched)
                     if len(touched) >= REFRESH_EVERY_STUDIES:
                         refreshes.append(refresh_derived(con, touched, since=since))
                         since, touched = raw_state(con), set()
+                        _release_free_memory()
                 in_flight = dispatched
             if in_flight is not None:
-                _load_chunk(con, in_flight, loaded_sops, run_id, summary, progress, touched)
+                _load_chunk(con, in_flight, run_id, summary, progress, touched)
         finally:
             if pool is not None:
                 pool.shutdown(cancel_futures=True)
@@ -251,18 +254,20 @@ def _combined(refreshes: list[RefreshResult]) -> RefreshResult:
     return RefreshResult(mode, sum(r.n_studies for r in refreshes), sum(r.seconds for r in refreshes))
 
 
-def _load_chunk(con, dispatched, loaded_sops: set, run_id: str, summary: IngestSummary,
+def _load_chunk(con, dispatched, run_id: str, summary: IngestSummary,
                 progress: Callable[[int], None] | None, touched: set | None = None) -> None:
     """Collect one dispatched batch, mark duplicates and load it in one transaction."""
     n_files, outcomes, results = dispatched
     outcomes = _collect(outcomes, results)
+    # SOP Instances already in the warehouse, this run's earlier batches included (each batch is
+    # committed before the next is marked): asked of the warehouse per batch, not kept in a set
+    # of every loaded SOP Instance UID, which grew with the run (~150 bytes per file)
+    loaded_sops = _loaded_sops(con, [o.sop_instance_uid for o in outcomes if o.status == "loaded"])
     for o in outcomes:
         if o.status == "loaded" and o.sop_instance_uid in loaded_sops:
             o.status, o.reason = "duplicate", "sop_instance_already_loaded"
             o.detail = f"SOP Instance UID {o.sop_instance_uid} is already loaded"
             o.obj = None
-        elif o.status == "loaded":
-            loaded_sops.add(o.sop_instance_uid)
     if outcomes:
         tables = _batch_tables(outcomes, run_id, dt.datetime.now())
         append_batch(con, tables)
@@ -322,6 +327,28 @@ def _collect(outcomes: list[FileOutcome], results) -> list[FileOutcome]:
     return outcomes
 
 
+def _loaded_sops(con, sops: list[str]) -> set[str]:
+    """Those of `sops` that raw_dose_object holds."""
+    if not sops:
+        return set()
+    import pyarrow as pa
+    con.register("incoming_sops", pa.table({"sop_instance_uid": pa.array(sops, pa.string())}))
+    try:
+        return {r[0] for r in con.execute(_LOADED_SOPS).fetchall()}
+    finally:
+        con.unregister("incoming_sops")
+
+
+def _release_free_memory() -> None:
+    """Give the C heap's free pages back to the system (glibc malloc_trim; elsewhere a no-op):
+    a refresh's transaction leaves them behind when it commits."""
+    try:
+        import ctypes
+        ctypes.CDLL("libc.so.6").malloc_trim(0)
+    except (OSError, AttributeError):
+        pass
+
+
 def _known(con, paths: list[str]) -> set[tuple[str, str]]:
     import pyarrow as pa
     con.register("incoming_paths", pa.table({"path": paths}))
@@ -336,3 +363,4 @@ from queries import sql as _sql  # noqa: E402  (SQL lives in queries/)
 
 _RUN_UPDATE = _sql("update_run_counts")
 _KNOWN = _sql("select_known_files")
+_LOADED_SOPS = _sql("select_loaded_sops_of_batch")

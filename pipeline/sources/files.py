@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import os
 import struct
 import tarfile
 import warnings
@@ -121,9 +122,9 @@ def iter_candidates(paths: list[Path]) -> Iterator[Candidate]:
     for root in paths:
         root = Path(root)
         if root.is_dir():
-            files = sorted(p for p in root.rglob("*") if p.is_file())
+            files = _walk_sorted(root)
         elif root.exists():
-            files = [root]
+            files = iter([root])
         else:
             yield Candidate(str(root), _raise(NotDicomError(f"{root}: no such file or folder",
                                                             reason="missing_file")))
@@ -134,6 +135,25 @@ def iter_candidates(paths: list[Path]) -> Iterator[Candidate]:
                             else _tar_candidates(path))
             else:
                 yield Candidate(str(path.resolve()), _file_reader(path))
+
+
+def _walk_sorted(folder: Path) -> Iterator[Path]:
+    """The files under `folder`, in the order of ``sorted(p for p in folder.rglob("*") if
+    p.is_file())`` (parts compared name by name), walked lazily: one folder's names are held at
+    a time, never the whole tree's paths (143 000 Path objects held ~67 MiB through a 100k-study
+    ingest; bench/ingest_scale.py). Like rglob, symlinked folders are not entered; symlinks to
+    files are kept."""
+    try:
+        with os.scandir(folder) as it:
+            entries = sorted((e.name, e.is_dir(follow_symlinks=False)) for e in it)
+    except PermissionError:   # as rglob: an unreadable folder is passed over
+        return
+    for name, is_dir in entries:
+        path = folder / name
+        if is_dir:
+            yield from _walk_sorted(path)
+        elif path.is_file():
+            yield path
 
 
 # What pydicom raises when the bytes of one element cannot be decoded (an unknown VR, a value
