@@ -331,12 +331,17 @@ def _loaded_sops(con, sops: list[str]) -> set[str]:
     """Those of `sops` that raw_dose_object holds."""
     if not sops:
         return set()
+    return {r[0] for r in _rows_of_batch(con, _LOADED_SOPS, "incoming_sops", "sop_instance_uid", sops)}
+
+
+def _rows_of_batch(con, query: str, name: str, column: str, values: list[str]) -> list[tuple]:
+    """Rows of `query`, which reads the batch's `values` as the one-column relation `name`."""
     import pyarrow as pa
-    con.register("incoming_sops", pa.table({"sop_instance_uid": pa.array(sops, pa.string())}))
+    con.register(name, pa.table({column: pa.array(values, pa.string())}))
     try:
-        return {r[0] for r in con.execute(_LOADED_SOPS).fetchall()}
+        return con.execute(query).fetchall()
     finally:
-        con.unregister("incoming_sops")
+        con.unregister(name)
 
 
 def _release_free_memory() -> None:
@@ -350,13 +355,7 @@ def _release_free_memory() -> None:
 
 
 def _known(con, paths: list[str]) -> set[tuple[str, str]]:
-    import pyarrow as pa
-    con.register("incoming_paths", pa.table({"path": paths}))
-    try:
-        rows = con.execute(_KNOWN).fetchall()
-    finally:
-        con.unregister("incoming_paths")
-    return {(p, s) for p, s in rows}
+    return {(p, s) for p, s in _rows_of_batch(con, _KNOWN, "incoming_paths", "path", paths)}
 
 
 from queries import sql as _sql  # noqa: E402  (SQL lives in queries/)
