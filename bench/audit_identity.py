@@ -26,7 +26,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flags", "data_alerts",
-          "skin_dose", "skin_dose_map", "monthly_medians", "study_estimate", "audit_finding",
+          "skin_dose", "skin_dose_map", "monthly_medians", "audit_distribution", "study_estimate", "audit_finding",
           "audit_period")
 VOLATILE = {"recorded_at", "audited_at",   # wall-clock time of the run
             "inputs_fingerprint"}         # added by issue 14 (no value to compare before it)

@@ -605,6 +605,11 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                                {"date_to": after}).fetchall()[0]
         parts = max(1, -(-n_obs // ROWS_PER_PART))
         _by_parts(con, "audit_medians", params, parts)
+        # the period's distribution per room group, for the dashboards (which then never sort
+        # every observation again); the same parts as audit_medians
+        _by_parts(con, "audit_distribution", {"date_from": first, "date_to": after,
+                                              "adult_min_age": settings.adult_min_age_years},
+                  parts)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
         con.execute(sql("create_ct_accumulated"), {

@@ -40,7 +40,7 @@ PUBLIC_RELATIONS = (
     "study_dose", "irradiation_event", "device", "source_object", "value_issue",
     "audit_observation", "key_epoch", "pipeline_run", "reference_level",
     "audit_medians", "network_reference", "dose_alerts", "data_alerts", "drift_flags",
-    "monthly_medians", "study_estimate", "skin_dose", "skin_dose_map", "skin_dose_factor",
+    "monthly_medians", "audit_distribution", "study_estimate", "skin_dose", "skin_dose_map", "skin_dose_factor",
     "audit_finding", "audit_period", "review_note", "latest_review_note",
     "capture_completeness", "capture_missing_studies", "network_extract",
 )

@@ -113,6 +113,7 @@ LAKE_RELATIONS: tuple[LakeRelation, ...] = (
     LakeRelation("drift_flags"),
     LakeRelation("data_alerts"),
     LakeRelation("monthly_medians"),
+    LakeRelation("audit_distribution"),
     LakeRelation("study_estimate", ("year", "month"), "study_date"),
     LakeRelation("skin_dose", _MYM, "study_date"),
     LakeRelation("audit_finding"),

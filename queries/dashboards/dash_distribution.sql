@@ -1,29 +1,10 @@
 -- grain: one row per site x device x exam type x quantity x population x phantom in the period:
--- order statistics of the audited values (quantile_cont: Hyndman & Fan definition 7), the
--- same groups as audit_medians, whose reference value and sample verdict are joined on.
--- Values are rounded to 1e-9 first: study totals are parallel float sums whose last bit can
--- differ between runs, and the pages must not.
+-- order statistics of the audited values (audit_distribution, written by the audit: quantile_cont,
+-- Hyndman & Fan definition 7, over values rounded to 1e-9), the same groups as audit_medians,
+-- whose reference value and sample verdict are joined on.
 with
-obs as (
-    select
-        * replace (round(value, 9) as value),
-        case when modality = 'MG' then 'all'
-             when patient_age_years is null then 'unknown_age'
-             when patient_age_years >= $adult_min_age then 'adult'
-             else 'paediatric' end as population
-    from audit_observation
-    where study_date >= $date_from and study_date < $date_to
-),
 stats as (
-    select
-        device_key, exam_type, quantity, unit, population, phantom,
-        count(*) as n,
-        min(value) as value_min,
-        -- one sort per group for the five order statistics (a list of quantiles), not five
-        quantile_cont(value, [0.05, 0.25, 0.5, 0.75, 0.95]) as q,
-        max(value) as value_max
-    from obs
-    group by all
+    select * from audit_distribution
 ),
 audited as (
     -- audit_medians splits paediatric and mammography groups into strata: a distribution
@@ -44,7 +25,7 @@ select
     s.exam_type,
     coalesce(x.label, s.exam_type) as exam_label,
     s.quantity, s.unit, s.population, s.phantom,
-    s.n, s.value_min, s.q[1] as p05, s.q[2] as p25, s.q[3] as median, s.q[4] as p75, s.q[5] as p95,
+    s.n, s.value_min, s.p05, s.p25, s.median, s.p75, s.p95,
     s.value_max,
     a.reference_set,
     a.reference_value,

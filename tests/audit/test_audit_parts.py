@@ -1,6 +1,6 @@
-"""The audit's grouping statements (audit_medians, monthly_medians, dose_alerts) run over parts
-of the rooms when a period holds many observations, so their in-memory quantile and list states
-stay within the audit's memory limit (issue 14). Run in many parts, the audit must give the same
+"""The audit's grouping statements (audit_medians, audit_distribution, monthly_medians,
+dose_alerts) run over parts of the rooms when a period holds many observations, so their
+in-memory quantile and list states stay within the audit's memory limit (issue 14). Run in many parts, the audit must give the same
 tables as in one: every row equal (floats to 1e-12), whatever the order parts leave them in."""
 
 from __future__ import annotations
@@ -18,6 +18,7 @@ from pipeline.audit import run_audit
 TABLES = {"audit_medians": ["site", "device_key", "exam_type", "quantity", "population", "stratum",
                             "phantom"],
           "monthly_medians": ["device_key", "exam_type", "quantity", "unit", "phantom", "month"],
+          "audit_distribution": ["device_key", "exam_type", "quantity", "population", "phantom"],
           "dose_alerts": ["study_key", "device_key", "rule", "quantity"],
           "network_reference": ["exam_type", "quantity", "population", "stratum", "phantom"],
           "drift_flags": ["device_key", "exam_type", "quantity", "unit"]}
