@@ -17,8 +17,10 @@ from ..theme import (
 )
 from .common import (
     NO_CHECK,
+    _as_figure,
     _figure,
-    _subplots,
+    _hline,
+    _new_layout,
     _with_traces,
     INSUFFICIENT_SYMBOL,
     _PHANTOM_SHORT,
@@ -122,24 +124,27 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                     "line": {"color": NETWORK_COLOUR, "width": 2}, "color": NETWORK_COLOUR},
             hovertemplate="network 75th percentile %{x:.4g} " + unit_label(unit) + "<extra></extra>",
         ))
-    fig = _with_traces(_figure(), traces)
+    layout, _ = _new_layout()
     values = [*rows["median_ci_low"], *rows["median_ci_high"], *rows["median"],
               *rows["reference_value"], *rows["network_p75"]]
     log = _wants_log(values)
-    fig.update_xaxes(title={"text": "Room median with 95 % CI: " + f"{quantity_name(quantity)} ({_unit_text(unit)})"
-                                    + (", log scale" if log else "")},
-                     type="log" if log else "linear", **_value_ticks(values, unit, log))
-    fig.update_yaxes(title={"text": "Exam type · room (n exams)"},
-                     type="multicategory", autorange="reversed", tickfont={"size": 11})
-    fig = _layout(fig, title, height=max(200, 90 + 24 * len(rows)))
+    # the layout as update_xaxes, update_yaxes, _layout and update_layout leave it (an update sets
+    # a value's nested properties before its plain ones)
+    layout["xaxis"] = {"title": {"text": "Room median with 95 % CI: "
+                                         + f"{quantity_name(quantity)} ({_unit_text(unit)})"
+                                         + (", log scale" if log else "")},
+                       "type": "log" if log else "linear", **_value_ticks(values, unit, log)}
+    layout["yaxis"] = {"title": {"text": "Exam type · room (n exams)"}, "tickfont": {"size": 11},
+                       "type": "multicategory", "autorange": "reversed"}
+    layout.update(title={"text": title}, height=max(200, 90 + 24 * len(rows)) + 60)   # as _layout
     # the legend above the plot, not beside it: the data area keeps most of the width
-    fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
-                              "yanchor": "bottom"},
-                      margin={"t": 96, "r": 16, "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))})
+    layout["legend"] = {"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0, "yanchor": "bottom"}
+    layout["margin"] = {"t": 96, "r": 16,
+                        "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))}
     # a fixed left margin from the labels' length: plotly's automargin re-lays out every
     # multicategory plot several times, the main cost of drawing this page
-    fig.update_yaxes(automargin=False)
-    return fig
+    layout["yaxis"]["automargin"] = False
+    return _as_figure(traces, layout)
 
 
 
@@ -158,7 +163,7 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                      "n", "p05", "p25", "median", "p75", "p95", "reference_value",
                      "reference_set", "is_sample_adequate"], "build_distribution")
     panels = _panels(frame)
-    fig = _subplots(rows=1, cols=len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
+    layout, cells = _new_layout(1, len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
     legend_done: set[str] = set()
     parts = [(col, quantity, phantom, _panel_rows(frame, quantity, phantom))
              for col, (quantity, phantom) in enumerate(panels, start=1)]
@@ -190,6 +195,7 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                     marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
                             "line": {"color": colour, "width": 2}},
                     hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
+                    **cells[0][col - 1],
                 ))
                 cols.append(col)
                 legend_done.add(name)
@@ -209,27 +215,37 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                     line={"color": colour, "width": 1.5},
                     fillcolor=_alpha(colour, 0.35) if adequate else "rgba(255,255,255,0)",
                     hoverinfo="x+y", boxpoints=False,
+                    **cells[0][col - 1],
                 ))
                 cols.append(col)
                 legend_done.add(name)
-    fig = _with_traces(fig, traces, [1] * len(cols), cols)
+    # the shapes and annotations add_hline makes per reference value (on panels with traces)
+    shapes: list[dict] = []
+    notes: list[dict] = []
     for col, quantity, phantom, part in parts:
+        cell = cells[0][col - 1]
         unit = part["unit"].iloc[0]
         refs = part.dropna(subset=["reference_value"])
         for (value, ref_set, population) in sorted(
                 {(float(v), str(s), str(p)) for v, s, p in
                  zip(refs["reference_value"], refs["reference_set"], refs["population"], strict=True)}):
-            fig.add_hline(y=value, line={"color": REFERENCE_COLOUR, "dash": "dash", "width": 2},
-                          annotation_text=f"Reference level {_fmt(value)} {unit_label(unit)} ({population}, {ref_set})",
-                          annotation_position="top left", annotation_font={"size": 10},
-                          row=1, col=col)
+            if col not in cols:
+                continue
+            shape, note = _hline(value, f"Reference level {_fmt(value)} {unit_label(unit)} "
+                                        f"({population}, {ref_set})", cell)
+            shapes.append(shape)
+            notes.append(note)
         values = [*part["p05"], *part["p95"], *refs["reference_value"]]
         log = _wants_log(values)
-        fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, phantom, log)},
-                         type="log" if log else "linear", **_value_ticks(values, unit, log),
-                         row=1, col=col)
-        fig.update_xaxes(title={"text": "Room · site (n adult / paediatric exams)"}, type="category",
-                         row=1, col=col)
-    fig.update_layout(boxmode="group")
+        layout[cell["yaxis"].replace("y", "yaxis", 1)].update(
+            title={"text": _panel_axis_title(quantity, unit, phantom, log)},
+            type="log" if log else "linear", **_value_ticks(values, unit, log))
+        layout[cell["xaxis"].replace("x", "xaxis", 1)].update(
+            title={"text": "Room · site (n adult / paediatric exams)"}, type="category")
+    if shapes:
+        layout["shapes"] = shapes
+        layout["annotations"] = notes
+    layout["boxmode"] = "group"
     width_rooms = max(len(set(zip(frame["site_label"], frame["room_label"], strict=True))), 2)
-    return _layout(fig, title, height=380 + 12 * width_rooms)
+    layout.update(title={"text": title}, height=380 + 12 * width_rooms + 60)   # as _layout
+    return _as_figure(traces, layout)
