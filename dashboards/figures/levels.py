@@ -173,25 +173,28 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
     cols: list[int] = []
     for col, quantity, phantom, part in parts:
         unit = part["unit"].iloc[0]
-        rooms = sorted({(s, r) for s, r in zip(part["site_label"], part["room_label"], strict=True)})
+        # plain lists read by position (pandas' groupby and a boolean mask per trace cost most of
+        # this builder)
+        c = {k: part[k].tolist() for k in ("site_label", "room_label", "population", "n", "p05",
+                                           "p25", "median", "p75", "p95", "is_sample_adequate")}
+        rooms = sorted(set(zip(c["site_label"], c["room_label"], strict=True)))
         counts = {room: {} for room in rooms}
-        for s, r, pop, n in zip(part["site_label"], part["room_label"], part["population"], part["n"], strict=True):
+        for s, r, pop, n in zip(c["site_label"], c["room_label"], c["population"], c["n"], strict=True):
             counts[(s, r)][pop] = int(n)
         # adult, paediatric, unknown age (its own group), all (mammography: no age split)
-        present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
+        present = [pop for pop in _POPULATION_ORDER if pop in set(c["population"])]
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
             f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
-        by_population = dict(iter(part.groupby("population", sort=False)))
         for population in present:
             colour = POPULATION_COLOURS.get(population, PALETTE[2])
-            rows = by_population[population]
-            single = rows[rows["n"] == 1]
-            if not single.empty:    # one exam: a point, not a box of five equal quantiles
+            rows = [i for i, pop in enumerate(c["population"]) if pop == population]
+            single = [i for i in rows if c["n"][i] == 1]
+            if single:    # one exam: a point, not a box of five equal quantiles
                 name = f"{population}, a single exam"
                 traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in legend_done, mode="markers",
-                    x=[labels[(s, r)] for s, r in zip(single["site_label"], single["room_label"], strict=True)],
-                    y=[_num(v) for v in single["median"]],
+                    x=[labels[(c["site_label"][i], c["room_label"][i])] for i in single],
+                    y=[_num(c["median"][i]) for i in single],
                     marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
                             "line": {"color": colour, "width": 2}},
                     hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
@@ -200,17 +203,17 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                 cols.append(col)
                 legend_done.add(name)
             for adequate in (True, False):
-                sel = rows[(rows["is_sample_adequate"] == adequate) & (rows["n"] > 1)]
-                if sel.empty:
+                sel = [i for i in rows if c["is_sample_adequate"][i] == adequate and c["n"][i] > 1]
+                if not sel:
                     continue
                 name = population if adequate else f"{population}, sample below the audit minimum"
                 traces.append(dict(type="box",
                     name=name, legendgroup=name, showlegend=name not in legend_done,
                     offsetgroup=population, alignmentgroup=f"panel{col}",
-                    x=[labels[(s, r)] for s, r in zip(sel["site_label"], sel["room_label"], strict=True)],
-                    q1=[_num(v) for v in sel["p25"]], median=[_num(v) for v in sel["median"]],
-                    q3=[_num(v) for v in sel["p75"]], lowerfence=[_num(v) for v in sel["p05"]],
-                    upperfence=[_num(v) for v in sel["p95"]],
+                    x=[labels[(c["site_label"][i], c["room_label"][i])] for i in sel],
+                    q1=[_num(c["p25"][i]) for i in sel], median=[_num(c["median"][i]) for i in sel],
+                    q3=[_num(c["p75"][i]) for i in sel], lowerfence=[_num(c["p05"][i]) for i in sel],
+                    upperfence=[_num(c["p95"][i]) for i in sel],
                     marker={"color": colour},
                     line={"color": colour, "width": 1.5},
                     fillcolor=_alpha(colour, 0.35) if adequate else "rgba(255,255,255,0)",

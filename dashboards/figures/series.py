@@ -97,29 +97,36 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     traces: list[dict] = []
     for row, quantity, part in parts:
         unit = part["unit"].iloc[0]
-        # each room's rows split once (a boolean mask per room costs a scan of the panel each)
-        by_room = dict(iter(part.groupby(["site_label", "room_label"], sort=False)))
+        # each room's rows by position in plain lists (pandas' groupby and a sort per room cost
+        # most of this builder); rooms with a NULL site or room label are not drawn, as before
+        col = {c: part[c].tolist() for c in ("site_label", "room_label", "month", "n", "median",
+                                              "p25", "p75")}
+        by_room: dict[tuple[str, str], list[int]] = {}
+        for i, key in enumerate(zip(col["site_label"], col["room_label"], strict=True)):
+            if not (_missing(key[0]) or _missing(key[1])):
+                by_room.setdefault(key, []).append(i)
         for site in sorted(rooms_by_site):
             for k, room in enumerate(rooms_by_site[site]):
-                series = by_room.get((site, room))
-                if series is None:
+                rows = by_room.get((site, room))
+                if rows is None:
                     continue
-                series = series.sort_values("month")
+                rows = sorted(rows, key=col["month"].__getitem__)   # stable, as pandas' sort
+                month = [col["month"][i] for i in rows]
                 name = f"{room} · {site}"
                 colour = _site_colour(site_colours, site)
-                med = [_num(v) for v in series["median"]]
+                med = [_num(col["median"][i]) for i in rows]
                 traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in shown,
-                    mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in series["month"]], y=med,
+                    mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in month], y=med,
                     line={"color": colour, "width": 2, "dash": ("solid", "dot", "dash")[k % 3]},
                     marker={"color": colour, "size": 8, "symbol": _ROOM_SYMBOLS[k % len(_ROOM_SYMBOLS)]},
                     error_y={"type": "data", "symmetric": False, "color": colour, "thickness": 1,
                              "width": 3,
                              "array": [None if _missing(h) or m is None else _num(float(h) - m)
-                                       for h, m in zip(series["p75"], med, strict=True)],
+                                       for h, m in zip([col["p75"][i] for i in rows], med, strict=True)],
                              "arrayminus": [None if _missing(w) or m is None else _num(m - float(w))
-                                            for w, m in zip(series["p25"], med, strict=True)]},
-                    customdata=[[int(n), _month_text(m)] for n, m in zip(series["n"], series["month"], strict=True)],
+                                            for w, m in zip([col["p25"][i] for i in rows], med, strict=True)]},
+                    customdata=[[int(col["n"][i]), _month_text(col["month"][i])] for i in rows],
                     hovertemplate=("%{customdata[1]}: median %{y:.4g} " + unit_label(unit)
                                    + " (n %{customdata[0]})<extra>" + name + "</extra>"),
                     **cells[row - 1][0],
