@@ -135,22 +135,6 @@ def _subplots(*, rows: int = 1, cols: int = 1, vertical_spacing: float | None = 
     return fig
 
 
-def _with_traces(fig: go.Figure, traces: list[Any], rows: list[int] | None = None,
-                 cols: list[int] | None = None) -> go.Figure:
-    """`fig` with `traces` appended (at grid cells `rows` x `cols` of a ``_subplots`` figure),
-    without validating them: ``Figure.add_traces`` always validates and deep-copies each trace."""
-    if rows is not None and cols is not None:
-        for trace, row, col in zip(traces, rows, cols, strict=True):
-            if isinstance(trace, dict):   # plain trace dicts: the cell's axes as add_trace sets them
-                trace.update(fig._grid_ref[row - 1][col - 1][0].trace_kwargs)
-            else:
-                fig._set_trace_grid_position(trace, row, col)
-    out = go.Figure(data=[*fig.data, *traces], layout=fig.layout, **NO_CHECK)
-    out.__dict__["_grid_ref"] = fig._grid_ref   # as make_subplots attaches them
-    out.__dict__["_grid_str"] = fig._grid_str
-    return out
-
-
 # --- figures as plain dicts, made into one go.Figure at the end -----------------------------
 # Every plotly call on a figure (update_layout, update_xaxes, add_hline, a new go.Figure of an
 # old one's layout) walks plotly's property machinery and copies the site template; most of the

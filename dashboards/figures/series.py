@@ -16,9 +16,7 @@ from ..theme import (
     unit_label,
 )
 from .common import (
-    NO_CHECK,
     _as_figure,
-    _figure,
     _hline,
     _new_layout,
     _validated_order,
@@ -26,7 +24,6 @@ from .common import (
     INSUFFICIENT_SYMBOL,
     _ROOM_SYMBOLS,
     _fmt,
-    _layout,
     _log_ticks,
     _missing,
     _num,
