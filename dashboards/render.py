@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from functools import cache
-from typing import Any
+from typing import Any, NamedTuple
 
 import jinja2
 import plotly.io as pio
@@ -110,8 +110,24 @@ def _kind(block: Any) -> str:
     return {Plot: "plot", Table: "table", Note: "note", DataLink: "data"}[type(block)]
 
 
-def _table_rows(table: Table) -> list[dict[str, Any]]:
-    """The shown rows: per cell (text, css class, raw value), and the row's flags."""
+class _Cell(NamedTuple):
+    """One shown cell: text, css class, raw value (or None), column kind, sub-values."""
+
+    text: str
+    cls: str
+    raw: str | None
+    kind: str
+    sub: list[tuple[str, str]]
+
+
+class _Row(NamedTuple):
+    cells: list[_Cell]
+    flags: list[str]
+
+
+def _table_rows(table: Table) -> list[_Row]:
+    """The shown rows: per cell (text, css class, raw value), and the row's flags. Named tuples,
+    not dicts: the template reads them by attribute, which Jinja tries before the item."""
     rows = []
     # plain dicts, not iterrows(): a Series per row cost most of the time of the long tables
     for row in table.rows.head(table.max_rows).to_dict("records"):
@@ -121,13 +137,13 @@ def _table_rows(table: Table) -> list[dict[str, Any]]:
                 low, high = (row[k] for k in c.key.split("..", 1))
                 text = "–" if is_missing(low) or is_missing(high) else \
                     f"{cell_text(low, 'value', row).split(' ')[0]}\u2013{cell_text(high, 'value', row)}"
-                cells.append({"text": text, "cls": "n", "raw": None, "kind": c.kind, "sub": []})
+                cells.append(_Cell(text, "n", None, c.kind, []))
                 continue
             value = row[c.key]
-            cells.append({"text": cell_text(value, c.kind, row), "cls": _cell_class(c.kind),
-                          "raw": None if is_missing(value) else str(value), "kind": c.kind,
-                          "sub": [(label, str(row[k])) for label, k in c.sub if not is_missing(row[k])]})
-        rows.append({"cells": cells, "flags": table.flags(row) if table.flags else []})
+            cells.append(_Cell(cell_text(value, c.kind, row), _cell_class(c.kind),
+                               None if is_missing(value) else str(value), c.kind,
+                               [(label, str(row[k])) for label, k in c.sub if not is_missing(row[k])]))
+        rows.append(_Row(cells, table.flags(row) if table.flags else []))
     return rows
 
 

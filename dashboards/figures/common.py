@@ -5,6 +5,7 @@ from __future__ import annotations
 import copy
 import functools
 import math
+import re
 from collections.abc import Iterable, Mapping
 from typing import Any
 
@@ -134,20 +135,76 @@ def _subplots(*, rows: int = 1, cols: int = 1, vertical_spacing: float | None = 
     return fig
 
 
-def _with_traces(fig: go.Figure, traces: list[Any], rows: list[int] | None = None,
-                 cols: list[int] | None = None) -> go.Figure:
-    """`fig` with `traces` appended (at grid cells `rows` x `cols` of a ``_subplots`` figure),
-    without validating them: ``Figure.add_traces`` always validates and deep-copies each trace."""
-    if rows is not None and cols is not None:
-        for trace, row, col in zip(traces, rows, cols, strict=True):
-            if isinstance(trace, dict):   # plain trace dicts: the cell's axes as add_trace sets them
-                trace.update(fig._grid_ref[row - 1][col - 1][0].trace_kwargs)
-            else:
-                fig._set_trace_grid_position(trace, row, col)
-    out = go.Figure(data=[*fig.data, *traces], layout=fig.layout, **NO_CHECK)
-    out.__dict__["_grid_ref"] = fig._grid_ref   # as make_subplots attaches them
-    out.__dict__["_grid_str"] = fig._grid_str
-    return out
+# --- figures as plain dicts, made into one go.Figure at the end -----------------------------
+# Every plotly call on a figure (update_layout, update_xaxes, add_hline, a new go.Figure of an
+# old one's layout) walks plotly's property machinery and copies the site template; most of the
+# time of the trend and distribution pages at a million events. The busy builders therefore
+# write the layout as a plain dict, in the key order plotly's calls would have left (the page
+# text is byte-identical), and make one unvalidated go.Figure of it.
+_NUMBERED_AXIS = re.compile(r"[a-z]+axis[0-9]+")
+
+
+@functools.cache
+def _skeleton(rows: int | None, cols: int | None, vertical_spacing: float | None,
+              horizontal_spacing: float | None) -> tuple[dict[str, Any], tuple[tuple[dict, ...], ...]]:
+    """The layout of a new figure (the site template; a grid's axes when `rows`), and per grid
+    cell the axes of its traces ({'xaxis': 'x2', 'yaxis': 'y2'})."""
+    if rows is None:
+        return _figure().to_dict()["layout"], ()
+    fig = _subplots(rows=rows, cols=cols or 1, vertical_spacing=vertical_spacing,
+                    horizontal_spacing=horizontal_spacing)
+    cells = tuple(tuple(dict(cell[0].trace_kwargs) for cell in line) for line in fig._grid_ref)
+    return fig.to_dict()["layout"], cells
+
+
+def _new_layout(rows: int | None = None, cols: int | None = None, *,
+                vertical_spacing: float | None = None, horizontal_spacing: float | None = None
+                ) -> tuple[dict[str, Any], tuple[tuple[dict, ...], ...]]:
+    """A fresh copy of ``_skeleton``'s layout, and the grid cells' trace axes (shared: read only)."""
+    layout, cells = _skeleton(rows, cols, vertical_spacing, horizontal_spacing)
+    return copy.deepcopy(layout), cells
+
+
+def _as_figure(traces: list[dict[str, Any]], layout: dict[str, Any]) -> go.Figure:
+    """One unvalidated go.Figure of plain trace dicts and a plain layout dict (its first key the
+    template), the layout's keys kept in their order: a go.Figure made of a layout dict sorts
+    them, so they are set one by one."""
+    fig = go.Figure(data=traces, layout={"template": layout["template"]}, **NO_CHECK)
+    for key, value in layout.items():
+        if key == "template":
+            continue
+        if _NUMBERED_AXIS.fullmatch(key) and isinstance(value, dict) and value:
+            # plotly validates a numbered axis set on the layout (which sorts its keys): its first
+            # key is set so, the others one by one on the axis, unvalidated like the figure
+            (first, first_value), *rest = value.items()
+            fig.layout[key] = {first: first_value}
+            axis = fig.layout[key]
+            axis._validate = False
+            for name, item in rest:
+                axis[name] = item
+        else:
+            fig.layout[key] = value
+    return fig
+
+
+def _validated_order(value: Any) -> Any:
+    """`value` with the keys of its nested dicts sorted, as a validating trace constructor (which
+    ``Figure.add_trace`` uses) leaves them; lists of values are left as they are."""
+    if isinstance(value, dict):
+        return {k: _validated_order(v) for k, v in sorted(value.items())} if value else value
+    return value
+
+
+def _hline(value: float, text: str, cell: Mapping[str, str]) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The shape and annotation that ``Figure.add_hline(y=value, line=REFERENCE_COLOUR dashed 2 px,
+    annotation_text=text, annotation_position="top left", annotation_font={"size": 10}, row, col)``
+    adds on the grid cell whose trace axes are `cell` ({'xaxis': 'x2', 'yaxis': 'y2'})."""
+    x, y = cell["xaxis"], cell["yaxis"]
+    shape = {"line": {"color": REFERENCE_COLOUR, "dash": "dash", "width": 2}, "type": "line",
+             "x0": 0, "x1": 1, "xref": f"{x} domain", "y0": value, "y1": value, "yref": y}
+    note = {"font": {"size": 10}, "showarrow": False, "text": text, "x": 0, "xanchor": "left",
+            "xref": f"{x} domain", "y": value, "yanchor": "bottom", "yref": y}
+    return shape, note
 
 
 def _layout(fig: go.Figure, title: str, height: int) -> go.Figure:

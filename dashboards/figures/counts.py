@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Mapping
 
 import pandas as pd
@@ -12,6 +13,8 @@ from ..theme import (
     PALETTE,
 )
 from .common import (
+    _as_figure,
+    _new_layout,
     _layout,
     _log_ticks,
     _num,
@@ -95,15 +98,29 @@ def build_skin_dose_map(frame: pd.DataFrame, *, title: str) -> go.Figure:
     _require(frame, ["around_mm", "along_mm", "dose_gy", "psd_gy"], "build_skin_dose_map")
     grid = frame.pivot_table(index="along_mm", columns="around_mm", values="dose_gy",
                              aggfunc="sum").fillna(0.0)
-    fig = go.Figure(go.Heatmap(
-        x=[float(c) / 10.0 for c in grid.columns], y=[float(r) / 10.0 for r in grid.index],
-        z=grid.to_numpy(), colorscale="Inferno", zmin=0.0,
-        colorbar={"title": {"text": "Skin dose (Gy)"}},
-        hovertemplate="around %{x:.0f} cm, along %{y:.0f} cm: %{z:.2f} Gy<extra></extra>"))
-    fig.update_xaxes(title={"text": "Around the trunk from the front midline via the patient's right; "
-                                        "back at the centre (cm)"},
-                     type="linear")
-    fig.update_yaxes(title={"text": "Along the body, towards the head (cm)"}, type="linear",
-                     scaleanchor="x", scaleratio=1.0)
+    # a plain trace and layout (one unvalidated go.Figure), as go.Heatmap, update_xaxes,
+    # update_yaxes and _layout leave them: the colour scale by name becomes its colour stops
+    trace = {"type": "heatmap", "colorbar": {"title": {"text": "Skin dose (Gy)"}},
+             "colorscale": _colour_stops("Inferno"),
+             "hovertemplate": "around %{x:.0f} cm, along %{y:.0f} cm: %{z:.2f} Gy<extra></extra>",
+             "x": [float(c) / 10.0 for c in grid.columns], "y": [float(r) / 10.0 for r in grid.index],
+             "z": grid.to_numpy(), "zmin": 0.0}
+    layout, _ = _new_layout()
+    layout["xaxis"] = {"title": {"text": "Around the trunk from the front midline via the patient's "
+                                         "right; back at the centre (cm)"}, "type": "linear"}
+    layout["yaxis"] = {"title": {"text": "Along the body, towards the head (cm)"}, "type": "linear",
+                       "scaleanchor": "x", "scaleratio": 1.0}
     peak = float(frame["psd_gy"].iloc[0])
-    return _layout(fig, f"{title}: peak skin dose estimate {peak:.1f} Gy", height=420)
+    layout.update(title={"text": f"{title}: peak skin dose estimate {peak:.1f} Gy"},
+                  height=420 + 60)   # as _layout
+    return _as_figure([trace], layout)
+
+
+@functools.cache
+def _named_stops(name: str) -> tuple:
+    return tuple(tuple(stop) for stop in go.Heatmap(colorscale=name).colorscale)
+
+
+def _colour_stops(name: str) -> list[list]:
+    """A named plotly colour scale as the [position, colour] stops its validator writes."""
+    return [list(stop) for stop in _named_stops(name)]

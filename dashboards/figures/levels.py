@@ -11,22 +11,19 @@ from ..theme import (
     NETWORK_COLOUR,
     PALETTE,
     POPULATION_COLOURS,
-    REFERENCE_COLOUR,
     quantity_name,
     unit_label,
 )
 from .common import (
-    NO_CHECK,
-    _figure,
-    _subplots,
-    _with_traces,
+    _as_figure,
+    _hline,
+    _new_layout,
     INSUFFICIENT_SYMBOL,
     _PHANTOM_SHORT,
     _POPULATION_ORDER,
     _REFERENCE_SET_MARKS,
     _alpha,
     _fmt,
-    _layout,
     _unit_text,
     _value_ticks,
     _missing,
@@ -122,24 +119,27 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                     "line": {"color": NETWORK_COLOUR, "width": 2}, "color": NETWORK_COLOUR},
             hovertemplate="network 75th percentile %{x:.4g} " + unit_label(unit) + "<extra></extra>",
         ))
-    fig = _with_traces(_figure(), traces)
+    layout, _ = _new_layout()
     values = [*rows["median_ci_low"], *rows["median_ci_high"], *rows["median"],
               *rows["reference_value"], *rows["network_p75"]]
     log = _wants_log(values)
-    fig.update_xaxes(title={"text": "Room median with 95 % CI: " + f"{quantity_name(quantity)} ({_unit_text(unit)})"
-                                    + (", log scale" if log else "")},
-                     type="log" if log else "linear", **_value_ticks(values, unit, log))
-    fig.update_yaxes(title={"text": "Exam type · room (n exams)"},
-                     type="multicategory", autorange="reversed", tickfont={"size": 11})
-    fig = _layout(fig, title, height=max(200, 90 + 24 * len(rows)))
+    # the layout as update_xaxes, update_yaxes, _layout and update_layout leave it (an update sets
+    # a value's nested properties before its plain ones)
+    layout["xaxis"] = {"title": {"text": "Room median with 95 % CI: "
+                                         + f"{quantity_name(quantity)} ({_unit_text(unit)})"
+                                         + (", log scale" if log else "")},
+                       "type": "log" if log else "linear", **_value_ticks(values, unit, log)}
+    layout["yaxis"] = {"title": {"text": "Exam type · room (n exams)"}, "tickfont": {"size": 11},
+                       "type": "multicategory", "autorange": "reversed"}
+    layout.update(title={"text": title}, height=max(200, 90 + 24 * len(rows)) + 60)   # as _layout
     # the legend above the plot, not beside it: the data area keeps most of the width
-    fig.update_layout(legend={"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0,
-                              "yanchor": "bottom"},
-                      margin={"t": 96, "r": 16, "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))})
+    layout["legend"] = {"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0, "yanchor": "bottom"}
+    layout["margin"] = {"t": 96, "r": 16,
+                        "l": 40 + 6 * (max(map(len, exam_axis)) + max(map(len, room_axis)))}
     # a fixed left margin from the labels' length: plotly's automargin re-lays out every
     # multicategory plot several times, the main cost of drawing this page
-    fig.update_yaxes(automargin=False)
-    return fig
+    layout["yaxis"]["automargin"] = False
+    return _as_figure(traces, layout)
 
 
 
@@ -158,7 +158,7 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
                      "n", "p05", "p25", "median", "p75", "p95", "reference_value",
                      "reference_set", "is_sample_adequate"], "build_distribution")
     panels = _panels(frame)
-    fig = _subplots(rows=1, cols=len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
+    layout, cells = _new_layout(1, len(panels), horizontal_spacing=0.1 if len(panels) > 1 else 0.0)
     legend_done: set[str] = set()
     parts = [(col, quantity, phantom, _panel_rows(frame, quantity, phantom))
              for col, (quantity, phantom) in enumerate(panels, start=1)]
@@ -168,68 +168,82 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
     cols: list[int] = []
     for col, quantity, phantom, part in parts:
         unit = part["unit"].iloc[0]
-        rooms = sorted({(s, r) for s, r in zip(part["site_label"], part["room_label"], strict=True)})
+        # plain lists read by position (pandas' groupby and a boolean mask per trace cost most of
+        # this builder)
+        c = {k: part[k].tolist() for k in ("site_label", "room_label", "population", "n", "p05",
+                                           "p25", "median", "p75", "p95", "is_sample_adequate")}
+        rooms = sorted(set(zip(c["site_label"], c["room_label"], strict=True)))
         counts = {room: {} for room in rooms}
-        for s, r, pop, n in zip(part["site_label"], part["room_label"], part["population"], part["n"], strict=True):
+        for s, r, pop, n in zip(c["site_label"], c["room_label"], c["population"], c["n"], strict=True):
             counts[(s, r)][pop] = int(n)
         # adult, paediatric, unknown age (its own group), all (mammography: no age split)
-        present = [pop for pop in _POPULATION_ORDER if pop in set(part["population"])]
+        present = [pop for pop in _POPULATION_ORDER if pop in set(c["population"])]
         labels = {room: f"{room[1]}<br>{room[0]}<br>n " + " / ".join(
             f"{counts[room].get(pop, 0)}" for pop in present) for room in rooms}
-        by_population = dict(iter(part.groupby("population", sort=False)))
         for population in present:
             colour = POPULATION_COLOURS.get(population, PALETTE[2])
-            rows = by_population[population]
-            single = rows[rows["n"] == 1]
-            if not single.empty:    # one exam: a point, not a box of five equal quantiles
+            rows = [i for i, pop in enumerate(c["population"]) if pop == population]
+            single = [i for i in rows if c["n"][i] == 1]
+            if single:    # one exam: a point, not a box of five equal quantiles
                 name = f"{population}, a single exam"
                 traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in legend_done, mode="markers",
-                    x=[labels[(s, r)] for s, r in zip(single["site_label"], single["room_label"], strict=True)],
-                    y=[_num(v) for v in single["median"]],
+                    x=[labels[(c["site_label"][i], c["room_label"][i])] for i in single],
+                    y=[_num(c["median"][i]) for i in single],
                     marker={"color": "rgba(255,255,255,0)", "size": 9, "symbol": "circle",
                             "line": {"color": colour, "width": 2}},
                     hovertemplate="%{x}<br>one exam: %{y:.4g} " + unit_label(unit) + "<extra></extra>",
+                    **cells[0][col - 1],
                 ))
                 cols.append(col)
                 legend_done.add(name)
             for adequate in (True, False):
-                sel = rows[(rows["is_sample_adequate"] == adequate) & (rows["n"] > 1)]
-                if sel.empty:
+                sel = [i for i in rows if c["is_sample_adequate"][i] == adequate and c["n"][i] > 1]
+                if not sel:
                     continue
                 name = population if adequate else f"{population}, sample below the audit minimum"
                 traces.append(dict(type="box",
                     name=name, legendgroup=name, showlegend=name not in legend_done,
                     offsetgroup=population, alignmentgroup=f"panel{col}",
-                    x=[labels[(s, r)] for s, r in zip(sel["site_label"], sel["room_label"], strict=True)],
-                    q1=[_num(v) for v in sel["p25"]], median=[_num(v) for v in sel["median"]],
-                    q3=[_num(v) for v in sel["p75"]], lowerfence=[_num(v) for v in sel["p05"]],
-                    upperfence=[_num(v) for v in sel["p95"]],
+                    x=[labels[(c["site_label"][i], c["room_label"][i])] for i in sel],
+                    q1=[_num(c["p25"][i]) for i in sel], median=[_num(c["median"][i]) for i in sel],
+                    q3=[_num(c["p75"][i]) for i in sel], lowerfence=[_num(c["p05"][i]) for i in sel],
+                    upperfence=[_num(c["p95"][i]) for i in sel],
                     marker={"color": colour},
                     line={"color": colour, "width": 1.5},
                     fillcolor=_alpha(colour, 0.35) if adequate else "rgba(255,255,255,0)",
                     hoverinfo="x+y", boxpoints=False,
+                    **cells[0][col - 1],
                 ))
                 cols.append(col)
                 legend_done.add(name)
-    fig = _with_traces(fig, traces, [1] * len(cols), cols)
+    # the shapes and annotations add_hline makes per reference value (on panels with traces)
+    shapes: list[dict] = []
+    notes: list[dict] = []
     for col, quantity, phantom, part in parts:
+        cell = cells[0][col - 1]
         unit = part["unit"].iloc[0]
         refs = part.dropna(subset=["reference_value"])
         for (value, ref_set, population) in sorted(
                 {(float(v), str(s), str(p)) for v, s, p in
                  zip(refs["reference_value"], refs["reference_set"], refs["population"], strict=True)}):
-            fig.add_hline(y=value, line={"color": REFERENCE_COLOUR, "dash": "dash", "width": 2},
-                          annotation_text=f"Reference level {_fmt(value)} {unit_label(unit)} ({population}, {ref_set})",
-                          annotation_position="top left", annotation_font={"size": 10},
-                          row=1, col=col)
+            if col not in cols:
+                continue
+            shape, note = _hline(value, f"Reference level {_fmt(value)} {unit_label(unit)} "
+                                        f"({population}, {ref_set})", cell)
+            shapes.append(shape)
+            notes.append(note)
         values = [*part["p05"], *part["p95"], *refs["reference_value"]]
         log = _wants_log(values)
-        fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, phantom, log)},
-                         type="log" if log else "linear", **_value_ticks(values, unit, log),
-                         row=1, col=col)
-        fig.update_xaxes(title={"text": "Room · site (n adult / paediatric exams)"}, type="category",
-                         row=1, col=col)
-    fig.update_layout(boxmode="group")
+        layout[cell["yaxis"].replace("y", "yaxis", 1)].update(
+            title={"text": _panel_axis_title(quantity, unit, phantom, log)},
+            type="log" if log else "linear", **_value_ticks(values, unit, log))
+        layout[cell["xaxis"].replace("x", "xaxis", 1)].update(
+            title={"text": "Room · site (n adult / paediatric exams)"}, type="category")
+    if shapes:
+        layout["shapes"] = shapes
+        layout["annotations"] = notes
+    layout["boxmode"] = "group"
     width_rooms = max(len(set(zip(frame["site_label"], frame["room_label"], strict=True))), 2)
-    return _layout(fig, title, height=380 + 12 * width_rooms)
+    layout.update(title={"text": title}, height=380 + 12 * width_rooms + 60)   # as _layout
+    return _as_figure(traces, layout)

@@ -16,15 +16,14 @@ from ..theme import (
     unit_label,
 )
 from .common import (
-    NO_CHECK,
-    _figure,
-    _subplots,
-    _with_traces,
+    _as_figure,
+    _hline,
+    _new_layout,
+    _validated_order,
     DRIFT_COLOUR,
     INSUFFICIENT_SYMBOL,
     _ROOM_SYMBOLS,
     _fmt,
-    _layout,
     _log_ticks,
     _missing,
     _num,
@@ -75,8 +74,8 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     _require(frame, ["quantity", "unit", "phantom", "month", "site_label", "room_label", "n",
                      "median", "p25", "p75", "reference_value", "reference_set"], "build_trend")
     panels = _panels(frame)
-    fig = _subplots(rows=len(panels), cols=1,
-                    vertical_spacing=min(0.25, 0.4 / len(panels)) if len(panels) > 1 else 0.0)
+    layout, cells = _new_layout(len(panels), 1, vertical_spacing=min(0.25, 0.4 / len(panels))
+                                if len(panels) > 1 else 0.0)
     months = sorted(set(frame["month"]))
     step = max(1, math.ceil(len(months) / 12))
     ticks = months[::step]
@@ -89,88 +88,99 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
     # rooms side by side within a month (dodged), so their interquartile bars never overlap
     step = min(3.0, 22.0 / max(1, len(all_rooms)))
     dodge = {room: (i - (len(all_rooms) - 1) / 2.0) * step for i, room in enumerate(all_rooms)}
-    # drift marks are added to the layout at once: plotly's add_shape / add_annotation copy
-    # every earlier one (quadratic in the number of flags)
-    flag_shapes: list[go.layout.Shape] = []
-    flag_notes: list[go.layout.Annotation] = []
     parts = [(row, quantity, _panel_rows(frame, quantity, phantom))
              for row, (quantity, phantom) in enumerate(panels, start=1)]
-    # every panel's traces first, added at once (reference lines go on panels with traces)
-    traces: list[dict] = []   # plain dicts: one trace object each, made by the figure
-    rows: list[int] = []
+    # every panel's traces first (reference lines go on panels with traces), as plain dicts
+    traces: list[dict] = []
     for row, quantity, part in parts:
         unit = part["unit"].iloc[0]
-        # each room's rows split once (a boolean mask per room costs a scan of the panel each)
-        by_room = dict(iter(part.groupby(["site_label", "room_label"], sort=False)))
+        # each room's rows by position in plain lists (pandas' groupby and a sort per room cost
+        # most of this builder); rooms with a NULL site or room label are not drawn, as before
+        col = {c: part[c].tolist() for c in ("site_label", "room_label", "month", "n", "median",
+                                              "p25", "p75")}
+        by_room: dict[tuple[str, str], list[int]] = {}
+        for i, key in enumerate(zip(col["site_label"], col["room_label"], strict=True)):
+            if not (_missing(key[0]) or _missing(key[1])):
+                by_room.setdefault(key, []).append(i)
         for site in sorted(rooms_by_site):
             for k, room in enumerate(rooms_by_site[site]):
-                series = by_room.get((site, room))
-                if series is None:
+                rows = by_room.get((site, room))
+                if rows is None:
                     continue
-                series = series.sort_values("month")
+                rows = sorted(rows, key=col["month"].__getitem__)   # stable, as pandas' sort
+                month = [col["month"][i] for i in rows]
                 name = f"{room} · {site}"
                 colour = _site_colour(site_colours, site)
-                med = [_num(v) for v in series["median"]]
+                med = [_num(col["median"][i]) for i in rows]
                 traces.append(dict(type="scatter",
                     name=name, legendgroup=name, showlegend=name not in shown,
-                    mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in series["month"]], y=med,
+                    mode="lines+markers", x=[_month_mid(m, dodge[(site, room)]) for m in month], y=med,
                     line={"color": colour, "width": 2, "dash": ("solid", "dot", "dash")[k % 3]},
                     marker={"color": colour, "size": 8, "symbol": _ROOM_SYMBOLS[k % len(_ROOM_SYMBOLS)]},
                     error_y={"type": "data", "symmetric": False, "color": colour, "thickness": 1,
                              "width": 3,
                              "array": [None if _missing(h) or m is None else _num(float(h) - m)
-                                       for h, m in zip(series["p75"], med, strict=True)],
+                                       for h, m in zip([col["p75"][i] for i in rows], med, strict=True)],
                              "arrayminus": [None if _missing(w) or m is None else _num(m - float(w))
-                                            for w, m in zip(series["p25"], med, strict=True)]},
-                    customdata=[[int(n), _month_text(m)] for n, m in zip(series["n"], series["month"], strict=True)],
+                                            for w, m in zip([col["p25"][i] for i in rows], med, strict=True)]},
+                    customdata=[[int(col["n"][i]), _month_text(col["month"][i])] for i in rows],
                     hovertemplate=("%{customdata[1]}: median %{y:.4g} " + unit_label(unit)
                                    + " (n %{customdata[0]})<extra>" + name + "</extra>"),
+                    **cells[row - 1][0],
                 ))
                 shown.add(name)
-                rows.append(row)
-    fig = _with_traces(fig, traces, rows, [1] * len(rows))
+    # reference lines and drift flags: the shapes and annotations (in this order) that
+    # add_hline per reference value and then one update of the layout with the flags made
+    shapes: list[dict] = []
+    notes: list[dict] = []
+    flag_shapes: list[dict] = []
+    flag_notes: list[dict] = []
     for row, quantity, part in parts:
+        cell = cells[row - 1][0]
         unit = part["unit"].iloc[0]
         refs = part.dropna(subset=["reference_value"])
         for value, ref_set in sorted({(float(v), str(s)) for v, s in
                                       zip(refs["reference_value"], refs["reference_set"], strict=True)}):
-            fig.add_hline(y=value, line={"color": REFERENCE_COLOUR, "dash": "dash", "width": 2},
-                          annotation_text=f"Reference level {_fmt(value)} {unit_label(unit)} ({ref_set})",
-                          annotation_position="top left", annotation_font={"size": 10},
-                          row=row, col=1)
+            shape, note = _hline(value, f"Reference level {_fmt(value)} {unit_label(unit)} ({ref_set})",
+                                 cell)
+            shapes.append(shape)
+            notes.append(note)
         flags = drift[drift["quantity"] == quantity] if not drift.empty else drift
-        axis = "" if row == 1 else str(row)
+        x_axis, y_axis = cell["xaxis"], cell["yaxis"]
         ordered = flags.sort_values(["change_month", "room_label"]) if not flags.empty else flags
         for k, flag in enumerate(ordered.itertuples(index=False)):
             x = f"{flag.change_month}-01"
-            flag_shapes.append(go.layout.Shape(**NO_CHECK,
-                type="line", x0=x, x1=x, y0=0, y1=1, xref=f"x{axis}", yref=f"y{axis} domain",
-                line={"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2}))
+            flag_shapes.append({"line": {"color": DRIFT_COLOUR, "dash": "dashdot", "width": 2},
+                                "type": "line", "x0": x, "x1": x, "xref": x_axis, "y0": 0, "y1": 1,
+                                "yref": f"{y_axis} domain"})
             change = (float(flag.ratio_after_to_before) - 1.0) * 100.0
-            flag_notes.append(go.layout.Annotation(**NO_CHECK,
-                x=x, y=1.0 - 0.12 * k, xref=f"x{axis}", yref=f"y{axis} domain",
-                text=f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
-                showarrow=False, xanchor="left", yanchor="top", xshift=4,
-                font={"size": 10, "color": DRIFT_COLOUR}, bgcolor="rgba(255,255,255,0.85)"))
+            flag_notes.append({
+                "bgcolor": "rgba(255,255,255,0.85)", "font": {"color": DRIFT_COLOUR, "size": 10},
+                "showarrow": False,
+                "text": f"drift flag: {flag.room_label} {change:+.0f} % from {_month_text(flag.change_month)}",
+                "x": x, "xanchor": "left", "xref": x_axis, "xshift": 4, "y": 1.0 - 0.12 * k,
+                "yanchor": "top", "yref": f"{y_axis} domain"})
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
-        fig.update_yaxes(title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
-                         type="log" if log else "linear", **_value_ticks(values, unit, log),
-                         row=row, col=1)
-        fig.update_xaxes(title={"text": "Month of study (calendar month)"}, type="date",
-                         tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
-                         range=x_range, row=row, col=1)
-    if flag_shapes:
-        fig.update_layout(shapes=[*fig.layout.shapes, *flag_shapes],
-                          annotations=[*fig.layout.annotations, *flag_notes])
-    return _layout(fig, title, height=40 + 290 * len(panels))
+        layout[y_axis.replace("y", "yaxis", 1)].update(
+            title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
+            type="log" if log else "linear", **_value_ticks(values, unit, log))
+        layout[x_axis.replace("x", "xaxis", 1)].update(
+            title={"text": "Month of study (calendar month)"}, type="date",
+            tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
+            range=x_range)
+    if shapes or flag_shapes:
+        layout["shapes"] = [*shapes, *flag_shapes]
+        layout["annotations"] = [*notes, *flag_notes]
+    layout.update(title={"text": title}, height=40 + 290 * len(panels) + 60)   # as _layout
+    return _as_figure(traces, layout)
 
 
 # --- site comparison: funnel ----------------------------------------------------------------
-def _funnel_cells(cells: pd.DataFrame) -> go.Scatter:
+def _funnel_cells(cells: pd.DataFrame) -> dict:
     """One grey square per cell of groups not drawn one by one; area ~ number of groups."""
     biggest = max(int(v) for v in cells["n_groups"])
-    return go.Scatter(**NO_CHECK,
+    return dict(type="scatter",
         name="Room groups not drawn one by one (square area: number of groups)", mode="markers",
         x=[_num(v) for v in cells["n_mid"]], y=[_num(v) for v in cells["ratio_mid"]],
         marker={"color": NETWORK_COLOUR, "symbol": "square", "opacity": 0.55,
@@ -211,13 +221,14 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         _require(points, columns, "build_funnel")
     first = points if not points.empty else cells
     quantity, unit = str(first["quantity"].iloc[0]), first["unit"].iloc[0]
-    fig = _figure()
+    layout, _ = _new_layout()
+    traces: list[dict] = []   # plain dicts, as add_trace leaves them: see _validated_order
     if not limits.empty:
         lim = limits.sort_values("n")
         n = [int(v) for v in lim["n"]]
         for column, name, dash in (("upper_998", "99.8 % upper control limit", "dot"),
                                    ("upper_95", "95 % upper control limit", "dash")):
-            fig.add_trace(go.Scatter(**NO_CHECK,
+            traces.append(dict(type="scatter",
                 name=name, legendgroup=name, mode="lines", x=n, y=[_num(v) for v in lim[column]],
                 line={"color": NETWORK_COLOUR, "dash": dash, "width": 1.5},
                 hovertemplate="n %{x}: limit %{y:.3f}<extra>" + name + "</extra>",
@@ -225,13 +236,13 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
         x_max = max(n)
     else:
         x_max = max(int(v) for v in [*points["n"], *(cells["n_max"] if has_cells else [])]) * 2
-    fig.add_trace(go.Scatter(**NO_CHECK,
+    traces.append(dict(type="scatter",
         name="Network typical value (ratio 1)", mode="lines", x=[1, x_max], y=[1.0, 1.0],
         line={"color": NETWORK_COLOUR, "width": 2}, hoverinfo="skip",
     ))
     refs = points[[not _missing(v) for v in points["reference_ratio_to_typical"]]]
     if not refs.empty:
-        fig.add_trace(go.Scatter(**NO_CHECK,
+        traces.append(dict(type="scatter",
             name="Reference level of the group", mode="markers",
             x=[int(v) for v in refs["n"]], y=[_num(v) for v in refs["reference_ratio_to_typical"]],
             marker={"color": REFERENCE_COLOUR, "symbol": "line-ew-open", "size": 18,
@@ -241,13 +252,13 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
                           + " = %{y:.2f} x typical<extra></extra>",
         ))
     if has_cells:   # under the groups drawn one by one
-        fig.add_trace(_funnel_cells(cells))
+        traces.append(_funnel_cells(cells))
     for site in sorted(points["site_label"].unique()):
         part = points[points["site_label"] == site]
         colour = _site_colour(site_colours, site)
         adequate = [bool(v) for v in part["is_sample_adequate"]]
         labelled = [z == "above 99.8 % limit" for z in part["funnel_zone"]]
-        fig.add_trace(go.Scatter(**NO_CHECK,
+        traces.append(dict(type="scatter",
             name=site, legendgroup=site, mode="markers+text",
             x=[int(v) for v in part["n"]], y=[_num(v) for v in part["ratio_to_typical"]],
             marker={"color": colour, "size": 11, "line": {"color": colour, "width": 2},
@@ -268,10 +279,12 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
               if not _missing(v) and v > 0]
     lo = min([*ratios, 0.5])
     hi = max([*ratios, *([v for v in limits["upper_998"]] if not limits.empty else []), 2.0])
-    fig.update_xaxes(title={"text": "Exams in the room's audit group (count, log scale)"},
-                     type="log", range=[0, math.log10(x_max * 1.05)], **_log_ticks([1, x_max]))
-    fig.update_yaxes(title={"text": f"{quantity_name(quantity)}: median ÷ network typical value "
-                                    "(ratio, log scale)"},
-                     type="log", range=[math.log10(lo) - 0.05, math.log10(hi) + 0.05],
-                     **_log_ticks([lo, hi], fine=True))
-    return _layout(fig, title, height=460)
+    # the layout as update_xaxes, update_yaxes and _layout leave it
+    layout["xaxis"] = {"title": {"text": "Exams in the room's audit group (count, log scale)"},
+                       "type": "log", "range": [0, math.log10(x_max * 1.05)], **_log_ticks([1, x_max])}
+    layout["yaxis"] = {"title": {"text": f"{quantity_name(quantity)}: median ÷ network typical value "
+                                         "(ratio, log scale)"},
+                       "type": "log", "range": [math.log10(lo) - 0.05, math.log10(hi) + 0.05],
+                       **_log_ticks([lo, hi], fine=True)}
+    layout.update(title={"text": title}, height=460 + 60)   # as _layout
+    return _as_figure([_validated_order(t) for t in traces], layout)

@@ -7,7 +7,7 @@ import plotly.graph_objects as go
 import pytest
 
 from dashboards import figures
-from dashboards.theme import PALETTE, axis_title, colour_map, unit_label
+from dashboards.theme import PALETTE, REFERENCE_COLOUR, axis_title, colour_map, unit_label
 
 SITES = colour_map(["North Site", "South Site"])
 
@@ -298,3 +298,44 @@ def test_funnel_draws_cells_of_groups_not_drawn_one_by_one_under_the_points():
     alone = figures.build_funnel(points.head(0), limits, site_colours=SITES, title="DLP", cells=cells)
     assert [t.name for t in alone.data if t.name in SITES] == []
     assert "DLP" in alone.layout.yaxis.title.text
+
+
+def test_reference_line_dicts_are_what_add_hline_adds():
+    """The busy builders write add_hline's shape and annotation themselves (common._hline): the
+    same properties in the same order as plotly's own call on the same grid cell."""
+    import json
+
+    from plotly.subplots import make_subplots
+
+    from dashboards.figures.common import _hline
+
+    fig = make_subplots(rows=1, cols=2)
+    fig.add_trace(go.Scatter(x=[1], y=[1]), row=1, col=1)
+    fig.add_trace(go.Scatter(x=[1], y=[2]), row=1, col=2)
+    fig.add_hline(y=0.25, line={"color": REFERENCE_COLOUR, "dash": "dash", "width": 2},
+                  annotation_text="Reference level 0.25 mGy (set_a)", annotation_position="top left",
+                  annotation_font={"size": 10}, row=1, col=2)
+    shape, note = _hline(0.25, "Reference level 0.25 mGy (set_a)", {"xaxis": "x2", "yaxis": "y2"})
+    layout = fig.to_dict()["layout"]
+    assert json.dumps(layout["shapes"]) == json.dumps([shape])
+    assert json.dumps(layout["annotations"]) == json.dumps([note])
+
+
+def test_figure_of_plain_dicts_keeps_the_layout_key_order():
+    """common._as_figure makes one unvalidated figure of a layout dict with its keys in their
+    order (plotly's own constructor sorts them; a numbered axis set on a layout is validated)."""
+    import json
+
+    from dashboards.figures.common import _as_figure, _new_layout
+
+    layout, cells = _new_layout(2, 1, vertical_spacing=0.2)
+    assert cells[1][0] == {"xaxis": "x2", "yaxis": "y2"}
+    layout["xaxis2"].update(title={"text": "Month", "font": {"size": 3}}, type="date", range=[1, 2])
+    layout["yaxis"].update(title={"text": "Median"}, type="log", tickvals=[1.0], ticktext=["1"])
+    layout["shapes"] = [{"type": "line", "line": {"width": 2, "color": "#111111"}, "x0": 0}]
+    layout.update(title={"text": "t"}, height=100)
+    fig = _as_figure([{"type": "scatter", "x": [1], "y": [2], "marker": {"size": 3, "color": "#000"},
+                       **cells[1][0]}], layout)
+    assert json.dumps(fig.to_dict()["layout"]) == json.dumps(layout)
+    assert fig.layout.xaxis2.title.text == "Month" and fig.layout.yaxis.type == "log"
+    assert fig.data[0].yaxis == "y2" and fig.data[0].marker.size == 3

@@ -498,6 +498,33 @@ def test_csv_text_writes_what_pandas_float_format_writes():
     assert rows["median"].dtype == np.float64                          # the caller's frame unchanged
 
 
+def test_csv_text_joins_plain_tables_itself_as_pandas_writes_them():
+    """Tables of text, integer, boolean and float64 columns (the site's, once timestamps are
+    text) are written by site.csv_text without pandas; the characters must be pandas' own
+    ``to_csv(float_format="%.12g")``: NULL empty, fields quoted as csv.writer quotes them (a
+    comma, a quote, a line break), a lone empty field quoted; an object column holding
+    numbers (written by csv.writer, repr() of a float) too."""
+    import numpy as np
+
+    rows = pd.DataFrame({
+        "site_label": pd.array(['North, "A"', None, "South", "", "line\nbreak", "cr\rhere", " pad "],
+                               dtype="str"),
+        "n": np.array([3, 1, 12, 0, -5, 7, 2**40], dtype=np.int64),
+        "family_order": np.array([1, 2, 3, 4, 5, 6, 7], dtype=np.int32),
+        "median": [1234567.891234567, np.nan, 0.1 + 0.2, 1e-7, -0.0, np.inf, 2.0],
+        "flag": [True, False, True, False, True, False, True],
+        "note": ["a", None, 'q"uote', np.nan, "x,y", "", "ü"],
+        "mixed": [1.5, None, "t", 2, np.float64(0.3), True, "z"],
+    }).astype({"note": object, "mixed": object})
+    assert rows["note"].dtype == object and rows["site_label"].dtype != object
+    frames = (rows, rows.drop(columns="mixed"), rows[["site_label"]], rows[["note", "n"]],
+              rows.iloc[:0], rows.drop(columns="mixed").iloc[:0], rows[["n", "flag"]])
+    for frame in frames:
+        expected = frame.to_csv(index=False, lineterminator="\n", float_format="%.12g")
+        assert site_module.csv_text(frame) == expected
+    assert '"North, ""A"""' in site_module.csv_text(rows) and ',1234567.89123,' in site_module.csv_text(rows)
+
+
 def test_csv_written_in_pieces_is_the_csv_of_the_whole_table(tmp_path, monkeypatch):
     """Large tables are written to CSV piece by piece (memory); the file must be byte for byte
     csv_text of the whole table, also where one piece's timestamps are all at midnight (pandas
