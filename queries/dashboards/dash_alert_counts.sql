@@ -4,8 +4,10 @@
 select
     a.rule,
     any_value(a.family) as family,
-    any_value(a.quantity) as quantity,
-    any_value(a.unit) as unit,
+    -- a rule that checks several quantities (the robust outliers: each audited quantity) has
+    -- none of its own: NULL, not whichever row came first
+    case when count(distinct a.quantity) = 1 then min(a.quantity) end as quantity,
+    case when count(distinct a.quantity) = 1 then min(a.unit) end as unit,
     case when count(distinct a.threshold) = 1 then max(a.threshold) end as threshold,
     coalesce(d.site_label, a.site, '(site not known)') as site_label,
     count(*) as n_alerts,

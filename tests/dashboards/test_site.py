@@ -546,3 +546,22 @@ def test_csv_written_in_pieces_is_the_csv_of_the_whole_table(tmp_path, monkeypat
     assert "2026-09-01 00:00:00" in path.read_text()     # the first piece alone would say 2026-09-01
     site_module._write_csv(path, rows.iloc[:0])
     assert path.read_text() == site_module.csv_text(rows.iloc[:0])
+
+
+def test_alert_counts_give_a_rule_a_quantity_only_when_it_checks_one(site, audited):
+    """alerts-by-rule.csv: a robust-outlier rule fires on several quantities, so its row names
+    none (it named whichever alert DuckDB met first, which changed with the table's row order);
+    a fixed-threshold rule keeps its quantity and unit."""
+    import duckdb
+
+    counts = pd.read_csv(site / "alerts-by-rule.csv", keep_default_na=False)
+    with duckdb.connect(str(audited), read_only=True) as con:
+        per_rule = dict(con.execute("select rule, count(distinct quantity) from dose_alerts"
+                                    " group by rule").fetchall())
+    several = {r for r, n in per_rule.items() if n > 1}
+    assert several and several <= {"robust_outlier_high", "robust_outlier_low"}
+    for row in counts.itertuples():
+        if row.rule in several:
+            assert row.quantity == "" and row.unit == "", row
+        else:
+            assert row.quantity != "" and row.unit != "", row
