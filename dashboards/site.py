@@ -89,7 +89,7 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
     return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
-def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | None = None
+def read_site_data(con: duckdb.DuckDBPyConnection
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
     """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
 
@@ -100,15 +100,14 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, adult_min_age: float | Non
     for name in _MATERIALISED:
         con.execute(sql(f"dash_materialise_{name}"))
     try:
-        return _read_site_data(con, q, adult_min_age)
+        return _read_site_data(con, q)
     finally:
         con.execute(sql("dash_drop_materialised"))
 
 
-def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | None
+def _read_site_data(con: duckdb.DuckDBPyConnection, q
                     ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
-    from pipeline.audit import AuditSettings
-
+    # populations (adult age) are the audit's own: read from its tables, never set here
     con.register("dash_exam_type", _exam_types())
     con.register("dash_concept", _concepts())
     devices = q("dash_devices")
@@ -121,8 +120,7 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, adult_min_age: float | No
         label = str(periods.sort_values(["n_rows", "period"], ascending=[False, True])["period"].iloc[0])
         first, last = _period_dates(label)
         bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
-    params = {**bounds, "adult_min_age": adult_min_age if adult_min_age is not None
-              else AuditSettings().adult_min_age_years}
+    params = bounds
     text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
     con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
     sigma = q("dash_funnel_sigma")
