@@ -15,6 +15,9 @@ Ends with:
 
 (the peak over the first 10 % of the run's time, and over all of it: flat memory means R1 close
 to R2; issue 14's target is < 1 GiB at 100k studies)
+
+With --duckdb-memory, each progress line is followed by what DuckDB itself holds in the ingest
+process then (duckdb_memory() by tag, and pragma database_size), to tell what grows.
 """
 
 from __future__ import annotations
@@ -85,10 +88,35 @@ def _rss_mib(pid: int) -> float:
     return total / 1024
 
 
-def child(corpus: Path, db: Path) -> None:
+_DUCKDB_TAGS = ("BASE_TABLE", "ART_INDEX", "METADATA", "OVERFLOW_STRINGS", "HASH_TABLE",
+                "COLUMN_DATA", "ORDER_BY", "IN_MEMORY_TABLE", "ALLOCATOR", "TRANSACTION")
+
+
+def _duckdb_memory(con) -> str:
+    """One line: DuckDB's own memory by tag (MiB), its total, and the database file's size."""
+    tags = dict(con.execute("select tag, memory_usage_bytes from duckdb_memory()").fetchall())
+    (size, used_blocks, block_size, wal), = con.execute(
+        "select database_size, used_blocks, block_size, wal_size from pragma_database_size()").fetchall()
+    parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
+    return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
+            f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}")
+
+
+def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
+    import pipeline.ingest as ingest_module
     from pipeline.ingest import ingest
 
     done = [0, 0]   # files so far, files at the last progress line
+    if duckdb_memory:   # sampled in the ingest's own connection, right after a progress line
+        load_chunk = ingest_module._load_chunk
+
+        def sampled(con, *args, **kwargs):
+            before = done[1]
+            load_chunk(con, *args, **kwargs)
+            if done[1] != before:
+                print(_duckdb_memory(con), flush=True)
+
+        ingest_module._load_chunk = sampled
 
     def progress(n_files: int) -> None:
         done[0] += n_files
@@ -104,17 +132,20 @@ def child(corpus: Path, db: Path) -> None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--studies", type=int, default=100_000)
+    parser.add_argument("--duckdb-memory", action="store_true",
+                        help="print DuckDB's memory by tag and the file size at each progress line")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        child(Path(args.child[0]), Path(args.child[1]))
+        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory)
         return
     CACHE.mkdir(parents=True, exist_ok=True)
     corpus = replicated(args.studies)
     n_files = sum(1 for p in corpus.rglob("*.dcm"))
     db = CACHE / f"ingest-scale-{os.getpid()}.duckdb"
     started = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db)],
+    proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db),
+                             *(["--duckdb-memory"] if args.duckdb_memory else [])],
                             stdout=subprocess.PIPE, text=True, cwd=ROOT,
                             env={**os.environ, "PYTHONPATH": str(ROOT)})
     samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
@@ -134,6 +165,8 @@ def main() -> None:
             peak_so_far = max((s[1] for s in samples), default=float("nan"))
             print(f"   {int(line.split()[1]):7d} files in {time.perf_counter() - started:5.0f} s: "
                   f"RSS {now:5.0f} MiB, peak so far {peak_so_far:5.0f} MiB", flush=True)
+        elif line.startswith("DUCKDB "):
+            print(f"     {line[7:]}", end="", flush=True)
     proc.wait()
     out = "".join(lines)
     stop.set()
