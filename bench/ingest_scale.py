@@ -17,7 +17,9 @@ Ends with:
 to R2; issue 14's target is < 1 GiB at 100k studies)
 
 With --duckdb-memory, each progress line is followed by what DuckDB itself holds in the ingest
-process then (duckdb_memory() by tag, and pragma database_size), to tell what grows.
+process then (duckdb_memory() by tag, and pragma database_size) beside that process's own resident
+memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
+during (VmHWM, reset before it) and after it, to tell what grows.
 """
 
 from __future__ import annotations
@@ -92,14 +94,26 @@ _DUCKDB_TAGS = ("BASE_TABLE", "ART_INDEX", "METADATA", "OVERFLOW_STRINGS", "HASH
                 "COLUMN_DATA", "ORDER_BY", "IN_MEMORY_TABLE", "ALLOCATOR", "TRANSACTION")
 
 
+def _own_mib(field: str = "VmRSS") -> float:
+    """This process's resident memory (VmRSS) or its peak since the last reset (VmHWM), MiB."""
+    with open("/proc/self/status") as f:
+        return next(int(l.split()[1]) for l in f if l.startswith(field + ":")) / 1024
+
+
 def _duckdb_memory(con) -> str:
-    """One line: DuckDB's own memory by tag (MiB), its total, and the database file's size."""
+    """One line: DuckDB's own memory by tag (MiB), its total, the database file's size, and the
+    ingest process's resident memory."""
     tags = dict(con.execute("select tag, memory_usage_bytes from duckdb_memory()").fetchall())
     (size, used_blocks, block_size, wal), = con.execute(
         "select database_size, used_blocks, block_size, wal_size from pragma_database_size()").fetchall()
     parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
     return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
-            f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}")
+            f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}; "
+            f"ingest process RSS {_own_mib():.0f} MiB")
+
+
+def _duckdb_total_mib(con) -> float:
+    return con.execute("select sum(memory_usage_bytes) from duckdb_memory()").fetchall()[0][0] / 2**20
 
 
 def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
@@ -117,6 +131,20 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
                 print(_duckdb_memory(con), flush=True)
 
         ingest_module._load_chunk = sampled
+        refresh = ingest_module.refresh_derived
+
+        def watched(con, *args, **kwargs):
+            before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
+            with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                f.write("5")
+            result = refresh(con, *args, **kwargs)
+            print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
+                  f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
+                  f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
+                  f"{_duckdb_total_mib(con):.0f} MiB", flush=True)
+            return result
+
+        ingest_module.refresh_derived = watched
 
     def progress(n_files: int) -> None:
         done[0] += n_files
