@@ -227,7 +227,9 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
                     _load_chunk(con, in_flight, run_id, summary, progress, touched)
                     if len(touched) >= REFRESH_EVERY_STUDIES:
                         refreshes.append(refresh_derived(con, touched, since=since))
-                        since, touched = raw_state(con), set()
+                        # the state the refresh read (it writes only the derived tables): not
+                        # read again, a whole scan of the raw tables' keys
+                        since, touched = refreshes[-1].raw_state, set()
                         _release_free_memory()
                 in_flight = dispatched
             if in_flight is not None:
@@ -331,7 +333,9 @@ def _loaded_sops(con, sops: list[str]) -> set[str]:
     """Those of `sops` that raw_dose_object holds."""
     if not sops:
         return set()
-    return {r[0] for r in _rows_of_batch(con, _LOADED_SOPS, "incoming_sops", "sop_instance_uid", sops)}
+    # a list parameter, not a registered relation: DuckDB then looks the UIDs up in the primary
+    # key's index (an index scan of the batch's rows) instead of scanning raw_dose_object whole
+    return {r[0] for r in con.execute(_LOADED_SOPS, {"sops": sops}).fetchall()}
 
 
 def _rows_of_batch(con, query: str, name: str, column: str, values: list[str]) -> list[tuple]:
