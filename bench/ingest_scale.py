@@ -100,6 +100,28 @@ def _own_mib(field: str = "VmRSS") -> float:
         return next(int(l.split()[1]) for l in f if l.startswith(field + ":")) / 1024
 
 
+def _malloc_mib() -> str:
+    """glibc malloc's bytes in use and free-but-kept (mallinfo2: DuckDB's own allocations outside
+    its buffer manager, and Python's larger objects, live here), and pyarrow's pool, in MiB."""
+    import ctypes
+
+    import pyarrow as pa
+
+    class MallInfo2(ctypes.Structure):
+        _fields_ = [(name, ctypes.c_size_t) for name in (
+            "arena", "ordblks", "smblks", "hblks", "hblkhd", "usmblks", "fsmblks", "uordblks",
+            "fordblks", "keepcost")]
+
+    try:
+        mallinfo2 = ctypes.CDLL("libc.so.6").mallinfo2
+    except (OSError, AttributeError):
+        return "malloc n/a"
+    mallinfo2.restype = MallInfo2
+    m = mallinfo2()
+    return (f"malloc in use {(m.uordblks + m.hblkhd) / 2**20:.0f} MiB, free kept "
+            f"{m.fordblks / 2**20:.0f} MiB; pyarrow {pa.total_allocated_bytes() / 2**20:.0f} MiB")
+
+
 def _duckdb_memory(con) -> str:
     """One line: DuckDB's own memory by tag (MiB), its total, the database file's size, and the
     ingest process's resident memory."""
@@ -109,7 +131,7 @@ def _duckdb_memory(con) -> str:
     parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
     return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
             f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}; "
-            f"ingest process RSS {_own_mib():.0f} MiB")
+            f"ingest process RSS {_own_mib():.0f} MiB; {_malloc_mib()}")
 
 
 def _duckdb_total_mib(con) -> float:
@@ -141,7 +163,7 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
                   f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
-                  f"{_duckdb_total_mib(con):.0f} MiB", flush=True)
+                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}", flush=True)
             return result
 
         ingest_module.refresh_derived = watched
