@@ -122,6 +122,24 @@ def _malloc_mib() -> str:
             f"{m.fordblks / 2**20:.0f} MiB; pyarrow {pa.total_allocated_bytes() / 2**20:.0f} MiB")
 
 
+def _mappings_mib() -> str:
+    """This process's resident memory by kind of mapping (/proc/self/smaps): the C heap (brk),
+    anonymous mappings (glibc's other arenas and large blocks, Python's object arenas, anything
+    mmap-ed), and files (shared libraries, the database file if mapped)."""
+    kinds = {"heap": 0, "anonymous": 0, "files": 0}
+    kind = "anonymous"
+    with open("/proc/self/smaps") as f:
+        for line in f:
+            first = line.split(maxsplit=6)
+            if len(first) >= 5 and "-" in first[0] and ":" not in first[0]:   # a mapping's header
+                name = first[5].strip() if len(first) > 5 else ""
+                kind = "heap" if name == "[heap]" else "files" if name.startswith("/") \
+                    else "anonymous"
+            elif line.startswith("Rss:"):
+                kinds[kind] += int(line.split()[1])
+    return ", ".join(f"{k} {v / 1024:.0f}" for k, v in kinds.items()) + " MiB resident"
+
+
 def _duckdb_memory(con) -> str:
     """One line: DuckDB's own memory by tag (MiB), its total, the database file's size, and the
     ingest process's resident memory."""
@@ -131,7 +149,7 @@ def _duckdb_memory(con) -> str:
     parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
     return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
             f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}; "
-            f"ingest process RSS {_own_mib():.0f} MiB; {_malloc_mib()}")
+            f"ingest process RSS {_own_mib():.0f} MiB ({_mappings_mib()}); {_malloc_mib()}")
 
 
 def _duckdb_total_mib(con) -> float:
@@ -163,7 +181,7 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
                   f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
-                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}", flush=True)
+                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}", flush=True)
             return result
 
         ingest_module.refresh_derived = watched
