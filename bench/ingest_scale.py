@@ -185,6 +185,16 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             return result
 
         ingest_module.refresh_derived = watched
+        release = getattr(ingest_module, "_release_block_cache", None)
+
+        def timed(con):
+            started = time.perf_counter()
+            release(con)
+            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s: "
+                  f"{_duckdb_memory(con)[7:]}", flush=True)
+
+        if release is not None:
+            ingest_module._release_block_cache = timed
 
     def progress(n_files: int) -> None:
         done[0] += n_files
