@@ -145,7 +145,8 @@ def _duckdb_memory(con) -> str:
     ingest process's resident memory."""
     tags = dict(con.execute("select tag, memory_usage_bytes from duckdb_memory()").fetchall())
     (size, used_blocks, block_size, wal), = con.execute(
-        "select database_size, used_blocks, block_size, wal_size from pragma_database_size()").fetchall()
+        "select database_size, used_blocks, block_size, wal_size from pragma_database_size()"
+    ).fetchall()
     parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
     return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
             f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}; "
@@ -153,7 +154,8 @@ def _duckdb_memory(con) -> str:
 
 
 def _duckdb_total_mib(con) -> float:
-    return con.execute("select sum(memory_usage_bytes) from duckdb_memory()").fetchall()[0][0] / 2**20
+    (total,), = con.execute("select sum(memory_usage_bytes) from duckdb_memory()").fetchall()
+    return total / 2**20
 
 
 def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
@@ -181,7 +183,8 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
                   f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
-                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}", flush=True)
+                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
+                  flush=True)
             return result
 
         ingest_module.refresh_derived = watched

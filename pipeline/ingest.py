@@ -356,8 +356,9 @@ def _release_block_cache(con) -> None:
     bench/ingest_scale.py --studies 40000 --duckdb-memory), though the ingest reads back only
     a few. A checkpoint writes what is held in memory (appended rows, the primary keys' index
     changes) to the file, so that all of it can be evicted; a tiny memory limit then evicts every
-    unpinned block, and the limit is put back. A block DuckDB cannot evict makes it refuse the
-    tiny limit after evicting what it can: that is fine here."""
+    unpinned block, and the limit is put back (0.02-0.04 s at 20k studies). A block DuckDB cannot
+    evict makes it refuse the tiny limit after evicting what it can: that is fine here. The
+    primary keys' indexes come back whole with the next batch's inserts (measured, same size)."""
     (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
     con.execute("checkpoint")
     try:

@@ -217,7 +217,8 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
             if rules_changed:
                 _refill_matches(con)
             else:   # the scope's exam texts only, through a scoped copy of derived_exam_text
-                con.execute(sql("refresh_shadow").format(table="derived_exam_text", catalog=catalog))
+                con.execute(sql("refresh_shadow").format(table="derived_exam_text",
+                                                         catalog=catalog))
                 try:
                     con.execute(sql("refresh_delete").format(table="derived_exam_match"))
                     con.execute(sql("refresh_insert").format(table="derived_exam_match",

@@ -32,8 +32,8 @@ def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) ->
 
     A crash mid-batch leaves nothing of the batch behind, so a rerun redoes it cleanly.
 
-    The total check reads the batch's rows only, not the raw tables whole (which grew the
-    ingest's memory with the warehouse): the batch's reports must be new to the warehouse, as
+    The total check reads the batch's rows only, not the raw tables whole (a scan per batch
+    that grew with the warehouse): the batch's reports must be new to the warehouse, as
     the ingest makes sure (a SOP Instance already loaded is a duplicate, not loaded again). The
     checked tables are first cut to one row per key of their raw table, the first in the
     batch, which is the row `insert or ignore` keeps: the check sees the rows inserted.
@@ -72,7 +72,8 @@ def _first_per_key(table: pa.Table, keys: list[str]) -> pa.Table:
     """`table` with only the first row of each value of `keys` (unchanged when they are unique)."""
     if not keys or table.num_rows < 2:
         return table
-    first = (table.select(keys).append_column("row_index", pa.array(range(table.num_rows), pa.int64()))
+    row_index = pa.array(range(table.num_rows), pa.int64())
+    first = (table.select(keys).append_column("row_index", row_index)
              .group_by(keys, use_threads=False).aggregate([("row_index", "min")]))
     if first.num_rows == table.num_rows:
         return table

@@ -98,7 +98,8 @@ def test_a_report_key_sent_twice_is_checked_as_it_is_kept(corpus, tmp_path):
     summary = ingest([first, second], db, KEY, parse=parse)
     assert summary.loaded == 2
     with duckdb.connect(str(db), read_only=True) as con:
-        kept = con.execute("select sop_instance_uid, count(*) from raw_accumulated group by 1").fetchall()
+        kept = con.execute("select sop_instance_uid, count(*) from raw_accumulated "
+                           "group by 1").fetchall()
         flagged = con.execute("select sop_instance_uid, concept_code from raw_value_issue "
                               "where kind = 'total_mismatch'").fetchall()
     assert sorted(n for _, n in kept) == [1, 1]
