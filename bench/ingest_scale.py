@@ -15,6 +15,11 @@ Ends with:
 
 (the peak over the first 10 % of the run's time, and over all of it: flat memory means R1 close
 to R2; issue 14's target is < 1 GiB at 100k studies)
+
+With --duckdb-memory, each progress line is followed by what DuckDB itself holds in the ingest
+process then (duckdb_memory() by tag, and pragma database_size) beside that process's own resident
+memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
+during (VmHWM, reset before it) and after it, to tell what grows.
 """
 
 from __future__ import annotations
@@ -85,10 +90,114 @@ def _rss_mib(pid: int) -> float:
     return total / 1024
 
 
-def child(corpus: Path, db: Path) -> None:
+_DUCKDB_TAGS = ("BASE_TABLE", "ART_INDEX", "METADATA", "OVERFLOW_STRINGS", "HASH_TABLE",
+                "COLUMN_DATA", "ORDER_BY", "IN_MEMORY_TABLE", "ALLOCATOR", "TRANSACTION")
+
+
+def _own_mib(field: str = "VmRSS") -> float:
+    """This process's resident memory (VmRSS) or its peak since the last reset (VmHWM), MiB."""
+    with open("/proc/self/status") as f:
+        return next(int(l.split()[1]) for l in f if l.startswith(field + ":")) / 1024
+
+
+def _malloc_mib() -> str:
+    """glibc malloc's bytes in use and free-but-kept (mallinfo2: DuckDB's own allocations outside
+    its buffer manager, and Python's larger objects, live here), and pyarrow's pool, in MiB."""
+    import ctypes
+
+    import pyarrow as pa
+
+    class MallInfo2(ctypes.Structure):
+        _fields_ = [(name, ctypes.c_size_t) for name in (
+            "arena", "ordblks", "smblks", "hblks", "hblkhd", "usmblks", "fsmblks", "uordblks",
+            "fordblks", "keepcost")]
+
+    try:
+        mallinfo2 = ctypes.CDLL("libc.so.6").mallinfo2
+    except (OSError, AttributeError):
+        return "malloc n/a"
+    mallinfo2.restype = MallInfo2
+    m = mallinfo2()
+    return (f"malloc in use {(m.uordblks + m.hblkhd) / 2**20:.0f} MiB, free kept "
+            f"{m.fordblks / 2**20:.0f} MiB; pyarrow {pa.total_allocated_bytes() / 2**20:.0f} MiB")
+
+
+def _mappings_mib() -> str:
+    """This process's resident memory by kind of mapping (/proc/self/smaps): the C heap (brk),
+    anonymous mappings (glibc's other arenas and large blocks, Python's object arenas, anything
+    mmap-ed), and files (shared libraries, the database file if mapped)."""
+    kinds = {"heap": 0, "anonymous": 0, "files": 0}
+    kind = "anonymous"
+    with open("/proc/self/smaps") as f:
+        for line in f:
+            first = line.split(maxsplit=6)
+            if len(first) >= 5 and "-" in first[0] and ":" not in first[0]:   # a mapping's header
+                name = first[5].strip() if len(first) > 5 else ""
+                kind = "heap" if name == "[heap]" else "files" if name.startswith("/") \
+                    else "anonymous"
+            elif line.startswith("Rss:"):
+                kinds[kind] += int(line.split()[1])
+    return ", ".join(f"{k} {v / 1024:.0f}" for k, v in kinds.items()) + " MiB resident"
+
+
+def _duckdb_memory(con) -> str:
+    """One line: DuckDB's own memory by tag (MiB), its total, the database file's size, and the
+    ingest process's resident memory."""
+    tags = dict(con.execute("select tag, memory_usage_bytes from duckdb_memory()").fetchall())
+    (size, used_blocks, block_size, wal), = con.execute(
+        "select database_size, used_blocks, block_size, wal_size from pragma_database_size()"
+    ).fetchall()
+    parts = " ".join(f"{t.lower()} {tags.get(t, 0) / 2**20:.0f}" for t in _DUCKDB_TAGS)
+    return (f"DUCKDB total {sum(tags.values()) / 2**20:.0f} MiB: {parts}; "
+            f"file {used_blocks * block_size / 2**20:.0f} MiB used ({size}), wal {wal}; "
+            f"ingest process RSS {_own_mib():.0f} MiB ({_mappings_mib()}); {_malloc_mib()}")
+
+
+def _duckdb_total_mib(con) -> float:
+    (total,), = con.execute("select sum(memory_usage_bytes) from duckdb_memory()").fetchall()
+    return total / 2**20
+
+
+def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
+    import pipeline.ingest as ingest_module
     from pipeline.ingest import ingest
 
     done = [0, 0]   # files so far, files at the last progress line
+    if duckdb_memory:   # sampled in the ingest's own connection, right after a progress line
+        load_chunk = ingest_module._load_chunk
+
+        def sampled(con, *args, **kwargs):
+            before = done[1]
+            load_chunk(con, *args, **kwargs)
+            if done[1] != before:
+                print(_duckdb_memory(con), flush=True)
+
+        ingest_module._load_chunk = sampled
+        refresh = ingest_module.refresh_derived
+
+        def watched(con, *args, **kwargs):
+            before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
+            with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                f.write("5")
+            result = refresh(con, *args, **kwargs)
+            print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
+                  f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
+                  f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
+                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
+                  flush=True)
+            return result
+
+        ingest_module.refresh_derived = watched
+        release = getattr(ingest_module, "_release_block_cache", None)
+
+        def timed(con):
+            started = time.perf_counter()
+            release(con)
+            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s: "
+                  f"{_duckdb_memory(con)[7:]}", flush=True)
+
+        if release is not None:
+            ingest_module._release_block_cache = timed
 
     def progress(n_files: int) -> None:
         done[0] += n_files
@@ -104,17 +213,20 @@ def child(corpus: Path, db: Path) -> None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--studies", type=int, default=100_000)
+    parser.add_argument("--duckdb-memory", action="store_true",
+                        help="print DuckDB's memory by tag and the file size at each progress line")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        child(Path(args.child[0]), Path(args.child[1]))
+        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory)
         return
     CACHE.mkdir(parents=True, exist_ok=True)
     corpus = replicated(args.studies)
     n_files = sum(1 for p in corpus.rglob("*.dcm"))
     db = CACHE / f"ingest-scale-{os.getpid()}.duckdb"
     started = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db)],
+    proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db),
+                             *(["--duckdb-memory"] if args.duckdb_memory else [])],
                             stdout=subprocess.PIPE, text=True, cwd=ROOT,
                             env={**os.environ, "PYTHONPATH": str(ROOT)})
     samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
@@ -134,6 +246,8 @@ def main() -> None:
             peak_so_far = max((s[1] for s in samples), default=float("nan"))
             print(f"   {int(line.split()[1]):7d} files in {time.perf_counter() - started:5.0f} s: "
                   f"RSS {now:5.0f} MiB, peak so far {peak_so_far:5.0f} MiB", flush=True)
+        elif line.startswith("DUCKDB "):
+            print(f"     {line[7:]}", end="", flush=True)
     proc.wait()
     out = "".join(lines)
     stop.set()

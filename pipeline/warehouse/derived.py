@@ -12,7 +12,8 @@ at read time, never kept here.
 
 * with the studies a run touched and the raw state the run started from: when the derived
   tables matched that state, only those studies are recomputed (the ``calc_*`` views see
-  only their rows, through temporary views that hide the raw tables: queries/refresh/);
+  only their rows, through temporary copies of them that hide the raw tables:
+  queries/refresh/);
 * otherwise (a warehouse of an earlier version, a changed definition, a writer that did not
   say what it touched): every derived table is rebuilt whole.
 
@@ -44,7 +45,7 @@ DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
                   ("derived_exam_text", "calc_exam_text"),
                   ("derived_study_total", "calc_study_total"))
 _SKIN_TABLES = ("derived_skin_dose", "derived_skin_dose_factor", "derived_skin_dose_map")
-# raw tables holding a study_key, hidden by a scoped view during an incremental refresh
+# raw tables holding a study_key, hidden by a scoped temporary copy during an incremental refresh
 _SCOPED_RAW = ("raw_dose_object", "raw_study", "raw_ct_event", "raw_projection_event",
                "raw_accumulated")
 # Skin-dose maps are kept for studies at or above the lowest default peak-skin-dose alert
@@ -69,10 +70,12 @@ _MAP_SCHEMA = pa.schema([("study_key", pa.string()), ("device_key", pa.string())
 
 
 class RefreshResult:
-    """What a refresh did: mode 'none', 'incremental' or 'full', and how many studies."""
+    """What a refresh did: mode 'none', 'incremental' or 'full', and how many studies; and
+    `raw_state`, the `raw_state` the derived tables now match (the raw tables' state after it)."""
 
-    def __init__(self, mode: str, n_studies: int, seconds: float):
+    def __init__(self, mode: str, n_studies: int, seconds: float, raw_state: str | None = None):
         self.mode, self.n_studies, self.seconds = mode, n_studies, seconds
+        self.raw_state = raw_state
 
     def __repr__(self) -> str:
         return f"RefreshResult({self.mode!r}, {self.n_studies}, {self.seconds:.2f} s)"
@@ -151,7 +154,7 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
     now = (raw_state(con), definitions_digest(), exam_rules_state(con))
     stored = _stored(con)
     if stored == now:
-        return RefreshResult("none", 0, time.perf_counter() - started)
+        return RefreshResult("none", 0, time.perf_counter() - started, now[0])
     keys = sorted({k for k in studies if k is not None}) if studies is not None else None
     if stored is not None and stored[:2] == now[:2]:
         n, mode = _matches_whole(con), "rules"
@@ -165,7 +168,7 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
         con.execute(sql("insert_derived_state"), {
             "raw_state": now[0], "definitions": now[1], "rules": now[2],
             "refreshed_at": dt.datetime.now(), "n_studies": n, "mode": mode})
-    return RefreshResult(mode, n, time.perf_counter() - started)
+    return RefreshResult(mode, n, time.perf_counter() - started, now[0])
 
 
 def _refill_matches(con) -> None:
@@ -210,17 +213,18 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
                     con.execute(sql("refresh_insert").format(table=table, calc=calc))
             finally:
                 for table in _SCOPED_RAW:
-                    con.execute(f"drop view if exists temp.main.{table}")
+                    con.execute(f"drop table if exists temp.main.{table}")
             if rules_changed:
                 _refill_matches(con)
-            else:   # the scope's exam texts only, through a scoped view of derived_exam_text
-                con.execute(sql("refresh_shadow").format(table="derived_exam_text", catalog=catalog))
+            else:   # the scope's exam texts only, through a scoped copy of derived_exam_text
+                con.execute(sql("refresh_shadow").format(table="derived_exam_text",
+                                                         catalog=catalog))
                 try:
                     con.execute(sql("refresh_delete").format(table="derived_exam_match"))
                     con.execute(sql("refresh_insert").format(table="derived_exam_match",
                                                              calc="calc_exam_match"))
                 finally:
-                    con.execute("drop view if exists temp.main.derived_exam_text")
+                    con.execute("drop table if exists temp.main.derived_exam_text")
             for table in _SKIN_TABLES:
                 con.execute(sql("refresh_delete").format(table=table))
             _skin(con, all_studies=False)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import duckdb
 import pyarrow as pa
+import pyarrow.compute as pc
 
 from queries import apply_all, sql
 
@@ -13,6 +14,8 @@ __all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", 
 
 LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
               "accumulated", "value_issue")
+# the batch's tables the total check reads (queries/load/insert_total_mismatch_issues.sql)
+_CHECKED = ("accumulated", "projection_event", "ct_event")
 
 
 def ensure_schema(con: duckdb.DuckDBPyConnection) -> list[str]:
@@ -28,8 +31,17 @@ def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) ->
     """Insert every table of one batch, then record total mismatches, in ONE transaction.
 
     A crash mid-batch leaves nothing of the batch behind, so a rerun redoes it cleanly.
+
+    The total check reads the batch's rows only, not the raw tables whole (a scan per batch
+    that grew with the warehouse): the batch's reports must be new to the warehouse, as
+    the ingest makes sure (a SOP Instance already loaded is a duplicate, not loaded again). The
+    checked tables are first cut to one row per key of their raw table, the first in the
+    batch, which is the row `insert or ignore` keeps: the check sees the rows inserted.
     """
     counts: dict[str, int] = {}
+    keys = _primary_keys(con, [f"raw_{name}" for name in _CHECKED])
+    tables = {name: _first_per_key(t, keys[f"raw_{name}"]) if name in _CHECKED else t
+              for name, t in tables.items()}
     con.execute("begin transaction")
     try:
         for name in LOAD_ORDER:
@@ -48,6 +60,25 @@ def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) ->
         con.execute("rollback")
         raise
     return counts
+
+
+def _primary_keys(con: duckdb.DuckDBPyConnection, names: list[str]) -> dict[str, list[str]]:
+    """The primary-key columns of each table of `names` (an empty list for a table without)."""
+    rows = con.execute(sql("select_primary_keys"), {"names": names}).fetchall()
+    return {name: next((list(cols) for t, cols in rows if t == name), []) for name in names}
+
+
+def _first_per_key(table: pa.Table, keys: list[str]) -> pa.Table:
+    """`table` with only the first row of each value of `keys` (unchanged when they are unique)."""
+    if not keys or table.num_rows < 2:
+        return table
+    row_index = pa.array(range(table.num_rows), pa.int64())
+    first = (table.select(keys).append_column("row_index", row_index)
+             .group_by(keys, use_threads=False).aggregate([("row_index", "min")]))
+    if first.num_rows == table.num_rows:
+        return table
+    rows = first["row_index_min"]
+    return table.take(pc.take(rows, pc.sort_indices(rows)))
 
 
 def replace_site_map(con: duckdb.DuckDBPyConnection, sites: dict[str, str]) -> None:

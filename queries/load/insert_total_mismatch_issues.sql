@@ -1,5 +1,7 @@
 -- load: record a total_mismatch issue for each report of the batch whose events do not add up to
--- its reported accumulated total (relative difference > 1 %)
+-- its reported accumulated total (relative difference > 1 %). The check reads the batch's own rows
+-- (incoming_*, as inserted: one row per key), never the raw tables whole: a report's events and
+-- totals come from its one file, so they arrive in the same batch (pipeline/ingest.py)
 insert or ignore into raw_value_issue by name
 select
     c.sop_instance_uid || ':total_mismatch:' || c.quantity as issue_id,
@@ -13,6 +15,7 @@ select
     cast(c.reported_total as varchar) as raw_value,
     c.unit as raw_unit,
     (select max(run_id) from incoming_dose_object) as run_id
-from report_total_check as c
+from report_total_check_of('incoming_accumulated', 'incoming_projection_event',
+                           'incoming_ct_event') as c
 where c.relative_difference > 0.01
   and c.sop_instance_uid in (select sop_instance_uid from incoming_dose_object)
