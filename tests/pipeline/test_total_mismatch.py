@@ -105,3 +105,47 @@ def test_a_report_key_sent_twice_is_checked_as_it_is_kept(corpus, tmp_path):
     assert sorted(n for _, n in kept) == [1, 1]
     assert flagged == [(second_sop, "DCM:113722")]
     assert [(row[0], row[-1]) for row in _issues(db)] == _expected(db)
+
+
+@pytest.mark.external
+def test_a_dose_rp_total_mismatch_in_a_dcmtk_written_report_is_recorded_once(tmp_path):
+    """Three single-plane projection reports encoded by DCMTK's dump2dcm (an independent writer),
+    ingested in two runs: the one whose stated Dose (RP) Total (DCM 113725, PS3.16 TID 10002)
+    is 4 Gy while its two events add up to 2 Gy is recorded as a total_mismatch of
+    dose_rp_total_mgy, in its own run; the two consistent reports are not, and the second run
+    leaves the first run's issue as it was. (The corpus has no Dose (RP) total mismatch.)"""
+    from tests.helpers import projection_report_dump, write_with_dump2dcm
+
+    event = dict(dose_rp_gy=1.0, kvp=80, primary=0, secondary=0, sod_mm=750, sid_mm=1000,
+                 area_m2=0.04, table_height_mm=-150)
+    first, second = tmp_path / "run1", tmp_path / "run2"
+    first.mkdir()
+    second.mkdir()
+
+    def report(folder, n: int, stated_gy: float | None = None):
+        text = projection_report_dump(sop=f"2.25.77100{n}", study=f"2.25.77200{n}", events=[
+            {**event, "uid": f"2.25.77300{n}1"}, {**event, "uid": f"2.25.77300{n}2"}])
+        if stated_gy is not None:   # the stated total: the NUM right after "Dose (RP) Total"
+            head, tail = text.split("Dose (RP) Total", 1)
+            assert "(0040,a30a) DS [2]" in tail
+            text = head + "Dose (RP) Total" + tail.replace("(0040,a30a) DS [2]",
+                                                           f"(0040,a30a) DS [{stated_gy:g}]", 1)
+        return write_with_dump2dcm(folder, f"report{n}", text)
+
+    report(first, 1)
+    wrong = report(first, 2, stated_gy=4.0)
+    report(second, 3)
+    db = tmp_path / "kerma.duckdb"
+    ingest([first], db, KEY, workers=1)
+    after_first = _issues(db)
+    ingest([second], db, KEY, workers=1)
+    issues = _issues(db)
+    assert issues == after_first
+    assert [(i[0].split(":total_mismatch:")[1], i[4]) for i in issues] == [
+        ("dose_rp_total_mgy", "DCM:113725")]
+    assert "events sum to 2000.0 mGy but the report states 4000.0 mGy" in issues[0][5]
+    with duckdb.connect(str(db), read_only=True) as con:
+        (sop,) = con.execute("select sop_instance_uid from raw_source_object where path = ?",
+                             [str(wrong)]).fetchone()
+    assert issues[0][1] == sop == "2.25.771002"
+    assert [(i[0], i[8]) for i in issues] == _expected(db)
