@@ -207,10 +207,23 @@ def _hline(value: float, text: str, cell: Mapping[str, str]) -> tuple[dict[str, 
     return shape, note
 
 
+_TITLE_SPACE = 60   # px above the plot for its title, added to each figure's height
+
+
 def _layout(fig: go.Figure, title: str, height: int) -> go.Figure:
     """Template, title and height (the legend sits right of the plot, see theme.TEMPLATE)."""
-    fig.update_layout(template=TEMPLATE, title={"text": title}, height=height + 60)
+    fig.update_layout(template=TEMPLATE, title={"text": title}, height=height + _TITLE_SPACE)
     return fig
+
+
+def _titled(layout: dict[str, Any], title: str, height: int) -> None:
+    """What `_layout` sets, on a plain layout dict of `_new_layout` (its template already set)."""
+    layout.update(title={"text": title}, height=height + _TITLE_SPACE)
+
+
+def _axis(layout: dict[str, Any], ref: str) -> dict[str, Any]:
+    """The layout's axis that a trace's axis reference names ('x' -> xaxis, 'y2' -> yaxis2)."""
+    return layout[ref[0] + "axis" + ref[1:]]
 
 
 def _site_colour(colours: Mapping[str, str], site: str) -> str:

@@ -14,6 +14,7 @@ from ..theme import (
 )
 from .common import (
     _as_figure,
+    _titled,
     _new_layout,
     _layout,
     _log_ticks,
@@ -111,8 +112,7 @@ def build_skin_dose_map(frame: pd.DataFrame, *, title: str) -> go.Figure:
     layout["yaxis"] = {"title": {"text": "Along the body, towards the head (cm)"}, "type": "linear",
                        "scaleanchor": "x", "scaleratio": 1.0}
     peak = float(frame["psd_gy"].iloc[0])
-    layout.update(title={"text": f"{title}: peak skin dose estimate {peak:.1f} Gy"},
-                  height=420 + 60)   # as _layout
+    _titled(layout, f"{title}: peak skin dose estimate {peak:.1f} Gy", height=420)
     return _as_figure([trace], layout)
 
 

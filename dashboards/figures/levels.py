@@ -16,6 +16,8 @@ from ..theme import (
 )
 from .common import (
     _as_figure,
+    _axis,
+    _titled,
     _hline,
     _new_layout,
     INSUFFICIENT_SYMBOL,
@@ -131,7 +133,7 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                        "type": "log" if log else "linear", **_value_ticks(values, unit, log)}
     layout["yaxis"] = {"title": {"text": "Exam type · room (n exams)"}, "tickfont": {"size": 11},
                        "type": "multicategory", "autorange": "reversed"}
-    layout.update(title={"text": title}, height=max(200, 90 + 24 * len(rows)) + 60)   # as _layout
+    _titled(layout, title, height=max(200, 90 + 24 * len(rows)))
     # the legend above the plot, not beside it: the data area keeps most of the width
     layout["legend"] = {"orientation": "h", "x": 0.0, "xanchor": "left", "y": 1.0, "yanchor": "bottom"}
     layout["margin"] = {"t": 96, "r": 16,
@@ -235,15 +237,15 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
             notes.append(note)
         values = [*part["p05"], *part["p95"], *refs["reference_value"]]
         log = _wants_log(values)
-        layout[cell["yaxis"].replace("y", "yaxis", 1)].update(
+        _axis(layout, cell["yaxis"]).update(
             title={"text": _panel_axis_title(quantity, unit, phantom, log)},
             type="log" if log else "linear", **_value_ticks(values, unit, log))
-        layout[cell["xaxis"].replace("x", "xaxis", 1)].update(
+        _axis(layout, cell["xaxis"]).update(
             title={"text": "Room · site (n adult / paediatric exams)"}, type="category")
     if shapes:
         layout["shapes"] = shapes
         layout["annotations"] = notes
     layout["boxmode"] = "group"
     width_rooms = max(len(set(zip(frame["site_label"], frame["room_label"], strict=True))), 2)
-    layout.update(title={"text": title}, height=380 + 12 * width_rooms + 60)   # as _layout
+    _titled(layout, title, height=380 + 12 * width_rooms)
     return _as_figure(traces, layout)

@@ -17,6 +17,8 @@ from ..theme import (
 )
 from .common import (
     _as_figure,
+    _axis,
+    _titled,
     _hline,
     _new_layout,
     _validated_order,
@@ -162,17 +164,17 @@ def build_trend(frame: pd.DataFrame, drift: pd.DataFrame, *, site_colours: Mappi
                 "yanchor": "top", "yref": f"{y_axis} domain"})
         values = [*part["p25"], *part["p75"], *refs["reference_value"]]
         log = _wants_log(values)
-        layout[y_axis.replace("y", "yaxis", 1)].update(
+        _axis(layout, y_axis).update(
             title={"text": _panel_axis_title(quantity, unit, None, log, "Median ")},
             type="log" if log else "linear", **_value_ticks(values, unit, log))
-        layout[x_axis.replace("x", "xaxis", 1)].update(
+        _axis(layout, x_axis).update(
             title={"text": "Month of study (calendar month)"}, type="date",
             tickvals=[_month_mid(m) for m in ticks], ticktext=[_month_text(m) for m in ticks],
             range=x_range)
     if shapes or flag_shapes:
         layout["shapes"] = [*shapes, *flag_shapes]
         layout["annotations"] = [*notes, *flag_notes]
-    layout.update(title={"text": title}, height=40 + 290 * len(panels) + 60)   # as _layout
+    _titled(layout, title, height=40 + 290 * len(panels))
     return _as_figure(traces, layout)
 
 
@@ -286,5 +288,5 @@ def build_funnel(points: pd.DataFrame, limits: pd.DataFrame, *, site_colours: Ma
                                          "(ratio, log scale)"},
                        "type": "log", "range": [math.log10(lo) - 0.05, math.log10(hi) + 0.05],
                        **_log_ticks([lo, hi], fine=True)}
-    layout.update(title={"text": title}, height=460 + 60)   # as _layout
+    _titled(layout, title, height=460)
     return _as_figure([_validated_order(t) for t in traces], layout)
