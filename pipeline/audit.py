@@ -285,12 +285,17 @@ _K_SCHEMA = pa.schema([("exam_type", pa.string()), ("patient_age_years", pa.floa
 _FIT_SCHEMA = pa.schema([("phantom", pa.string()), ("a", pa.float64()), ("b_per_cm", pa.float64()),
                          ("d_min_cm", pa.float64()), ("d_max_cm", pa.float64()),
                          ("usable", pa.bool_())])
-# Relations the audit reads many times and that depend on the configuration (exam rules, site
-# map), computed once per run into temporary tables that hide the views of the same name for
-# the run's connection (queries/audit/materialise_*.sql), in dependency order. What depends on
-# the data only (deduplicated events, exam texts, study totals, skin dose) is kept as derived_*
-# tables, refreshed per ingest run (pipeline/warehouse/derived.py).
-_MATERIALISED = ("study_dose", "audit_observation")
+# Relations the audit reads many times and that join the configuration (site map, exam
+# matches) to many columns, computed once per run into temporary tables that hide the views of
+# the same name for the run's connection (queries/audit/materialise_*.sql). What depends on the
+# data and the exam rules only (deduplicated events, exam texts, study totals, exam matches,
+# audited values, skin dose) is kept as derived_* tables, refreshed per ingest run
+# (pipeline/warehouse/derived.py); audit_observation is such a table with the site joined, read
+# through its view: copying it with its site into a temporary table took 0.5 CPU seconds at 1M
+# events, the join to the few hundred devices in each statement much less (measured, no other
+# source). Kept instead of computed per audit: the audit at 1M events took 4.6 CPU seconds
+# against 6.1 (bench/audit.py's warehouse, issue 14).
+_MATERIALISED = ("study_dose",)
 # DuckDB working memory of an audit run: beyond it, sorts, joins and the temporary tables above
 # spill to the temp directory beside the warehouse, so memory stays flat however much history
 # the warehouse holds (common practice, no source: half of a small 2-core, 4 GiB machine's RAM

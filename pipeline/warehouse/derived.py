@@ -4,9 +4,12 @@ The deduplicated events (``derived_irradiation_event``), the exam texts (``deriv
 the study totals (``derived_study_total``) and each RF/XA study's peak skin dose
 (``derived_skin_dose``, ``_factor``, ``_map``) depend only on a study's own raw rows, so they
 are computed once, when a load adds rows to the study, and kept; the public views
-(irradiation_event, stg_exam_text, study_dose) read them, and an audit only groups them. What
-depends on the configuration (site map, exam rules, reference levels, alert rules) is joined
-at read time, never kept here.
+(irradiation_event, stg_exam_text, study_dose) read them, and an audit only groups them. Two
+tables depend on the exam rules as well: the exam matches (``derived_exam_match``) and the
+audited values with their exam types (``derived_audit_observation``, read through the view
+audit_observation); they are kept for the rules in force and recomputed whole when the rules
+change. The rest of the configuration (site map, reference levels, alert rules) is joined at
+read time, never kept here.
 
 `refresh_derived` keeps them true to the raw tables:
 
@@ -37,13 +40,20 @@ import pyarrow as pa
 from queries import ROOT as QUERIES
 from queries import apply_all, sql
 
-__all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "RefreshResult", "definitions_digest",
+__all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "MATCH_TABLES", "RefreshResult", "definitions_digest",
            "exam_rules_state", "raw_state", "refresh_derived", "skin_rows_for"]
 
 # (derived table, the staging view computing it), in dependency order
 DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
                   ("derived_exam_text", "calc_exam_text"),
                   ("derived_study_total", "calc_study_total"))
+# the exam matches (kept for the exam rules in force), then the audited values, which read the
+# totals, the events and the matches: refreshed after them, in this order
+MATCH_TABLES = (("derived_exam_match", "calc_exam_match"),
+                ("derived_audit_observation", "calc_audit_observation"))
+# the derived tables the observations are computed from, hidden by scoped temporary copies while
+# the scope's observations are recomputed
+_OBSERVATION_INPUTS = ("derived_study_total", "derived_irradiation_event", "derived_exam_match")
 _SKIN_TABLES = ("derived_skin_dose", "derived_skin_dose_factor", "derived_skin_dose_map")
 # raw tables holding a study_key, hidden by a scoped temporary copy during an incremental refresh
 _SCOPED_RAW = ("raw_dose_object", "raw_study", "raw_ct_event", "raw_projection_event",
@@ -172,13 +182,30 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
 
 
 def _refill_matches(con) -> None:
-    """Every exam match recomputed from the kept exam texts and the rules in force."""
-    con.execute("delete from derived_exam_match")
-    con.execute(sql("refresh_insert").format(table="derived_exam_match", calc="calc_exam_match"))
+    """Every exam match recomputed from the kept exam texts and the rules in force, then every
+    audited value (its exam type follows the matches)."""
+    for table, calc in MATCH_TABLES:
+        con.execute(f"delete from {table}")
+        con.execute(sql("refresh_insert").format(table=table, calc=calc))
+
+
+def _scoped_observations(con, catalog: str) -> None:
+    """The scope's audited values recomputed from its (already refreshed) totals, events and
+    matches, through scoped copies of those tables."""
+    for table in _OBSERVATION_INPUTS:
+        con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
+    try:
+        con.execute(sql("refresh_delete").format(table="derived_audit_observation"))
+        con.execute(sql("refresh_insert").format(table="derived_audit_observation",
+                                                 calc="calc_audit_observation"))
+    finally:
+        for table in _OBSERVATION_INPUTS:
+            con.execute(f"drop table if exists temp.main.{table}")
 
 
 def _matches_whole(con) -> int:
-    """Recompute derived_exam_match whole (the exam rules changed)."""
+    """Recompute derived_exam_match and derived_audit_observation whole (the exam rules
+    changed)."""
     with _transaction(con):
         _refill_matches(con)
     return con.execute("select count(distinct study_key) from derived_exam_match").fetchall()[0][0]
@@ -225,6 +252,7 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
                                                              calc="calc_exam_match"))
                 finally:
                     con.execute("drop table if exists temp.main.derived_exam_text")
+                _scoped_observations(con, catalog)
             for table in _SKIN_TABLES:
                 con.execute(sql("refresh_delete").format(table=table))
             _skin(con, all_studies=False)
@@ -244,7 +272,7 @@ def _full(con) -> int:
     replaced = False
     try:
         with _transaction(con):
-            for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
+            for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
                 if _columns(con, table) == _columns(con, calc):
                     con.execute(f"delete from {table}")
                     con.execute(sql("refresh_insert").format(table=table, calc=calc))

@@ -1,63 +1,14 @@
 -- grain: one row per audited value: a study's total (CT, fluoroscopy, interventional) or one
 -- radiograph / mammographic view (radiography, mammography), with its standard exam type
+-- Kept as the table derived_audit_observation (queries/derived/calc_audit_observation.sql
+-- computes it), refreshed for the studies each ingest run or network merge touched and whole
+-- when the exam rules change; the site is joined here, so a changed site map applies at once.
 create or replace view audit_observation as
-with
-studies as (
-    select * from study_dose where exam_type is not null
-),
-study_values as (
-    -- one row per audited quantity of the modality: an unnest of a list of structs (a lateral
-    -- VALUES join was decorrelated into a grouping and a join on every value column)
-    select s.*, q.quantity, q.unit, q.value, null::varchar as event_uid
-    from (
-        select s.*,
-               unnest(case when s.modality = 'CT' then
-                          [{'quantity': 'dlp', 'unit': 'mGy.cm', 'value': s.dlp_total_mgy_cm},
-                           {'quantity': 'ctdivol', 'unit': 'mGy', 'value': s.ctdivol_mgy}]
-                      when s.modality in ('RF', 'XA') then
-                          [{'quantity': 'dap', 'unit': 'Gy.cm2', 'value': s.dap_total_gy_cm2},
-                           {'quantity': 'dose_rp', 'unit': 'mGy', 'value': s.dose_rp_total_mgy},
-                           {'quantity': 'fluoro_time', 'unit': 's', 'value': s.fluoro_time_total_s}]
-                      end) as q
-        from studies as s
-    ) as s
-),
-event_exam as (
-    select e.*, coalesce(m.exam_type, case when s.event_count = 1 or s.modality = 'MG'
-                                           then s.exam_type end) as event_exam_type,
-           s.patient_key, s.site, s.study_date, s.patient_age_years, s.patient_weight_kg
-    from irradiation_event as e
-    join study_dose as s using (study_key, device_key)
-    left join stg_exam_match as m
-      on m.unit_kind = 'event' and m.event_uid = e.event_uid and m.study_key = e.study_key
-    where s.modality in ('DX', 'CR', 'MG')
-),
-event_values as (
-    select e.*, q.quantity, q.unit, q.value
-    from (
-        select e.*,
-               unnest(case when e.modality in ('DX', 'CR') then
-                          [{'quantity': 'dap', 'unit': 'Gy.cm2', 'value': e.dap_gy_cm2},
-                           {'quantity': 'dose_rp', 'unit': 'mGy', 'value': e.dose_rp_mgy},
-                           {'quantity': case when e.entrance_dose_derivation = 'ESAK'
-                                             then 'ka_e' else 'entrance_dose' end,
-                            'unit': 'mGy', 'value': e.entrance_dose_mgy}]
-                      when e.modality = 'MG' then
-                          [{'quantity': 'agd', 'unit': 'mGy', 'value': e.agd_mgy}]
-                      end) as q
-        from event_exam as e
-    ) as e
-)
-select study_key, patient_key, device_key, site, modality, exam_type, quantity, unit, value,
-       study_date, strftime(study_date, '%Y-%m') as period, patient_age_years, patient_weight_kg,
-       case when quantity = 'ctdivol' then ctdi_phantom end as phantom, event_uid,
-       null::double as compressed_breast_thickness_mm
-from study_values where value is not null
-union all
-select study_key, patient_key, device_key, site, modality, event_exam_type, quantity, unit, value,
-       study_date, strftime(study_date, '%Y-%m'), patient_age_years, patient_weight_kg,
-       null, event_uid, compressed_breast_thickness_mm
-from event_values where value is not null and event_exam_type is not null
+select o.study_key, o.patient_key, o.device_key, d.site, o.modality, o.exam_type, o.quantity,
+       o.unit, o.value, o.study_date, o.period, o.patient_age_years, o.patient_weight_kg,
+       o.phantom, o.event_uid, o.compressed_breast_thickness_mm
+from derived_audit_observation as o
+left join device as d using (device_key)
 
 -- columns:
 --   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)

@@ -19,12 +19,13 @@ import pytest
 
 from pipeline.ingest import ingest
 from pipeline.warehouse.connection import connection
-from pipeline.warehouse.derived import DERIVED_TABLES, MAP_FLOOR_MGY, refresh_derived
+from pipeline.warehouse.derived import DERIVED_TABLES, MAP_FLOOR_MGY, MATCH_TABLES, refresh_derived
 from tests.helpers import KEY
 
 _ORDER = {"derived_irradiation_event": ["event_uid", "study_key", "device_key"],
           "derived_study_total": ["study_key", "device_key"],
-          "derived_skin_dose": ["study_key", "device_key"]}
+          "derived_skin_dose": ["study_key", "device_key"],
+          "derived_audit_observation": ["study_key", "device_key", "quantity", "event_uid"]}
 
 
 def _frame(con, relation: str, order: list[str] | None) -> pd.DataFrame:
@@ -71,7 +72,7 @@ def test_each_run_refreshes_only_the_studies_it_touched(three_runs):
 def test_tables_kept_run_by_run_equal_the_whole_computation(three_runs):
     db, _ = three_runs
     with duckdb.connect(str(db), read_only=True) as con:
-        for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
+        for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
             _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
                          table)
 
@@ -84,6 +85,7 @@ def test_three_runs_give_the_warehouse_of_one_run(three_runs, warehouse):
     with duckdb.connect(str(db), read_only=True) as a, duckdb.connect(str(one), read_only=True) as b:
         for relation, order in (("study_dose", ["study_key", "device_key"]),
                                 ("irradiation_event", _ORDER["derived_irradiation_event"]),
+                                ("audit_observation", _ORDER["derived_audit_observation"]),
                                 ("derived_skin_dose", _ORDER["derived_skin_dose"]),
                                 ("derived_skin_dose_map", None)):
             _assert_same(_frame(a, relation, order), _frame(b, relation, order), relation)
@@ -113,7 +115,7 @@ def test_a_long_run_refreshes_as_it_goes_and_equals_the_whole_computation(corpus
             duckdb.connect(str(one), read_only=True) as b:
         (n_studies,) = con.execute("select count(distinct study_key) from raw_dose_object").fetchone()
         (n_refreshes,) = con.execute("select count(*) from derived_state").fetchone()
-        for table, calc in (*DERIVED_TABLES, ("derived_exam_match", "calc_exam_match")):
+        for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
             _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
                          table)
         for relation, order in (("study_dose", ["study_key", "device_key"]),
@@ -180,8 +182,9 @@ def test_an_audit_below_the_kept_maps_floor_computes_the_missing_maps(warehouse,
 
 
 def test_changed_exam_rules_recompute_the_matches_whole(warehouse, tmp_path):
-    """Replacing the exam rules recomputes derived_exam_match (mode 'rules'); study_dose then
-    shows the new rules' exam types, as the whole computation does."""
+    """Replacing the exam rules recomputes derived_exam_match and derived_audit_observation
+    (mode 'rules'); study_dose and audit_observation then show the new rules' exam types, as the
+    whole computation does."""
     from pipeline.exams import load_exam_rules, rule_rows
     from pipeline.warehouse.derived import exam_rules_state
     from pipeline.warehouse.load import replace_exam_rules
@@ -194,6 +197,9 @@ def test_changed_exam_rules_recompute_the_matches_whole(warehouse, tmp_path):
         # drop every rule of one exam type: its studies become unmapped
         exam = con.execute("select exam_type from study_dose where exam_type is not null "
                            "group by 1 order by count(*) desc limit 1").fetchall()[0][0]
+        ((had,),) = con.execute("select count(*) from audit_observation where exam_type = ?",
+                                [exam]).fetchall()
+        assert had > 0
         replace_exam_rules(con, [r for r in rules if r["exam_type"] != exam])
         assert exam_rules_state(con) != before
         state = con.execute("select mode from derived_state").fetchall()
@@ -202,6 +208,13 @@ def test_changed_exam_rules_recompute_the_matches_whole(warehouse, tmp_path):
         assert left == 0
         _assert_same(_frame(con, "derived_exam_match", None), _frame(con, "calc_exam_match", None),
                      "derived_exam_match")
+        # the kept audited values follow the new rules too: none of that exam type is left
+        ((kept,),) = con.execute("select count(*) from audit_observation where exam_type = ?",
+                                 [exam]).fetchall()
+        assert kept == 0
+        order = _ORDER["derived_audit_observation"]
+        _assert_same(_frame(con, "derived_audit_observation", order),
+                     _frame(con, "calc_audit_observation", order), "derived_audit_observation")
 
 
 def test_a_warehouse_of_an_earlier_version_is_filled_when_its_schema_is_brought_up(warehouse, tmp_path):
@@ -214,7 +227,8 @@ def test_a_warehouse_of_an_earlier_version_is_filled_when_its_schema_is_brought_
     with connection(db) as con:
         (n,) = con.execute("select count(*) from study_dose").fetchone()
         for table in ("derived_state", "derived_study_total", "derived_irradiation_event",
-                      "derived_exam_text", "derived_exam_match", "derived_skin_dose"):
+                      "derived_exam_text", "derived_exam_match", "derived_skin_dose",
+                      "derived_audit_observation"):
             con.execute(f"drop table {table}")
     with connection(db) as con:
         ensure_schema(con)
