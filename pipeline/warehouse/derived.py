@@ -51,8 +51,8 @@ DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
 # totals, the events and the matches: refreshed after them, in this order
 MATCH_TABLES = (("derived_exam_match", "calc_exam_match"),
                 ("derived_audit_observation", "calc_audit_observation"))
-# the derived tables the observations are computed from, hidden by scoped temporary copies while
-# the scope's observations are recomputed
+# the derived tables the audited values are computed from, hidden by temporary copies of the
+# scope's rows while the scope's audited values are recomputed
 _OBSERVATION_INPUTS = ("derived_study_total", "derived_irradiation_event", "derived_exam_match")
 _SKIN_TABLES = ("derived_skin_dose", "derived_skin_dose_factor", "derived_skin_dose_map")
 # raw tables holding a study_key, hidden by a scoped temporary copy during an incremental refresh
@@ -189,17 +189,24 @@ def _refill_matches(con) -> None:
         con.execute(sql("refresh_insert").format(table=table, calc=calc))
 
 
-def _scoped_observations(con, catalog: str) -> None:
-    """The scope's audited values recomputed from its (already refreshed) totals, events and
-    matches, through scoped copies of those tables."""
-    for table in _OBSERVATION_INPUTS:
-        con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
+def _captured(con, table: str, calc: str) -> None:
+    """Replace the scope's rows of `table` by those `calc` computes now, keeping them in a
+    temporary table (refresh_new_<table>) for the steps after it."""
+    con.execute(sql("refresh_delete").format(table=table))
+    con.execute(sql("refresh_capture").format(table=table, calc=calc))
+    con.execute(sql("refresh_insert_captured").format(table=table))
+
+
+@contextlib.contextmanager
+def _shadowed_by_captured(con, tables: Iterable[str]) -> Iterator[None]:
+    """Hide `tables` behind temporary copies of the scope's rows just recomputed."""
+    tables = list(tables)
     try:
-        con.execute(sql("refresh_delete").format(table="derived_audit_observation"))
-        con.execute(sql("refresh_insert").format(table="derived_audit_observation",
-                                                 calc="calc_audit_observation"))
+        for table in tables:
+            con.execute(sql("refresh_shadow_captured").format(table=table))
+        yield
     finally:
-        for table in _OBSERVATION_INPUTS:
+        for table in tables:
             con.execute(f"drop table if exists temp.main.{table}")
 
 
@@ -236,28 +243,24 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
                 con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
             try:
                 for table, calc in DERIVED_TABLES:
-                    con.execute(sql("refresh_delete").format(table=table))
-                    con.execute(sql("refresh_insert").format(table=table, calc=calc))
+                    _captured(con, table, calc)
             finally:
                 for table in _SCOPED_RAW:
                     con.execute(f"drop table if exists temp.main.{table}")
             if rules_changed:
                 _refill_matches(con)
-            else:   # the scope's exam texts only, through a scoped copy of derived_exam_text
-                con.execute(sql("refresh_shadow").format(table="derived_exam_text",
-                                                         catalog=catalog))
-                try:
-                    con.execute(sql("refresh_delete").format(table="derived_exam_match"))
-                    con.execute(sql("refresh_insert").format(table="derived_exam_match",
-                                                             calc="calc_exam_match"))
-                finally:
-                    con.execute("drop table if exists temp.main.derived_exam_text")
-                _scoped_observations(con, catalog)
+            else:   # the scope's exam matches from its exam texts, then its audited values
+                with _shadowed_by_captured(con, ["derived_exam_text"]):
+                    _captured(con, "derived_exam_match", "calc_exam_match")
+                with _shadowed_by_captured(con, _OBSERVATION_INPUTS):
+                    _captured(con, "derived_audit_observation", "calc_audit_observation")
             for table in _SKIN_TABLES:
                 con.execute(sql("refresh_delete").format(table=table))
             _skin(con, all_studies=False)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
+        for table, _ in (*DERIVED_TABLES, *MATCH_TABLES):
+            con.execute(f"drop table if exists temp.main.refresh_new_{table}")
     return n
 
 
