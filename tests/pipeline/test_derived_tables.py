@@ -234,3 +234,49 @@ def test_a_warehouse_of_an_earlier_version_is_filled_when_its_schema_is_brought_
         ensure_schema(con)
         assert con.execute("select count(*) from study_dose").fetchone() == (n,)
         assert con.execute("select mode from derived_state").fetchall() == [("full",)]
+
+
+def test_audited_values_follow_a_later_report_of_the_study_in_dcmtk_written_objects(tmp_path):
+    """Projection dose reports encoded by DCMTK's dump2dcm (an independent writer), in two runs:
+    run 1 brings study A (events e1, e2 of Dose (RP) 1 Gy each) and study B (one event, 0.5 Gy);
+    run 2 brings a later report of study A repeating e1, e2 and adding e3 (1 Gy). The kept
+    audited values (derived_audit_observation, refreshed per run for the studies it touched)
+    give study A's Dose (RP) as the sum of its deduplicated events, 2000 then 3000 mGy (Gy to mGy:
+    x 1000, UCUM), leave study B at 500 mGy, and equal the whole computation after each run."""
+    from tests.helpers import projection_report_dump, write_with_dump2dcm
+
+    event = dict(kvp=80, primary=0, secondary=0, sod_mm=750, sid_mm=1000, area_m2=0.04,
+                 table_height_mm=-150)
+
+    def report(folder, name: str, sop: str, study: str, doses: dict[str, float]):
+        text = projection_report_dump(sop=sop, study=study, events=[
+            {**event, "uid": uid, "dose_rp_gy": gy} for uid, gy in doses.items()])
+        # a description the default exam rules map (an interventional coronary procedure)
+        text = text.replace("(0008,1030) LO [INTERVENTION]", "(0008,1030) LO [Coronary angioplasty]")
+        return write_with_dump2dcm(folder, name, text)
+
+    first, second = tmp_path / "run1", tmp_path / "run2"
+    first.mkdir()
+    second.mkdir()
+    report(first, "a1", "2.25.881001", "2.25.882001", {"2.25.883001": 1.0, "2.25.883002": 1.0})
+    report(first, "b1", "2.25.881002", "2.25.882002", {"2.25.883003": 0.5})
+    report(second, "a2", "2.25.881003", "2.25.882001",
+           {"2.25.883001": 1.0, "2.25.883002": 1.0, "2.25.883004": 1.0})
+    db = tmp_path / "kerma.duckdb"
+    order = _ORDER["derived_audit_observation"]
+
+    def dose_rp(con) -> list[tuple]:
+        return con.execute("select s.event_count, o.value from audit_observation as o "
+                           "join study_dose as s using (study_key, device_key) "
+                           "where o.quantity = 'dose_rp' order by o.value").fetchall()
+
+    results = []
+    for folder in (first, second):
+        results.append(ingest([folder], db, KEY, workers=1).derived)
+        with duckdb.connect(str(db), read_only=True) as con:
+            _assert_same(_frame(con, "derived_audit_observation", order),
+                         _frame(con, "calc_audit_observation", order), f"after {folder.name}")
+            results.append(dose_rp(con))
+    assert [r.mode for r in results[::2]] == ["incremental", "incremental"]
+    assert results[1] == [(1, pytest.approx(500.0)), (2, pytest.approx(2000.0))]
+    assert results[3] == [(1, pytest.approx(500.0)), (3, pytest.approx(3000.0))]
