@@ -8,12 +8,14 @@ Output is deterministic: plot div ids are fixed, and the only clock value is
 
 from __future__ import annotations
 
+import json
 import math
 from functools import cache
 from typing import Any, NamedTuple
 
 import jinja2
-import plotly.io as pio
+from plotly.io._utils import validate_coerce_fig_to_dict
+from plotly.io.json import to_json_plotly
 from markupsafe import Markup
 
 from .model import CAUTIONS, PAGES, PLOTLY_JS, Context, DataLink, Note, Page, Plot, Table, \
@@ -24,6 +26,7 @@ __all__ = ["NUMERIC_KINDS", "PLOT_CONFIG", "cell_text", "render_page", "render_t
 
 PLOT_CONFIG = {"displaylogo": False, "responsive": True,
                "modeBarButtonsToRemove": ["lasso2d", "select2d", "autoScale2d"]}
+_CONFIG_JSON = json.dumps(PLOT_CONFIG)
 NUMERIC_KINDS = frozenset({"int", "num", "ratio", "pct", "p", "text_num", "value", "range"})
 _KEY_CHARS = 12
 
@@ -101,9 +104,20 @@ def _cell_class(kind: str) -> str:
 
 
 def _plot_div(plot: Plot) -> Markup:
-    """plotly's own markup of a figure (a div and its Plotly.newPlot script)."""
-    return Markup(pio.to_html(plot.figure, full_html=False, include_plotlyjs=False,  # noqa: S704
-                              div_id=plot.div_id, config=PLOT_CONFIG, validate=True))
+    """A figure's div and the script that hands its ``Plotly.newPlot`` call to ``kermaPlot``
+    (``templates/plots.html``), which draws it when it nears the viewport, or after the page has
+    loaded: drawn inline while the page was parsed, the figures of the long pages held the
+    load event back past 2 s at 10M events. The div and the JSON are plotly's own (the figure
+    validated, ``</`` escaped), as ``plotly.io.to_html`` writes them."""
+    fig = validate_coerce_fig_to_dict(plot.figure, True)
+    height = fig.get("layout", {}).get("height")
+    height = f"{height}px" if isinstance(height, int | float) else "100%"
+    div_id = plot.div_id
+    data, layout = to_json_plotly(fig.get("data", [])), to_json_plotly(fig.get("layout", {}))
+    return Markup(  # noqa: S704 - ids are fixed slugs, the JSON is plotly's (escaped)
+        f'<div style="height:{height}; width:100%;"><div id="{div_id}" class="plotly-graph-div" '
+        f'style="height:100%; width:100%;"></div><script>kermaPlot("{div_id}", function () {{ '
+        f'return Plotly.newPlot("{div_id}", {data}, {layout}, {_CONFIG_JSON}); }});</script></div>')
 
 
 def _kind(block: Any) -> str:

@@ -7,6 +7,7 @@ browser FAILS the test with instructions (never a skip).
 from __future__ import annotations
 
 import io
+import time
 
 import pytest
 from PIL import Image
@@ -201,3 +202,28 @@ def test_print_media_keeps_study_details_and_reference_table_whole(browser, site
             browser.call("Emulation.setEmulatedMedia", media="")
         assert overflow and set(overflow) == {"visible"}, page
         assert set(dates) <= {"nowrap"}, page
+
+
+def test_a_figure_out_of_view_waits_until_it_is_scrolled_to_or_printed(browser, site):
+    """The drawing script of the pages (templates/plots.html, as a page carries it): a figure
+    registered after the load event, far below the window, is not drawn until it is scrolled
+    near or the page is about to print; each is drawn once. Recorders stand in for plotly."""
+    browser.open(site / "sites.html")
+    register = ("(() => {{ window.drawnIds = window.drawnIds || [];"
+                " const d = document.createElement('div'); d.id = '{0}';"
+                " d.style.cssText = 'position:absolute;left:0;top:{1}px;width:400px;height:300px';"
+                " document.body.appendChild(d);"
+                " kermaPlot('{0}', () => window.drawnIds.push('{0}')); }})()")
+    browser.evaluate(register.format("far-scroll", 60000))
+    browser.evaluate(register.format("far-print", 120000))
+    time.sleep(0.5)
+    assert browser.evaluate("window.drawnIds") == []
+    browser.evaluate("window.scrollTo(0, 59800)")
+    deadline = time.monotonic() + 10
+    while not browser.evaluate("window.drawnIds.length") and time.monotonic() < deadline:
+        time.sleep(0.05)
+    time.sleep(0.3)
+    assert browser.evaluate("window.drawnIds") == ["far-scroll"]
+    browser.evaluate("window.scrollTo(0, 0); window.dispatchEvent(new Event('beforeprint'))")
+    browser.evaluate("window.dispatchEvent(new Event('beforeprint'))")
+    assert browser.evaluate("window.drawnIds") == ["far-scroll", "far-print"]

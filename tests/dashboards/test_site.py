@@ -565,3 +565,19 @@ def test_alert_counts_give_a_rule_a_quantity_only_when_it_checks_one(site):
         else:
             assert {row.quantity} == named["quantity"] and {row.unit} == named["unit"], row
     assert several > 0
+
+
+def test_every_figure_is_handed_to_the_drawing_script_once(site):
+    """A figure's newPlot call is wrapped in kermaPlot with the figure's own div id (never run
+    while the page is parsed), and a page with figures carries templates/plots.html once, after
+    plotly.min.js; a page without figures carries neither."""
+    for name in PAGE_FILES:
+        html = _html(site, name)
+        divs = re.findall(r'<div id="([^"]+)" class="plotly-graph-div"', html)
+        handed = re.findall(r'kermaPlot\("([^"]+)", function \(\) \{ return Plotly\.newPlot\("([^"]+)",', html)
+        assert [a for a, _ in handed] == divs and all(a == b for a, b in handed), name
+        assert html.count("Plotly.newPlot(") == len(divs), name
+        assert html.count("window.kermaPlot = function") == (1 if divs else 0), name
+        if divs:
+            assert html.index('src="plotly.min.js"') < html.index("window.kermaPlot") < html.index(divs[0])
+            assert "The figures are drawn after the page opens" in html, name
