@@ -19,7 +19,9 @@ to R2; issue 14's target is < 1 GiB at 100k studies)
 With --duckdb-memory, each progress line is followed by what DuckDB itself holds in the ingest
 process then (duckdb_memory() by tag, and pragma database_size) beside that process's own resident
 memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
-during (VmHWM, reset before it) and after it, to tell what grows.
+during (VmHWM, reset before it) and after it, to tell what grows; with --statements too, each
+statement the refresh runs by its CPU time and the process's resident memory at its peak during it
+and after it (VmHWM reset before each).
 """
 
 from __future__ import annotations
@@ -158,7 +160,30 @@ def _duckdb_total_mib(con) -> float:
     return total / 2**20
 
 
-def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
+class _Watched:
+    """A connection whose `execute` prints each statement's CPU time and the process's resident
+    memory at its peak during it and after it (the refresh's statements, one line each)."""
+
+    def __init__(self, con, tag: str):
+        self._con, self._tag = con, tag
+
+    def __getattr__(self, name):
+        return getattr(self._con, name)
+
+    def execute(self, query, *args, **kwargs):
+        with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+            f.write("5")
+        before, cpu = _own_mib(), time.process_time()
+        result = self._con.execute(query, *args, **kwargs)
+        first = next((l.strip() for l in str(query).splitlines()
+                      if l.strip() and not l.lstrip().startswith("--")), "")
+        print(f"DUCKDB   stmt {self._tag}: {time.process_time() - cpu:6.2f} s CPU, RSS "
+              f"{before:.0f} -> peak {_own_mib('VmHWM'):.0f} -> {_own_mib():.0f} MiB: "
+              f"{first[:90]}", flush=True)
+        return result
+
+
+def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool = False) -> None:
     import pipeline.ingest as ingest_module
     from pipeline.ingest import ingest
 
@@ -179,8 +204,9 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
             with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
                 f.write("5")
-            result = refresh(con, *args, **kwargs)
-            print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
+            cpu = time.process_time()
+            result = refresh(_Watched(con, str(done[0])) if statements else con, *args, **kwargs)
+            print(f"DUCKDB refresh (CPU {time.process_time() - cpu:.1f} s) at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
                   f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
                   f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
@@ -206,8 +232,12 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             print(f"FILES {done[0]}", flush=True)
 
     summary = ingest([corpus], db, KEY, workers=2, progress=progress)
+    t = os.times()   # the workers have ended (the pool is shut down): their CPU is in children_*
     print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
-                                  "derived": repr(summary.derived)}), flush=True)
+                                  "derived": repr(summary.derived),
+                                  "cpu_s": {"ingest": round(t.user + t.system, 1),
+                                            "workers": round(t.children_user + t.children_system,
+                                                             1)}}), flush=True)
 
 
 def main() -> None:
@@ -215,10 +245,13 @@ def main() -> None:
     parser.add_argument("--studies", type=int, default=100_000)
     parser.add_argument("--duckdb-memory", action="store_true",
                         help="print DuckDB's memory by tag and the file size at each progress line")
+    parser.add_argument("--statements", action="store_true",
+                        help="with --duckdb-memory: each statement of a refresh, its CPU time and "
+                             "the process's memory during it")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory)
+        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory, args.statements)
         return
     CACHE.mkdir(parents=True, exist_ok=True)
     corpus = replicated(args.studies)
@@ -226,7 +259,8 @@ def main() -> None:
     db = CACHE / f"ingest-scale-{os.getpid()}.duckdb"
     started = time.perf_counter()
     proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db),
-                             *(["--duckdb-memory"] if args.duckdb_memory else [])],
+                             *(["--duckdb-memory"] if args.duckdb_memory else []),
+                             *(["--statements"] if args.statements else [])],
                             stdout=subprocess.PIPE, text=True, cwd=ROOT,
                             env={**os.environ, "PYTHONPATH": str(ROOT)})
     samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
@@ -265,8 +299,10 @@ def main() -> None:
     for f in (0.1, 0.25, 0.5, 0.75, 1.0):
         print(f"   peak RSS up to {f:4.0%} of the run: {at(f):7.0f} MiB")
     print(f"   {result}")
+    cpu = result.get("cpu_s", {})
     print(f"ingest {args.studies} studies: {n_files} files in {seconds:.0f} s "
-          f"({n_files / seconds:.0f} files/s), peak RSS {peak:.0f} MiB, "
+          f"({n_files / seconds:.0f} files/s; CPU ingest {cpu.get('ingest')} s, workers "
+          f"{cpu.get('workers')} s), peak RSS {peak:.0f} MiB, "
           f"at 10 % {at(0.1):.0f} MiB, at 100 % {at(1.0):.0f} MiB")
     for p in (db, db.with_name(db.name + ".wal")):
         p.unlink(missing_ok=True)
