@@ -77,19 +77,21 @@ def replicated(n_studies: int) -> Path:
     return out
 
 
-def _rss_mib(pid: int) -> float:
-    """Resident memory of `pid` and its descendants (MiB), from /proc."""
-    total, stack = 0, [pid]
+def _rss_mib(pid: int) -> tuple[float, float]:
+    """Resident memory of `pid` and its descendants (MiB), and of `pid` alone, from /proc."""
+    total, own, stack = 0, 0, [pid]
     while stack:
         p = stack.pop()
         try:
             with open(f"/proc/{p}/status") as f:
-                total += next(int(l.split()[1]) for l in f if l.startswith("VmRSS:"))
+                kib = next(int(l.split()[1]) for l in f if l.startswith("VmRSS:"))
+            total += kib
+            own += kib if p == pid else 0
             with open(f"/proc/{p}/task/{p}/children") as f:
                 stack += [int(c) for c in f.read().split()]
         except (OSError, StopIteration):
             continue
-    return total / 1024
+    return total / 1024, own / 1024
 
 
 _DUCKDB_TAGS = ("BASE_TABLE", "ART_INDEX", "METADATA", "OVERFLOW_STRINGS", "HASH_TABLE",
@@ -183,9 +185,25 @@ class _Watched:
         return result
 
 
-def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool = False) -> None:
+def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool = False,
+          settings: list[str] = ()) -> None:
+    import contextlib
+
     import pipeline.ingest as ingest_module
     from pipeline.ingest import ingest
+
+    if settings:   # --duckdb-set: applied as the ingest opens its connection
+        opened = ingest_module.connection
+
+        @contextlib.contextmanager
+        def connection(*args, **kwargs):
+            with opened(*args, **kwargs) as con:
+                for setting in settings:
+                    name, value = setting.split("=", 1)
+                    con.execute(f"set {name} = '{value}'")
+                yield con
+
+        ingest_module.connection = connection
 
     done = [0, 0]   # files so far, files at the last progress line
     if duckdb_memory:   # sampled in the ingest's own connection, right after a progress line
@@ -248,10 +266,16 @@ def main() -> None:
     parser.add_argument("--statements", action="store_true",
                         help="with --duckdb-memory: each statement of a refresh, its CPU time and "
                              "the process's memory during it")
+    parser.add_argument("--sample-every", type=float, default=0.5, metavar="SECONDS",
+                        help="how often resident memory is sampled (default 0.5 s; it was 2 s, which "
+                             "missed some refreshes' peaks: a refresh takes 1-3 s)")
+    parser.add_argument("--duckdb-set", action="append", default=[], metavar="NAME=VALUE",
+                        help="a DuckDB setting for the ingest's connection, to try one (repeatable)")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory, args.statements)
+        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory, args.statements,
+              args.duckdb_set)
         return
     CACHE.mkdir(parents=True, exist_ok=True)
     corpus = replicated(args.studies)
@@ -260,15 +284,16 @@ def main() -> None:
     started = time.perf_counter()
     proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db),
                              *(["--duckdb-memory"] if args.duckdb_memory else []),
-                             *(["--statements"] if args.statements else [])],
+                             *(["--statements"] if args.statements else []),
+                             *(f"--duckdb-set={s}" for s in args.duckdb_set)],
                             stdout=subprocess.PIPE, text=True, cwd=ROOT,
                             env={**os.environ, "PYTHONPATH": str(ROOT)})
-    samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
+    samples: list[tuple[float, float, float]] = []   # (seconds since start, MiB, ingest's MiB)
     stop = threading.Event()
 
     def sample() -> None:
-        while not stop.wait(2.0):
-            samples.append((time.perf_counter() - started, _rss_mib(proc.pid)))
+        while not stop.wait(args.sample_every):
+            samples.append((time.perf_counter() - started, *_rss_mib(proc.pid)))
 
     thread = threading.Thread(target=sample, daemon=True)
     thread.start()
@@ -299,6 +324,8 @@ def main() -> None:
     for f in (0.1, 0.25, 0.5, 0.75, 1.0):
         print(f"   peak RSS up to {f:4.0%} of the run: {at(f):7.0f} MiB")
     print(f"   {result}")
+    print(f"   peak RSS of the ingest process alone {max(s[2] for s in samples):.0f} MiB, of its "
+          f"workers {max(s[1] - s[2] for s in samples):.0f} MiB")
     cpu = result.get("cpu_s", {})
     print(f"ingest {args.studies} studies: {n_files} files in {seconds:.0f} s "
           f"({n_files / seconds:.0f} files/s; CPU ingest {cpu.get('ingest')} s, workers "
