@@ -209,6 +209,26 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
     if duckdb_memory:   # sampled in the ingest's own connection, right after a progress line
         load_chunk = ingest_module._load_chunk
 
+        highest = {"_load_chunk": 0.0, "_dispatch_chunk": 0.0}
+
+        def phase(name, step):
+            """`step` with the process's peak memory during it: a line for each new highest."""
+            def run(con, *args, **kwargs):
+                with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                    f.write("5")
+                before = _own_mib()
+                result = step(con, *args, **kwargs)
+                peak = _own_mib("VmHWM")
+                if peak > highest[name]:
+                    highest[name] = peak
+                    print(f"DUCKDB   new highest in {name} at {done[0]} files: RSS {before:.0f} "
+                          f"-> peak {peak:.0f} -> {_own_mib():.0f} MiB", flush=True)
+                return result
+            return run
+
+        load_chunk = phase("_load_chunk", load_chunk)
+        ingest_module._dispatch_chunk = phase("_dispatch_chunk", ingest_module._dispatch_chunk)
+
         def sampled(con, *args, **kwargs):
             before = done[1]
             load_chunk(con, *args, **kwargs)
@@ -219,6 +239,7 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
         refresh = ingest_module.refresh_derived
 
         def watched(con, *args, **kwargs):
+            loading = _own_mib("VmHWM")   # the peak since the last refresh (or release)
             before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
             with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
                 f.write("5")
@@ -226,7 +247,8 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
             result = refresh(_Watched(con, str(done[0])) if statements else con, *args, **kwargs)
             print(f"DUCKDB refresh (CPU {time.process_time() - cpu:.1f} s) at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
-                  f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
+                  f"{_own_mib():.0f} after (peak while loading before it {loading:.0f}); "
+                  f"DuckDB {duckdb_before:.0f} -> "
                   f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
                   flush=True)
             return result
@@ -236,8 +258,14 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
 
         def timed(con):
             started = time.perf_counter()
+            with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                f.write("5")
             release(con)
-            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s: "
+            peak = _own_mib("VmHWM")
+            with open("/proc/self/clear_refs", "w") as f:   # the loading that follows from here
+                f.write("5")
+            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s "
+                  f"(peak during it {peak:.0f} MiB): "
                   f"{_duckdb_memory(con)[7:]}", flush=True)
 
         if release is not None:
@@ -250,6 +278,9 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
             print(f"FILES {done[0]}", flush=True)
 
     summary = ingest([corpus], db, KEY, workers=2, progress=progress)
+    if duckdb_memory:
+        print(f"DUCKDB peak since the last refresh began (it, the run's end, the connection's "
+              f"close): {_own_mib('VmHWM'):.0f} MiB, now {_own_mib():.0f} MiB", flush=True)
     t = os.times()   # the workers have ended (the pool is shut down): their CPU is in children_*
     print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
                                   "derived": repr(summary.derived),
