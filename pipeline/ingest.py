@@ -226,6 +226,10 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
                 if in_flight is not None:
                     _load_chunk(con, in_flight, run_id, summary, progress, touched)
                     if len(touched) >= REFRESH_EVERY_STUDIES:
+                        # checkpoint first (and let the blocks go): else the refresh's commit
+                        # checkpoints the batches' rows, reading the primary keys' indexes whole
+                        # on top of the refresh's memory (_release_block_cache)
+                        _release_block_cache(con)
                         refreshes.append(refresh_derived(con, touched, since=since))
                         # the state the refresh read (it writes only the derived tables): not
                         # read again, a whole scan of the raw tables' keys
