@@ -8,10 +8,11 @@ studies: copy k of each file has every DICOM UID (2.25 root) rewritten with the 
 devices, the files otherwise byte for byte the generator's (the pydicom decoding and parsing
 work per file is the generator's too). That corpus is then ingested with 2 workers into a fresh
 warehouse in a child process; the resident memory of that process and its workers (from /proc)
-is sampled every 2 s and printed as studies go in, so one run shows whether memory grows with N.
-Ends with:
+is sampled every 0.5 s (--sample-every) and printed as studies go in, so one run shows whether
+memory grows with N. Ends with:
 
-    ingest N studies: X files in T s (F files/s), peak RSS Z MiB, at 10 % R1 MiB, at 100 % R2 MiB
+    ingest N studies: X files in T s (F files/s; CPU ingest C1 s, workers C2 s), peak RSS Z MiB,
+    at 10 % R1 MiB, at 100 % R2 MiB
 
 (the peak over the first 10 % of the run's time, and over all of it: flat memory means R1 close
 to R2; issue 14's target is < 1 GiB at 100k studies)
