@@ -8,10 +8,11 @@ studies: copy k of each file has every DICOM UID (2.25 root) rewritten with the 
 devices, the files otherwise byte for byte the generator's (the pydicom decoding and parsing
 work per file is the generator's too). That corpus is then ingested with 2 workers into a fresh
 warehouse in a child process; the resident memory of that process and its workers (from /proc)
-is sampled every 2 s and printed as studies go in, so one run shows whether memory grows with N.
-Ends with:
+is sampled every 0.5 s (--sample-every) and printed as studies go in, so one run shows whether
+memory grows with N. Ends with:
 
-    ingest N studies: X files in T s (F files/s), peak RSS Z MiB, at 10 % R1 MiB, at 100 % R2 MiB
+    ingest N studies: X files in T s (F files/s; CPU ingest C1 s, workers C2 s), peak RSS Z MiB,
+    at 10 % R1 MiB, at 100 % R2 MiB
 
 (the peak over the first 10 % of the run's time, and over all of it: flat memory means R1 close
 to R2; issue 14's target is < 1 GiB at 100k studies)
@@ -19,7 +20,9 @@ to R2; issue 14's target is < 1 GiB at 100k studies)
 With --duckdb-memory, each progress line is followed by what DuckDB itself holds in the ingest
 process then (duckdb_memory() by tag, and pragma database_size) beside that process's own resident
 memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
-during (VmHWM, reset before it) and after it, to tell what grows.
+during (VmHWM, reset before it) and after it, to tell what grows; with --statements too, each
+statement the refresh runs by its CPU time and the process's resident memory at its peak during it
+and after it (VmHWM reset before each).
 """
 
 from __future__ import annotations
@@ -75,19 +78,21 @@ def replicated(n_studies: int) -> Path:
     return out
 
 
-def _rss_mib(pid: int) -> float:
-    """Resident memory of `pid` and its descendants (MiB), from /proc."""
-    total, stack = 0, [pid]
+def _rss_mib(pid: int) -> tuple[float, float]:
+    """Resident memory of `pid` and its descendants (MiB), and of `pid` alone, from /proc."""
+    total, own, stack = 0, 0, [pid]
     while stack:
         p = stack.pop()
         try:
             with open(f"/proc/{p}/status") as f:
-                total += next(int(l.split()[1]) for l in f if l.startswith("VmRSS:"))
+                kib = next(int(l.split()[1]) for l in f if l.startswith("VmRSS:"))
+            total += kib
+            own += kib if p == pid else 0
             with open(f"/proc/{p}/task/{p}/children") as f:
                 stack += [int(c) for c in f.read().split()]
         except (OSError, StopIteration):
             continue
-    return total / 1024
+    return total / 1024, own / 1024
 
 
 _DUCKDB_TAGS = ("BASE_TABLE", "ART_INDEX", "METADATA", "OVERFLOW_STRINGS", "HASH_TABLE",
@@ -158,13 +163,72 @@ def _duckdb_total_mib(con) -> float:
     return total / 2**20
 
 
-def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
+class _Watched:
+    """A connection whose `execute` prints each statement's CPU time and the process's resident
+    memory at its peak during it and after it (the refresh's statements, one line each)."""
+
+    def __init__(self, con, tag: str):
+        self._con, self._tag = con, tag
+
+    def __getattr__(self, name):
+        return getattr(self._con, name)
+
+    def execute(self, query, *args, **kwargs):
+        with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+            f.write("5")
+        before, cpu = _own_mib(), time.process_time()
+        result = self._con.execute(query, *args, **kwargs)
+        first = next((l.strip() for l in str(query).splitlines()
+                      if l.strip() and not l.lstrip().startswith("--")), "")
+        print(f"DUCKDB   stmt {self._tag}: {time.process_time() - cpu:6.2f} s CPU, RSS "
+              f"{before:.0f} -> peak {_own_mib('VmHWM'):.0f} -> {_own_mib():.0f} MiB: "
+              f"{first[:90]}", flush=True)
+        return result
+
+
+def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool = False,
+          settings: list[str] = ()) -> None:
+    import contextlib
+
     import pipeline.ingest as ingest_module
     from pipeline.ingest import ingest
+
+    if settings:   # --duckdb-set: applied as the ingest opens its connection
+        opened = ingest_module.connection
+
+        @contextlib.contextmanager
+        def connection(*args, **kwargs):
+            with opened(*args, **kwargs) as con:
+                for setting in settings:
+                    name, value = setting.split("=", 1)
+                    con.execute(f"set {name} = '{value}'")
+                yield con
+
+        ingest_module.connection = connection
 
     done = [0, 0]   # files so far, files at the last progress line
     if duckdb_memory:   # sampled in the ingest's own connection, right after a progress line
         load_chunk = ingest_module._load_chunk
+
+        highest = {"_load_chunk": 0.0, "_dispatch_chunk": 0.0}
+
+        def phase(name, step):
+            """`step` with the process's peak memory during it: a line for each new highest."""
+            def run(con, *args, **kwargs):
+                with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                    f.write("5")
+                before = _own_mib()
+                result = step(con, *args, **kwargs)
+                peak = _own_mib("VmHWM")
+                if peak > highest[name]:
+                    highest[name] = peak
+                    print(f"DUCKDB   new highest in {name} at {done[0]} files: RSS {before:.0f} "
+                          f"-> peak {peak:.0f} -> {_own_mib():.0f} MiB", flush=True)
+                return result
+            return run
+
+        load_chunk = phase("_load_chunk", load_chunk)
+        ingest_module._dispatch_chunk = phase("_dispatch_chunk", ingest_module._dispatch_chunk)
 
         def sampled(con, *args, **kwargs):
             before = done[1]
@@ -176,13 +240,16 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
         refresh = ingest_module.refresh_derived
 
         def watched(con, *args, **kwargs):
+            loading = _own_mib("VmHWM")   # the peak since the last refresh (or release)
             before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
             with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
                 f.write("5")
-            result = refresh(con, *args, **kwargs)
-            print(f"DUCKDB refresh at {done[0]} files ({result!r}): ingest process RSS "
+            cpu = time.process_time()
+            result = refresh(_Watched(con, str(done[0])) if statements else con, *args, **kwargs)
+            print(f"DUCKDB refresh (CPU {time.process_time() - cpu:.1f} s) at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
-                  f"{_own_mib():.0f} after; DuckDB {duckdb_before:.0f} -> "
+                  f"{_own_mib():.0f} after (peak while loading before it {loading:.0f}); "
+                  f"DuckDB {duckdb_before:.0f} -> "
                   f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
                   flush=True)
             return result
@@ -192,8 +259,14 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
 
         def timed(con):
             started = time.perf_counter()
+            with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
+                f.write("5")
             release(con)
-            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s: "
+            peak = _own_mib("VmHWM")
+            with open("/proc/self/clear_refs", "w") as f:   # the loading that follows from here
+                f.write("5")
+            print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s "
+                  f"(peak during it {peak:.0f} MiB): "
                   f"{_duckdb_memory(con)[7:]}", flush=True)
 
         if release is not None:
@@ -206,8 +279,15 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False) -> None:
             print(f"FILES {done[0]}", flush=True)
 
     summary = ingest([corpus], db, KEY, workers=2, progress=progress)
+    if duckdb_memory:
+        print(f"DUCKDB peak since the last refresh began (it, the run's end, the connection's "
+              f"close): {_own_mib('VmHWM'):.0f} MiB, now {_own_mib():.0f} MiB", flush=True)
+    t = os.times()   # the workers have ended (the pool is shut down): their CPU is in children_*
     print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
-                                  "derived": repr(summary.derived)}), flush=True)
+                                  "derived": repr(summary.derived),
+                                  "cpu_s": {"ingest": round(t.user + t.system, 1),
+                                            "workers": round(t.children_user + t.children_system,
+                                                             1)}}), flush=True)
 
 
 def main() -> None:
@@ -215,10 +295,19 @@ def main() -> None:
     parser.add_argument("--studies", type=int, default=100_000)
     parser.add_argument("--duckdb-memory", action="store_true",
                         help="print DuckDB's memory by tag and the file size at each progress line")
+    parser.add_argument("--statements", action="store_true",
+                        help="with --duckdb-memory: each statement of a refresh, its CPU time and "
+                             "the process's memory during it")
+    parser.add_argument("--sample-every", type=float, default=0.5, metavar="SECONDS",
+                        help="how often resident memory is sampled (default 0.5 s; it was 2 s, which "
+                             "missed some refreshes' peaks: a refresh takes 1-3 s)")
+    parser.add_argument("--duckdb-set", action="append", default=[], metavar="NAME=VALUE",
+                        help="a DuckDB setting for the ingest's connection, to try one (repeatable)")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory)
+        child(Path(args.child[0]), Path(args.child[1]), args.duckdb_memory, args.statements,
+              args.duckdb_set)
         return
     CACHE.mkdir(parents=True, exist_ok=True)
     corpus = replicated(args.studies)
@@ -226,15 +315,17 @@ def main() -> None:
     db = CACHE / f"ingest-scale-{os.getpid()}.duckdb"
     started = time.perf_counter()
     proc = subprocess.Popen([sys.executable, __file__, "--child", str(corpus), str(db),
-                             *(["--duckdb-memory"] if args.duckdb_memory else [])],
+                             *(["--duckdb-memory"] if args.duckdb_memory else []),
+                             *(["--statements"] if args.statements else []),
+                             *(f"--duckdb-set={s}" for s in args.duckdb_set)],
                             stdout=subprocess.PIPE, text=True, cwd=ROOT,
                             env={**os.environ, "PYTHONPATH": str(ROOT)})
-    samples: list[tuple[float, float]] = []   # (seconds since start, MiB)
+    samples: list[tuple[float, float, float]] = []   # (seconds since start, MiB, ingest's MiB)
     stop = threading.Event()
 
     def sample() -> None:
-        while not stop.wait(2.0):
-            samples.append((time.perf_counter() - started, _rss_mib(proc.pid)))
+        while not stop.wait(args.sample_every):
+            samples.append((time.perf_counter() - started, *_rss_mib(proc.pid)))
 
     thread = threading.Thread(target=sample, daemon=True)
     thread.start()
@@ -265,8 +356,12 @@ def main() -> None:
     for f in (0.1, 0.25, 0.5, 0.75, 1.0):
         print(f"   peak RSS up to {f:4.0%} of the run: {at(f):7.0f} MiB")
     print(f"   {result}")
+    print(f"   peak RSS of the ingest process alone {max(s[2] for s in samples):.0f} MiB, of its "
+          f"workers {max(s[1] - s[2] for s in samples):.0f} MiB")
+    cpu = result.get("cpu_s", {})
     print(f"ingest {args.studies} studies: {n_files} files in {seconds:.0f} s "
-          f"({n_files / seconds:.0f} files/s), peak RSS {peak:.0f} MiB, "
+          f"({n_files / seconds:.0f} files/s; CPU ingest {cpu.get('ingest')} s, workers "
+          f"{cpu.get('workers')} s), peak RSS {peak:.0f} MiB, "
           f"at 10 % {at(0.1):.0f} MiB, at 100 % {at(1.0):.0f} MiB")
     for p in (db, db.with_name(db.name + ".wal")):
         p.unlink(missing_ok=True)
