@@ -115,12 +115,11 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q
     periods = q("dash_period")
     if periods.empty:
         label, first, last = "no audited observations", None, None
-        bounds = {"date_from": dt.date(1, 1, 1), "date_to": dt.date(9999, 12, 31)}
+        params = {"date_from": dt.date(1, 1, 1), "date_to": dt.date(9999, 12, 31)}
     else:
         label = str(periods.sort_values(["n_rows", "period"], ascending=[False, True])["period"].iloc[0])
         first, last = _period_dates(label)
-        bounds = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
-    params = bounds
+        params = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
     text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
     con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
     sigma = q("dash_funnel_sigma")

@@ -198,12 +198,14 @@ def _captured(con, table: str, calc: str) -> None:
 
 
 @contextlib.contextmanager
-def _shadowed_by_captured(con, tables: Iterable[str]) -> Iterator[None]:
-    """Hide `tables` behind temporary copies of the scope's rows just recomputed."""
+def _shadowed(con, tables: Iterable[str], statement: str, **names: str) -> Iterator[None]:
+    """Hide `tables` behind temporary tables of the scope's rows, made by
+    queries/refresh/<statement>.sql (refresh_shadow: copies of the raw rows; refresh_shadow_captured:
+    the rows just recomputed); dropped when the block ends."""
     tables = list(tables)
     try:
         for table in tables:
-            con.execute(sql("refresh_shadow_captured").format(table=table))
+            con.execute(sql(statement).format(table=table, **names))
         yield
     finally:
         for table in tables:
@@ -239,20 +241,15 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
     catalog = _catalog(con)
     try:
         with _transaction(con):
-            for table in _SCOPED_RAW:
-                con.execute(sql("refresh_shadow").format(table=table, catalog=catalog))
-            try:
+            with _shadowed(con, _SCOPED_RAW, "refresh_shadow", catalog=catalog):
                 for table, calc in DERIVED_TABLES:
                     _captured(con, table, calc)
-            finally:
-                for table in _SCOPED_RAW:
-                    con.execute(f"drop table if exists temp.main.{table}")
             if rules_changed:
                 _refill_matches(con)
             else:   # the scope's exam matches from its exam texts, then its audited values
-                with _shadowed_by_captured(con, ["derived_exam_text"]):
+                with _shadowed(con, ["derived_exam_text"], "refresh_shadow_captured"):
                     _captured(con, "derived_exam_match", "calc_exam_match")
-                with _shadowed_by_captured(con, _OBSERVATION_INPUTS):
+                with _shadowed(con, _OBSERVATION_INPUTS, "refresh_shadow_captured"):
                     _captured(con, "derived_audit_observation", "calc_audit_observation")
             for table in _SKIN_TABLES:
                 con.execute(sql("refresh_delete").format(table=table))
