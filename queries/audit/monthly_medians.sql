@@ -4,13 +4,14 @@ select site, device_key, exam_type, quantity, unit, phantom, month, n,
        q[1] as median, q[2] as p25, q[3] as p75
 from (
     -- one sort per group for the three order statistics (a list of quantiles), not three
-    select site, device_key, exam_type, quantity, unit, phantom, period as month,
-           count(*) as n, quantile_cont(value, [0.5, 0.25, 0.75]) as q
+    -- site follows from device_key (device: one row per device_key): carried, not grouped on
+    select any_value(site) as site, device_key, exam_type, quantity, unit, phantom,
+           period as month, count(*) as n, quantile_cont(value, [0.5, 0.25, 0.75]) as q
     from audit_observation
     where study_date < $date_to
       and patient_age_years >= $adult_min_age  -- unknown age is not adult
       and hash(device_key) % $parts = $part     -- one part of the rooms (pipeline.audit._by_parts)
-    group by all
+    group by device_key, exam_type, quantity, unit, phantom, period
 )
 order by device_key, exam_type, quantity, month
 
