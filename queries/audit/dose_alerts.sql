@@ -2,11 +2,14 @@
 -- family: the rule family; action: patient_follow_up | protocol_review | statistical_review;
 -- method: how the value was computed; threshold_verified: the threshold was read in its
 -- primary source (false: a default recalled from memory, on by default and labelled).
+-- The rules on a study's own values run here over every study of the period at once (their
+-- states are per study and spill); the outlier rule, whose medians hold every value of a group in
+-- memory, is inserted after it over parts of the rooms (dose_alerts_outliers.sql). Rows are not
+-- in a defined order: read with ORDER BY.
 create or replace table dose_alerts as
 with
 studies as (
     select * from study_dose where study_date >= $date_from and study_date < $date_to
-      and hash(device_key) % $parts = $part   -- one part of the rooms (pipeline.audit._by_parts)
 ),
 rules as (
     select * from alert_rule_in_force
@@ -91,49 +94,6 @@ device_check as (
         from raw_ct_event where dose_check_alert_ctdivol_mgy > 0 group by event_uid
     ) as v on v.event_uid = a.event_uid
     group by all
-),
-obs as not materialized (
-    -- read again by each of centre, spread and outliers rather than held: a held copy of every
-    -- observation of the part cost more than the three scans (3.55 against 2.90 CPU-s for one
-    -- of four parts at 10M events, DuckDB 2.0; measured, no other source)
-    select o.*, ln(o.value) as log_value
-    from audit_observation as o
-    where o.study_date >= $date_from and o.study_date < $date_to and o.value > 0
-      and hash(o.device_key) % $parts = $part
-),
-centre as (
-    select exam_type, device_key, quantity, median(log_value) as med, count(*) as n
-    from obs group by all
-),
-spread as (
-    select o.exam_type, o.device_key, o.quantity, c.med, c.n,
-           median(abs(o.log_value - c.med)) as mad
-    from obs as o join centre as c using (exam_type, device_key, quantity)
-    group by all
-),
-spread_rule as (
-    -- each group's spread with each outlier rule, before meeting the observations: they then
-    -- join on the group's keys alone (a join on the rule family with the |M| test beside it ran
-    -- as a nested loop over every observation)
-    select s.*, r.family, r.action, r.verified, r.threshold as z_threshold, r.source
-    from spread as s
-    join rules as r on r.family = 'robust_outlier'
-    where s.n >= $outlier_min_n and s.mad > 0
-),
-outliers as (
-    -- modified z-score on log dose within exam type x device (Iglewicz & Hoaglin 1993):
-    -- M = 0.6745 (x - median) / MAD; |M| > threshold is an outlier; high and low apart
-    select o.study_key, o.patient_key, o.device_key, o.site, o.exam_type, o.study_date,
-           case when o.log_value > s.med then 'robust_outlier_high' else 'robust_outlier_low' end as rule,
-           s.family, s.action, s.verified as threshold_verified,
-           o.quantity, o.value,
-           exp(s.med + sign(o.log_value - s.med) * s.z_threshold * s.mad / 0.6745) as threshold,
-           o.unit, s.source,
-           'modified z-score of log ' || o.quantity || ' within exam type x device (n = ' || s.n || ')'
-               as method
-    from obs as o
-    join spread_rule as s using (exam_type, device_key, quantity)
-    where abs(0.6745 * (o.log_value - s.med) / s.mad) > s.z_threshold
 )
 select study_key, patient_key, device_key, site, exam_type, study_date, rule, family, action,
        quantity, value, threshold, unit, source, method, threshold_verified
@@ -142,7 +102,6 @@ from (
     union all by name select * from ct_events where value > threshold
     union all by name select * from ct_alert where value > threshold
     union all by name select * from device_check where value > threshold
-    union all by name select * from outliers
 )
 order by study_date, rule, study_key
 
