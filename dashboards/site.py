@@ -43,6 +43,10 @@ _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_i
 # (pipeline/warehouse/derived.py); study_dose still joins the kept totals to the site map and
 # the matches.
 _MATERIALISED = ("study_dose",)
+# Kept tables the site reads directly: each file's studies and dates (dash_period_files.sql). An
+# audit brings them up (it runs ensure_schema), so a warehouse without them has not been audited
+# by this version.
+_KEPT = ("derived_object_study",)
 
 
 def _exam_types() -> pd.DataFrame:
@@ -75,7 +79,7 @@ def _check_audited(con: duckdb.DuckDBPyConnection, warehouse: Path) -> None:
     from pipeline.errors import WarehouseError
 
     names = {r[0] for r in con.execute(sql("dash_relations")).fetchall()}
-    missing = [t for t in (*AUDIT_TABLES, *_VIEWS) if t not in names]
+    missing = [t for t in (*AUDIT_TABLES, *_VIEWS, *_KEPT) if t not in names]
     if missing:
         raise WarehouseError(f"warehouse {warehouse} has not been audited (missing "
                              f"{', '.join(missing)}): run `kerma audit` or `kerma dashboard` first")
@@ -97,21 +101,6 @@ def read_site_data(con: duckdb.DuckDBPyConnection
         used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
         return con.execute(sql(name), used).df()
 
-    for name in _MATERIALISED:
-        con.execute(sql(f"dash_materialise_{name}"))
-    try:
-        return _read_site_data(con, q)
-    finally:
-        con.execute(sql("dash_drop_materialised"))
-
-
-def _read_site_data(con: duckdb.DuckDBPyConnection, q
-                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
-    # populations (adult age) are the audit's own: read from its tables, never set here
-    con.register("dash_exam_type", _exam_types())
-    con.register("dash_concept", _concepts())
-    devices = q("dash_devices")
-    con.register("dash_device", devices)
     periods = q("dash_period")
     if periods.empty:
         label, first, last = "no audited observations", None, None
@@ -120,8 +109,26 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q
         label = str(periods.sort_values(["n_rows", "period"], ascending=[False, True])["period"].iloc[0])
         first, last = _period_dates(label)
         params = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
-    text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
-    con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+    try:
+        # the period's files first, while no temporary table holds DuckDB's memory bound (it
+        # groups every file's studies and joins every file; after study_dose's copy it spilled)
+        text = sql("dash_period_files")   # a temporary table of the files' counts
+        con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+        for name in _MATERIALISED:
+            con.execute(sql(f"dash_materialise_{name}"))
+        return _read_site_data(con, q, label, first, last, params)
+    finally:
+        con.execute(sql("dash_drop_materialised"))
+
+
+def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.date | None,
+                    last: dt.date | None, params: dict[str, dt.date]
+                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
+    # populations (adult age) are the audit's own: read from its tables, never set here
+    con.register("dash_exam_type", _exam_types())
+    con.register("dash_concept", _concepts())
+    devices = q("dash_devices")
+    con.register("dash_device", devices)
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
