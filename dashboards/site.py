@@ -93,14 +93,20 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
     return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
-def read_site_data(con: duckdb.DuckDBPyConnection
+def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None = None
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
-    """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
+    """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets).
+
+    With `memory_limit`, DuckDB's memory bound of the SELECTs, set here: the period's files, read
+    first while no frame and no temporary table is held, run with FILES_MEMORY_LIMIT instead.
+    """
 
     def q(name: str, **params: object) -> pd.DataFrame:
         used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
         return con.execute(sql(name), used).df()
 
+    if memory_limit:
+        con.execute(f"set memory_limit = '{memory_limit}'")
     periods = q("dash_period")
     if periods.empty:
         label, first, last = "no audited observations", None, None
@@ -113,7 +119,11 @@ def read_site_data(con: duckdb.DuckDBPyConnection
         # the period's files first, while no temporary table holds DuckDB's memory bound (it
         # groups every file's studies and joins every file; after study_dose's copy it spilled)
         text = sql("dash_period_files")   # a temporary table of the files' counts
+        if memory_limit:
+            con.execute(f"set memory_limit = '{FILES_MEMORY_LIMIT}'")
         con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+        if memory_limit:
+            con.execute(f"set memory_limit = '{memory_limit}'")
         for name in _MATERIALISED:
             con.execute(sql(f"dash_materialise_{name}"))
         return _read_site_data(con, q, label, first, last, params)
@@ -263,6 +273,12 @@ CSV_CHUNK_ROWS = 50_000
 # RSS 1592 MiB with 512 MB, 1276 MiB with 256 MB; dash_distribution over the observations ran out
 # of 256 MB before the audit wrote them.
 DASHBOARD_MEMORY_LIMIT = "256MB"
+# DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
+# site build: it groups every dose object's studies and joins every input file, and nothing else
+# is held yet, so the process stays below the build's later peak (the frames). 10M events: 3.0
+# CPU-s with 512 MB against 5.2 with 256 MB, where it spilled; a bare process peaked at 599 MiB
+# (measured, no other source).
+FILES_MEMORY_LIMIT = "512MB"
 
 
 def _write_csv(path: Path, rows: pd.DataFrame) -> None:
@@ -329,9 +345,8 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     with connection(warehouse, read_only=True) as con:
         # DuckDB spills instead of growing with the warehouse (10M events: peak RSS 1949 MiB with
         # 1 GB, 1591 MiB with 512 MB, 1276 MiB with 256 MB; 1M events: 6.1 GiB with no bound)
-        con.execute(f"set memory_limit = '{DASHBOARD_MEMORY_LIMIT}'")
         _check_audited(con, warehouse)
-        data, label, first, last, sets = read_site_data(con)
+        data, label, first, last, sets = read_site_data(con, memory_limit=DASHBOARD_MEMORY_LIMIT)
     context = Context(period=label, date_from=first, date_to=last, reference_sets=sets,
                       generated_at=stamp, version=f"{__version__} (plotly {plotly.__version__})")
     site = build_site(data, context)
