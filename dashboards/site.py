@@ -137,6 +137,9 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     # populations (adult age) are the audit's own: read from its tables, never set here
     con.register("dash_exam_type", _exam_types())
     con.register("dash_concept", _concepts())
+    # the alerted studies' events first: turning its result into a frame is the build's largest
+    # transient, best met before the other frames are held (10M events: it set the peak RSS)
+    alert_events = q("dash_alert_events")
     devices = q("dash_devices")
     con.register("dash_device", devices)
     sigma = q("dash_funnel_sigma")
@@ -161,7 +164,7 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
         skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS),
-        alert_events=q("dash_alert_events"),
+        alert_events=alert_events,
         device_studies=q("dash_device_studies", **params),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
