@@ -43,6 +43,10 @@ _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_i
 # (pipeline/warehouse/derived.py); study_dose still joins the kept totals to the site map and
 # the matches.
 _MATERIALISED = ("study_dose",)
+# Kept tables the site reads directly: each file's studies and dates (dash_period_files.sql). An
+# audit brings them up (it runs ensure_schema), so a warehouse without them has not been audited
+# by this version.
+_KEPT = ("derived_object_study",)
 
 
 def _exam_types() -> pd.DataFrame:
@@ -75,7 +79,7 @@ def _check_audited(con: duckdb.DuckDBPyConnection, warehouse: Path) -> None:
     from pipeline.errors import WarehouseError
 
     names = {r[0] for r in con.execute(sql("dash_relations")).fetchall()}
-    missing = [t for t in (*AUDIT_TABLES, *_VIEWS) if t not in names]
+    missing = [t for t in (*AUDIT_TABLES, *_VIEWS, *_KEPT) if t not in names]
     if missing:
         raise WarehouseError(f"warehouse {warehouse} has not been audited (missing "
                              f"{', '.join(missing)}): run `kerma audit` or `kerma dashboard` first")
@@ -89,29 +93,20 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
     return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
-def read_site_data(con: duckdb.DuckDBPyConnection
+def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None = None
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
-    """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets)."""
+    """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets).
+
+    With `memory_limit`, DuckDB's memory bound of the SELECTs, set here: the period's files, read
+    first while no frame and no temporary table is held, run with FILES_MEMORY_LIMIT instead.
+    """
 
     def q(name: str, **params: object) -> pd.DataFrame:
         used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
         return con.execute(sql(name), used).df()
 
-    for name in _MATERIALISED:
-        con.execute(sql(f"dash_materialise_{name}"))
-    try:
-        return _read_site_data(con, q)
-    finally:
-        con.execute(sql("dash_drop_materialised"))
-
-
-def _read_site_data(con: duckdb.DuckDBPyConnection, q
-                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
-    # populations (adult age) are the audit's own: read from its tables, never set here
-    con.register("dash_exam_type", _exam_types())
-    con.register("dash_concept", _concepts())
-    devices = q("dash_devices")
-    con.register("dash_device", devices)
+    if memory_limit:
+        con.execute(f"set memory_limit = '{memory_limit}'")
     periods = q("dash_period")
     if periods.empty:
         label, first, last = "no audited observations", None, None
@@ -120,8 +115,33 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q
         label = str(periods.sort_values(["n_rows", "period"], ascending=[False, True])["period"].iloc[0])
         first, last = _period_dates(label)
         params = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
-    text = sql("dash_period_files")   # a temporary table: the file rows stay in DuckDB
-    con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+    try:
+        # the period's files first, while no temporary table holds DuckDB's memory bound (it
+        # groups every file's studies and joins every file; after study_dose's copy it spilled)
+        text = sql("dash_period_files")   # a temporary table of the files' counts
+        if memory_limit:
+            con.execute(f"set memory_limit = '{FILES_MEMORY_LIMIT}'")
+        con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+        if memory_limit:
+            con.execute(f"set memory_limit = '{memory_limit}'")
+        for name in _MATERIALISED:
+            con.execute(sql(f"dash_materialise_{name}"))
+        return _read_site_data(con, q, label, first, last, params)
+    finally:
+        con.execute(sql("dash_drop_materialised"))
+
+
+def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.date | None,
+                    last: dt.date | None, params: dict[str, dt.date]
+                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
+    # populations (adult age) are the audit's own: read from its tables, never set here
+    con.register("dash_exam_type", _exam_types())
+    con.register("dash_concept", _concepts())
+    # the alerted studies' events first: turning its result into a frame is the build's largest
+    # transient, best met before the other frames are held (10M events: it set the peak RSS)
+    alert_events = q("dash_alert_events")
+    devices = q("dash_devices")
+    con.register("dash_device", devices)
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
@@ -144,7 +164,7 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q
         data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
         **_capture_frames(con, q),
         skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS),
-        alert_events=q("dash_alert_events"),
+        alert_events=alert_events,
         device_studies=q("dash_device_studies", **params),
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
@@ -256,10 +276,81 @@ CSV_CHUNK_ROWS = 50_000
 # RSS 1592 MiB with 512 MB, 1276 MiB with 256 MB; dash_distribution over the observations ran out
 # of 256 MB before the audit wrote them.
 DASHBOARD_MEMORY_LIMIT = "256MB"
+# DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
+# site build: it groups every dose object's studies and joins every input file, and nothing else
+# is held yet, so the process stays below the build's later peak (the frames). 10M events: 3.0
+# CPU-s with 512 MB against 5.2 with 256 MB, where it spilled; a bare process peaked at 599 MiB
+# (measured, no other source).
+FILES_MEMORY_LIMIT = "512MB"
 
 
-def _write_csv(path: Path, rows: pd.DataFrame) -> None:
-    """`csv_text(rows)` written piece by piece; an unchanged file is left untouched."""
+# DuckDB working memory of the connection that writes the CSVs (it streams the rows of a frame)
+CSV_MEMORY_LIMIT = "256MB"
+
+
+def _csv_sql_columns(rows: pd.DataFrame) -> list[str] | None:
+    """The select list that writes `rows` (timestamps already text) as csv_text does, through the
+    macros of queries/dashboards/dash_csv_macros.sql; None when DuckDB would write other
+    characters: one column (csv.writer quotes a lone empty field), a header or column kind it
+    does not cover, or a text with a carriage return (DuckDB quotes it, csv.writer does not)."""
+    names = list(rows.columns)
+    if len(names) < 2 or len(set(names)) != len(names) \
+            or not all(isinstance(c, str) and c and not _CSV_SPECIAL.search(c) for c in names):
+        return None
+    columns = []
+    for column, dtype in rows.dtypes.items():
+        name = '"' + column.replace('"', '""') + '"'
+        if dtype == np.float64:
+            columns.append(f"dash_csv_float({name}) as {name}")
+        elif isinstance(dtype, np.dtype) and dtype.kind == "b":
+            columns.append(f"dash_csv_bool({name}) as {name}")
+        elif isinstance(dtype, np.dtype) and dtype.kind in "iu":
+            columns.append(name)
+        elif isinstance(dtype, pd.StringDtype) or dtype == object:
+            kind = "string" if dtype != object else pd.api.types.infer_dtype(rows[column],
+                                                                             skipna=True)
+            if kind == "empty":   # every value NULL (None or NaN): empty fields
+                columns.append(f"null::varchar as {name}")
+                continue
+            if kind != "string" or rows[column].str.contains("\r", regex=False, na=False).any():
+                return None
+            columns.append(f"dash_csv_text({name}) as {name}")
+        else:   # nullable numbers, categories, ...: csv_text
+            return None
+    return columns
+
+
+def _copy_csv(con: duckdb.DuckDBPyConnection, path: Path, rows: pd.DataFrame) -> bool:
+    """Write `rows` (timestamps already text) to `path` with DuckDB's COPY, in the characters of
+    csv_text (tests/dashboards/test_site.py compares them); False, writing nothing, when
+    `_csv_sql_columns` leaves the table to csv_text. At 10M events the site's CSVs took 6.4
+    CPU-s through Python's formatting (measured, no other source)."""
+    columns = _csv_sql_columns(rows)
+    if columns is None:
+        return False
+    text = sql("dash_copy_csv").format(columns=", ".join(columns),
+                                       path=str(path).replace("'", "''"))
+    con.register("csv_rows", rows)
+    try:
+        con.execute(text)
+    finally:
+        con.unregister("csv_rows")
+    return True
+
+
+def _csv_connection() -> duckdb.DuckDBPyConnection:
+    """An in-memory DuckDB connection with the CSV cell macros (dash_csv_macros.sql)."""
+    con = duckdb.connect()
+    con.execute("set threads to 2")
+    con.execute(f"set memory_limit = '{CSV_MEMORY_LIMIT}'")
+    con.execute(sql("dash_csv_macros"))
+    return con
+
+
+def _write_csv(path: Path, rows: pd.DataFrame, con: duckdb.DuckDBPyConnection | None = None
+               ) -> None:
+    """`csv_text(rows)` written by DuckDB's COPY through `con` (a `_csv_connection`) where it
+    writes the same characters, else piece by piece; an unchanged file is left untouched."""
     import filecmp
     import os
 
@@ -275,10 +366,11 @@ def _write_csv(path: Path, rows: pd.DataFrame) -> None:
             values = [None if v == '""' else v for v in text.split("\n")[:-1]]
             rows[column] = pd.Series(values, index=rows.index, dtype=object)
     tmp = path.with_name(path.name + ".tmp")
-    with open(tmp, "w", encoding="utf-8", newline="") as f:
-        for start in range(0, max(len(rows), 1), CSV_CHUNK_ROWS):
-            text = csv_text(rows.iloc[start:start + CSV_CHUNK_ROWS])
-            f.write(text if start == 0 else text.split("\n", 1)[1])
+    if con is None or not _copy_csv(con, tmp, rows):
+        with open(tmp, "w", encoding="utf-8", newline="") as f:
+            for start in range(0, max(len(rows), 1), CSV_CHUNK_ROWS):
+                text = csv_text(rows.iloc[start:start + CSV_CHUNK_ROWS])
+                f.write(text if start == 0 else text.split("\n", 1)[1])
     if path.exists() and filecmp.cmp(tmp, path, shallow=False):
         tmp.unlink()
     else:
@@ -322,9 +414,8 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     with connection(warehouse, read_only=True) as con:
         # DuckDB spills instead of growing with the warehouse (10M events: peak RSS 1949 MiB with
         # 1 GB, 1591 MiB with 512 MB, 1276 MiB with 256 MB; 1M events: 6.1 GiB with no bound)
-        con.execute(f"set memory_limit = '{DASHBOARD_MEMORY_LIMIT}'")
         _check_audited(con, warehouse)
-        data, label, first, last, sets = read_site_data(con)
+        data, label, first, last, sets = read_site_data(con, memory_limit=DASHBOARD_MEMORY_LIMIT)
     context = Context(period=label, date_from=first, date_to=last, reference_sets=sets,
                       generated_at=stamp, version=f"{__version__} (plotly {plotly.__version__})")
     site = build_site(data, context)
@@ -332,6 +423,7 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     _write_text(out / PLOTLY_JS, get_plotlyjs())
     for name, html in site.pages.items():
         _write_text(out / name, html)
-    for name, rows in site.tables.items():
-        _write_csv(out / f"{name}.csv", rows)
+    with _csv_connection() as con:
+        for name, rows in site.tables.items():
+            _write_csv(out / f"{name}.csv", rows, con)
     return out / "index.html"

@@ -8,8 +8,11 @@ are computed once, when a load adds rows to the study, and kept; the public view
 tables depend on the exam rules as well: the exam matches (``derived_exam_match``) and the
 audited values with their exam types (``derived_audit_observation``, read through the view
 audit_observation); they are kept for the rules in force and recomputed whole when the rules
-change. The rest of the configuration (site map, reference levels, alert rules) is joined at
-read time, never kept here.
+change. Each dose object's studies with their dates (``derived_object_study``, one row per SOP
+instance x study x device of the deduplicated events) are computed from the kept events and
+totals, after them, for the same studies (the site build counts a period's files from them).
+The rest of the configuration (site map, reference levels, alert rules) is joined at read time,
+never kept here.
 
 `refresh_derived` keeps them true to the raw tables:
 
@@ -40,8 +43,9 @@ import pyarrow as pa
 from queries import ROOT as QUERIES
 from queries import apply_all, sql
 
-__all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "MATCH_TABLES", "RefreshResult", "definitions_digest",
-           "exam_rules_state", "raw_state", "refresh_derived", "skin_rows_for"]
+__all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "MATCH_TABLES", "OBJECT_TABLES", "RefreshResult",
+           "definitions_digest", "exam_rules_state", "raw_state", "refresh_derived",
+           "skin_rows_for"]
 
 # (derived table, the staging view computing it), in dependency order
 DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
@@ -51,9 +55,14 @@ DERIVED_TABLES = (("derived_irradiation_event", "calc_irradiation_event"),
 # totals, the events and the matches: refreshed after them, in this order
 MATCH_TABLES = (("derived_exam_match", "calc_exam_match"),
                 ("derived_audit_observation", "calc_audit_observation"))
+# each dose object's studies and dates, read from the kept events and totals: refreshed after
+# them, for the same studies (they depend on neither the exam rules nor the configuration)
+OBJECT_TABLES = (("derived_object_study", "calc_object_study"),)
 # the derived tables the audited values are computed from, hidden by temporary copies of the
 # scope's rows while the scope's audited values are recomputed
 _OBSERVATION_INPUTS = ("derived_study_total", "derived_irradiation_event", "derived_exam_match")
+# the derived tables the objects' studies are computed from, hidden the same way
+_OBJECT_INPUTS = ("derived_irradiation_event", "derived_study_total")
 _SKIN_TABLES = ("derived_skin_dose", "derived_skin_dose_factor", "derived_skin_dose_map")
 # raw tables holding a study_key, hidden by a scoped temporary copy during an incremental refresh
 _SCOPED_RAW = ("raw_dose_object", "raw_study", "raw_ct_event", "raw_projection_event",
@@ -244,6 +253,9 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
             with _shadowed(con, _SCOPED_RAW, "refresh_shadow", catalog=catalog):
                 for table, calc in DERIVED_TABLES:
                     _captured(con, table, calc)
+            with _shadowed(con, _OBJECT_INPUTS, "refresh_shadow_captured"):
+                for table, calc in OBJECT_TABLES:
+                    _captured(con, table, calc)
             if rules_changed:
                 _refill_matches(con)
             else:   # the scope's exam matches from its exam texts, then its audited values
@@ -256,7 +268,7 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
             _skin(con, all_studies=False)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
-        for table, _ in (*DERIVED_TABLES, *MATCH_TABLES):
+        for table, _ in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
             con.execute(f"drop table if exists temp.main.refresh_new_{table}")
     return n
 
@@ -272,7 +284,7 @@ def _full(con) -> int:
     replaced = False
     try:
         with _transaction(con):
-            for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
+            for table, calc in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
                 if _columns(con, table) == _columns(con, calc):
                     con.execute(f"delete from {table}")
                     con.execute(sql("refresh_insert").format(table=table, calc=calc))

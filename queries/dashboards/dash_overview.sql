@@ -1,5 +1,6 @@
 -- grain: one row: the headline counts of the audit period (each links to its page); files are
--- those of the period (dash_period_file, the frame of dash_period_files.sql)
+-- those of the period (dash_period_file, made by dash_period_files.sql: a row per file not
+-- loaded, a row per reason of the loaded ones with their n_files)
 with
 period_studies as (
     -- one row per study of the period: its flags over its devices' rows (one grouping, not
@@ -41,6 +42,8 @@ select
     (select count(*) from dose_alerts) as n_alerts,
     (select count(distinct study_key) from dose_alerts) as n_alert_studies,
     (select count(*) from drift_flags) as n_drift_flags,
-    (select count(*) from dash_period_file) as n_files,
-    (select count(*) filter (where status = 'quarantined') from dash_period_file) as n_quarantined,
-    (select count(*) filter (where status = 'not_dose') from dash_period_file) as n_not_dose
+    (select coalesce(sum(n_files), 0)::bigint from dash_period_file) as n_files,
+    (select coalesce(sum(n_files) filter (where status = 'quarantined'), 0)::bigint
+       from dash_period_file) as n_quarantined,
+    (select coalesce(sum(n_files) filter (where status = 'not_dose'), 0)::bigint
+       from dash_period_file) as n_not_dose

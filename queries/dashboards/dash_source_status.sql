@@ -1,8 +1,8 @@
 -- grain: one row per file status x reason over the files of the audit period (dash_period_file,
--- the frame of dash_period_files.sql)
+-- made by dash_period_files.sql: a row per file not loaded, a row per reason of the loaded ones)
 with
 counted as (
-    select status, coalesce(reason, '') as reason, count(*) as n_files,
+    select status, coalesce(reason, '') as reason, sum(n_files)::bigint as n_files,
            sum(size_bytes) as size_bytes
     from dash_period_file
     group by status, coalesce(reason, '')

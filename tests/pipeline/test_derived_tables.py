@@ -19,13 +19,15 @@ import pytest
 
 from pipeline.ingest import ingest
 from pipeline.warehouse.connection import connection
-from pipeline.warehouse.derived import DERIVED_TABLES, MAP_FLOOR_MGY, MATCH_TABLES, refresh_derived
+from pipeline.warehouse.derived import (DERIVED_TABLES, MAP_FLOOR_MGY, MATCH_TABLES, OBJECT_TABLES,
+                                        refresh_derived)
 from tests.helpers import KEY
 
 _ORDER = {"derived_irradiation_event": ["event_uid", "study_key", "device_key"],
           "derived_study_total": ["study_key", "device_key"],
           "derived_skin_dose": ["study_key", "device_key"],
-          "derived_audit_observation": ["study_key", "device_key", "quantity", "event_uid"]}
+          "derived_audit_observation": ["study_key", "device_key", "quantity", "event_uid"],
+          "derived_object_study": ["sop_instance_uid", "study_key", "device_key"]}
 
 
 def _frame(con, relation: str, order: list[str] | None) -> pd.DataFrame:
@@ -73,7 +75,7 @@ def test_each_run_refreshes_only_the_studies_it_touched(three_runs):
 def test_tables_kept_run_by_run_equal_the_whole_computation(three_runs):
     db, _ = three_runs
     with duckdb.connect(str(db), read_only=True) as con:
-        for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
+        for table, calc in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
             _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
                          table)
 
@@ -116,7 +118,7 @@ def test_a_long_run_refreshes_as_it_goes_and_equals_the_whole_computation(corpus
             duckdb.connect(str(one), read_only=True) as b:
         (n_studies,) = con.execute("select count(distinct study_key) from raw_dose_object").fetchone()
         (n_refreshes,) = con.execute("select count(*) from derived_state").fetchone()
-        for table, calc in (*DERIVED_TABLES, *MATCH_TABLES):
+        for table, calc in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
             _assert_same(_frame(con, table, _ORDER.get(table)), _frame(con, calc, _ORDER.get(table)),
                          table)
         for relation, order in (("study_dose", ["study_key", "device_key"]),
@@ -252,7 +254,7 @@ def test_a_warehouse_of_an_earlier_version_is_filled_when_its_schema_is_brought_
         (n,) = con.execute("select count(*) from study_dose").fetchone()
         for table in ("derived_state", "derived_study_total", "derived_irradiation_event",
                       "derived_exam_text", "derived_exam_match", "derived_skin_dose",
-                      "derived_audit_observation"):
+                      "derived_audit_observation", "derived_object_study"):
             con.execute(f"drop table {table}")
     with connection(db) as con:
         ensure_schema(con)
@@ -304,3 +306,45 @@ def test_audited_values_follow_a_later_report_of_the_study_in_dcmtk_written_obje
     assert [r.mode for r in results[::2]] == ["incremental", "incremental"]
     assert results[1] == [(1, pytest.approx(500.0)), (2, pytest.approx(2000.0))]
     assert results[3] == [(1, pytest.approx(500.0)), (3, pytest.approx(3000.0))]
+
+
+def test_a_report_relabelled_to_another_study_moves_its_events_objects_and_dates(tmp_path):
+    """Projection dose reports encoded by DCMTK's dump2dcm, in two runs: run 1 brings study A
+    (report a1: events e1, e2; dated 2026-10-15) and study B (report b1: e3; 2026-10-20); run 2
+    brings report a2 of another study C (dated 2026-12-01) repeating e1 and e2, as a report
+    relabelled to a corrected study would. The deduplication keeps the later copy (a2's larger SOP
+    Instance UID at equal content time), so after run 2 the kept objects' studies
+    (derived_object_study, refreshed for the studies run 2 touched and those sharing an event with
+    them) list a2 with C's date and b1, no longer a1, and equal the whole computation after each
+    run. Check values follow from the objects written here (no outside source)."""
+    from tests.helpers import projection_report_dump, write_with_dump2dcm
+
+    event = dict(kvp=80, primary=0, secondary=0, sod_mm=750, sid_mm=1000, area_m2=0.04,
+                 table_height_mm=-150)
+
+    def report(folder, name: str, sop: str, study: str, date: str, uids: list[str]):
+        text = projection_report_dump(sop=sop, study=study, study_date=date, events=[
+            {**event, "uid": uid, "dose_rp_gy": 1.0} for uid in uids])
+        return write_with_dump2dcm(folder, name, text)
+
+    first, second = tmp_path / "run1", tmp_path / "run2"
+    first.mkdir()
+    second.mkdir()
+    report(first, "a1", "2.25.884001", "2.25.885001", "20261015", ["2.25.886001", "2.25.886002"])
+    report(first, "b1", "2.25.884002", "2.25.885002", "20261020", ["2.25.886003"])
+    report(second, "a2", "2.25.884003", "2.25.885003", "20261201", ["2.25.886001", "2.25.886002"])
+    db = tmp_path / "kerma.duckdb"
+    order = _ORDER["derived_object_study"]
+    kept, modes = [], []
+    for folder in (first, second):
+        modes.append(ingest([folder], db, KEY, workers=1).derived.mode)
+        with duckdb.connect(str(db), read_only=True) as con:
+            _assert_same(_frame(con, "derived_object_study", order),
+                         _frame(con, "calc_object_study", order), f"after {folder.name}")
+            kept.append(con.execute("select sop_instance_uid, study_date, count(*) "
+                                    "from derived_object_study group by all order by 1").fetchall())
+    assert modes == ["incremental", "incremental"]
+    assert kept[0] == [("2.25.884001", dt.date(2026, 10, 15), 1),
+                       ("2.25.884002", dt.date(2026, 10, 20), 1)]
+    assert kept[1] == [("2.25.884002", dt.date(2026, 10, 20), 1),
+                       ("2.25.884003", dt.date(2026, 12, 1), 1)]
