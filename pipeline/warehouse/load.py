@@ -10,12 +10,19 @@ from queries import apply_all, sql
 
 from .derived import refresh_derived
 
-__all__ = ["LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", "replace_site_map"]
+__all__ = ["GRAIN", "LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", "replace_site_map"]
 
 LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
               "accumulated", "value_issue")
-# the batch's tables the total check reads (queries/load/insert_total_mismatch_issues.sql)
-_CHECKED = ("accumulated", "projection_event", "ct_event")
+# The key of each raw table that has no primary key (queries/schema/raw_*.sql): the per-report
+# tables, whose random UIDs made an index that every batch's insert read nearly whole, so it stayed
+# in memory and grew with the warehouse. Their rows are new with their report (a SOP Instance UID
+# already loaded is a duplicate, never loaded again), so a batch cut to the first row of each key
+# keeps the grain. The other raw tables keep their primary key (insert or ignore).
+GRAIN = {"ct_event": ("event_uid", "sop_instance_uid"),
+         "projection_event": ("event_uid", "sop_instance_uid"),
+         "accumulated": ("sop_instance_uid", "plane"),
+         "value_issue": ("issue_id",)}
 
 
 def ensure_schema(con: duckdb.DuckDBPyConnection) -> list[str]:
@@ -32,15 +39,14 @@ def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) ->
 
     A crash mid-batch leaves nothing of the batch behind, so a rerun redoes it cleanly.
 
-    The total check reads the batch's rows only, not the raw tables whole (a scan per batch
-    that grew with the warehouse): the batch's reports must be new to the warehouse, as
-    the ingest makes sure (a SOP Instance already loaded is a duplicate, not loaded again). The
-    checked tables are first cut to one row per key of their raw table, the first in the
-    batch, which is the row `insert or ignore` keeps: the check sees the rows inserted.
+    The batch's reports must be new to the warehouse, as the ingest makes sure (a SOP Instance
+    already loaded is a duplicate, not loaded again): the tables of GRAIN have no primary key,
+    so the batch's rows of each are cut here to the first of each key, and the total check reads
+    the batch's rows only, not the raw tables whole (a scan per batch that grew with the
+    warehouse), which are then the rows inserted.
     """
     counts: dict[str, int] = {}
-    keys = _primary_keys(con, [f"raw_{name}" for name in _CHECKED])
-    tables = {name: _first_per_key(t, keys[f"raw_{name}"]) if name in _CHECKED else t
+    tables = {name: _first_per_key(t, list(GRAIN[name])) if name in GRAIN else t
               for name, t in tables.items()}
     con.execute("begin transaction")
     try:
@@ -60,12 +66,6 @@ def append_batch(con: duckdb.DuckDBPyConnection, tables: dict[str, pa.Table]) ->
         con.execute("rollback")
         raise
     return counts
-
-
-def _primary_keys(con: duckdb.DuckDBPyConnection, names: list[str]) -> dict[str, list[str]]:
-    """The primary-key columns of each table of `names` (an empty list for a table without)."""
-    rows = con.execute(sql("select_primary_keys"), {"names": names}).fetchall()
-    return {name: next((list(cols) for t, cols in rows if t == name), []) for name in names}
 
 
 def _first_per_key(table: pa.Table, keys: list[str]) -> pa.Table:

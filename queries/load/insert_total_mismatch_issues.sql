@@ -1,8 +1,10 @@
 -- load: record a total_mismatch issue for each report of the batch whose events do not add up to
 -- its reported accumulated total (relative difference > 1 %). The check reads the batch's own rows
 -- (incoming_*, as inserted: one row per key), never the raw tables whole: a report's events and
--- totals come from its one file, so they arrive in the same batch (pipeline/ingest.py)
-insert or ignore into raw_value_issue by name
+-- totals come from its one file, so they arrive in the same batch (pipeline/ingest.py). One row per
+-- report and quantity (the check's grain), each report new to the warehouse: raw_value_issue has no
+-- primary key to ignore a repeat (queries/schema/raw_value_issue.sql)
+insert into raw_value_issue by name
 select
     c.sop_instance_uid || ':total_mismatch:' || c.quantity as issue_id,
     c.sop_instance_uid,

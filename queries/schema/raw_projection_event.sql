@@ -1,4 +1,10 @@
 -- grain: one row per irradiation event per report that carries it (TID 10003 or image header)
+-- key (event_uid, sop_instance_uid): kept by the load, not by a primary key. A report's rows arrive
+-- only with the report, which is loaded once (a SOP Instance UID already in raw_dose_object is a
+-- duplicate), and each batch keeps the first row of each key (pipeline/warehouse/load.py, GRAIN).
+-- An index on these random UIDs was read nearly whole by every batch's insert, so it stayed in
+-- memory and grew with the warehouse (bench/ingest_scale.py). A warehouse created with the
+-- primary key keeps it (and its memory); its loads work the same
 create table if not exists raw_projection_event (
     event_uid varchar,
     sop_instance_uid varchar,
@@ -51,8 +57,7 @@ create table if not exists raw_projection_event (
     view_position varchar,
     study_key varchar,
     device_key varchar,
-    run_id varchar,
-    primary key (event_uid, sop_instance_uid)
+    run_id varchar
 );
 -- columns added after the first release: a warehouse made before them gains them here
 alter table raw_projection_event add column if not exists entrance_dose_mgy double;

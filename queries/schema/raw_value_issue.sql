@@ -1,4 +1,10 @@
 -- grain: one row per value-level issue (the value itself is stored as NULL, never guessed)
+-- key (issue_id): kept by the load, not by a primary key. A report's rows arrive
+-- only with the report, which is loaded once (a SOP Instance UID already in raw_dose_object is a
+-- duplicate), and each batch keeps the first row of each key (pipeline/warehouse/load.py, GRAIN).
+-- An index on these random UIDs was read nearly whole by every batch's insert, so it stayed in
+-- memory and grew with the warehouse (bench/ingest_scale.py). A warehouse created with the
+-- primary key keeps it (and its memory); its loads work the same
 create table if not exists raw_value_issue (
     issue_id varchar,
     sop_instance_uid varchar,
@@ -8,6 +14,5 @@ create table if not exists raw_value_issue (
     detail varchar,
     raw_value varchar,
     raw_unit varchar,
-    run_id varchar,
-    primary key (issue_id)
+    run_id varchar
 );
