@@ -306,9 +306,10 @@ _MATERIALISED = ("study_dose",)
 AUDIT_MEMORY_LIMIT = "700MB"
 # Medians, quantiles, sorted lists and distinct counts hold their values in memory (DuckDB does
 # not spill these aggregate states), so the statements that group every observation of the
-# period per room (audit_medians, monthly_medians, dose_alerts) run over parts of the rooms, by a
-# hash of device_key, of about this many observations each: memory then stays flat however many
-# rooms a network holds. Up to this many, one part: the plan and the row order are as before.
+# period per room (audit_medians, monthly_medians, the outlier rule of dose_alerts) run over
+# parts of the rooms, by a hash of device_key, of about this many observations each: memory
+# then stays flat however many rooms a network holds. Up to this many, one part: the plan and
+# the row order are as before.
 # Each part also rescans what the statement reads (about 0.2 s per part at 1M events), so parts
 # are as large as fit: at 10M events (6.4M observations) one part ran out of a 1 GB limit,
 # 7 parts of 1M fitted; 4 parts of 2M fitted both 1 GB and 700 MB: see README (issue 14).
