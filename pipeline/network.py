@@ -69,17 +69,22 @@ class ExtractTable:
     uid_columns: tuple[str, ...] = ()   # replaced by keyed pseudonyms
     text_columns: tuple[str, ...] = ()  # free text: UIDs inside are replaced too
     run_column: str = "run_id"          # set to the extract id in the network warehouse
+    key: tuple[str, ...] = ()           # one row per value in an extract (the raw table's grain)
 
 
 EXTRACT_TABLES: tuple[ExtractTable, ...] = (
-    ExtractTable("device", ("first_run_id",), run_column="first_run_id"),
-    ExtractTable("study", ("first_run_id",), run_column="first_run_id"),
-    ExtractTable("dose_object", ("path", "sha256", "run_id"), ("sop_instance_uid",)),
-    ExtractTable("ct_event", ("run_id",), ("event_uid", "sop_instance_uid", "series_instance_uid")),
-    ExtractTable("projection_event", ("run_id",), ("event_uid", "sop_instance_uid")),
-    ExtractTable("accumulated", ("run_id",), ("sop_instance_uid",)),
+    ExtractTable("device", ("first_run_id",), run_column="first_run_id", key=("device_key",)),
+    ExtractTable("study", ("first_run_id",), run_column="first_run_id", key=("study_key",)),
+    ExtractTable("dose_object", ("path", "sha256", "run_id"), ("sop_instance_uid",),
+                 key=("sop_instance_uid",)),
+    ExtractTable("ct_event", ("run_id",), ("event_uid", "sop_instance_uid", "series_instance_uid"),
+                 key=("event_uid", "sop_instance_uid")),
+    ExtractTable("projection_event", ("run_id",), ("event_uid", "sop_instance_uid"),
+                 key=("event_uid", "sop_instance_uid")),
+    ExtractTable("accumulated", ("run_id",), ("sop_instance_uid",),
+                 key=("sop_instance_uid", "plane")),
     ExtractTable("value_issue", ("run_id",), ("issue_id", "sop_instance_uid", "event_uid"),
-                 ("detail",)),
+                 ("detail",), key=("issue_id",)),
 )
 
 

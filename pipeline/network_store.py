@@ -143,8 +143,8 @@ def read_extract(folder: Path) -> tuple[Manifest, dict[str, pa.Table]]:
     """Validate an extract folder completely and read its tables (nothing is written).
 
     Raises ExtractError (one line naming the folder) for a missing or altered manifest, an
-    unsupported schema version, a missing, changed or truncated file, or a file whose
-    columns or row count differ from the manifest's.
+    unsupported schema version, a missing, changed or truncated file, a file whose
+    columns or row count differ from the manifest's, or a table that repeats a value of its key.
     """
     folder = Path(folder)
     where = str(folder)
@@ -178,8 +178,23 @@ def read_extract(folder: Path) -> tuple[Manifest, dict[str, pa.Table]]:
         if table.num_rows != entry["rows"]:
             raise ExtractError(f"{where}: {entry['file']} holds {table.num_rows} rows, the "
                                f"manifest says {entry['rows']}")
+        repeated = _repeated_keys(table, spec.key)
+        if repeated:
+            # kerma export writes one row per key; the per-report raw tables have no primary
+            # key (queries/schema/raw_ct_event.sql), so a repeated row would be merged twice
+            raise ExtractError(f"{where}: {entry['file']} repeats {repeated} value(s) of its key "
+                               f"({', '.join(spec.key)}), which an extract holds once each; "
+                               "ask the site to export again")
         tables[spec.name] = table
     return manifest, tables
+
+
+def _repeated_keys(table: pa.Table, key: tuple[str, ...]) -> int:
+    """How many values of `key` occur on more than one row of `table`."""
+    if not key or table.num_rows < 2:
+        return 0
+    counts = table.select(list(key)).group_by(list(key), use_threads=False).aggregate([([], "count_all")])
+    return pc.sum(pc.greater(counts["count_all"], 1).cast(pa.int64())).as_py() or 0
 
 
 @dataclass

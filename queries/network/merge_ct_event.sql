@@ -1,6 +1,6 @@
 -- merge: drop the rows of replaced extracts (same site and period) and the reports the incoming
--- extract carries again (the newest extract wins), then add the incoming rows (an extract holds
--- one row per key; raw_ct_event has no primary key: queries/schema/raw_ct_event.sql)
+-- extract carries again (the newest extract wins), then add the incoming rows (read_extract refuses
+-- an extract that repeats a key; raw_ct_event has no primary key: queries/schema/raw_ct_event.sql)
 delete from raw_ct_event
 where run_id in (select extract_id from replaced_extract)
    or sop_instance_uid in (select sop_instance_uid from incoming_dose_object);

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import duckdb
 import pandas as pd
+import pyarrow as pa
 import pyarrow.parquet as pq
 import pydicom
 import pytest
@@ -254,6 +255,21 @@ def _extra_column(folder):
     _rewrite_manifest(folder, change)
 
 
+def _repeat_event(folder):
+    """A hand-made extract: one projection event written twice, checksum and id made to agree.
+    Merged, the event would count twice in its study's totals (raw_projection_event has no
+    primary key), so it is refused."""
+    path = folder / "projection_event.parquet"
+    table = pq.read_table(path)
+    pq.write_table(pa.concat_tables([table, table.slice(0, 1)]), path, compression="none")
+
+    def change(m):
+        entry = next(f for f in m["files"] if f["table"] == "projection_event")
+        entry.update(sha256=_file_hash(path), rows=table.num_rows + 1)
+        _reseal(m)
+    _rewrite_manifest(folder, change)
+
+
 def _no_manifest(folder):
     (folder / "manifest.json").unlink()
 
@@ -271,6 +287,7 @@ def _bad_json(folder):
     (_truncate, "dose_object.parquet does not match its SHA-256"),
     (_truncate_and_reseal, "dose_object.parquet is not readable Parquet"),
     (_extra_column, "unexpected: patient_name"),
+    (_repeat_event, "projection_event.parquet repeats 1 value"),
     (_no_manifest, "no manifest.json"),
     (_bad_json, "manifest is not valid JSON"),
 ], ids=lambda v: getattr(v, "__name__", "")[1:] if callable(v) else None)
