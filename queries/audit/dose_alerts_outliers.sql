@@ -8,23 +8,39 @@ rules as (
     select * from alert_rule_in_force
 ),
 obs as not materialized (
-    -- read again by each of centre, spread and outliers rather than held: a held copy of every
-    -- observation of the part cost more than the three scans (3.55 against 2.90 CPU-s for one
-    -- of four parts at 10M events, DuckDB 2.0; measured, no other source)
+    -- read twice (the groups' values, then the test), not held: a held copy of every observation
+    -- of the part cost more than the scans (3.55 against 2.90 CPU-s for one of four parts at 10M
+    -- events, DuckDB 2.0; measured, no other source)
     select o.*, ln(o.value) as log_value
     from audit_observation as o
     where o.study_date >= $date_from and o.study_date < $date_to and o.value > 0
       and hash(o.device_key) % $parts = $part
 ),
-centre as (
-    select exam_type, device_key, quantity, median(log_value) as med, count(*) as n
+sorted as (
+    -- each group's log values once, sorted: the median and the median absolute deviation both
+    -- come from this list (two median() aggregates and a join of every observation to its
+    -- group's median between them took 2.12-3.33 CPU-s for one of four parts at 10M events,
+    -- the list 1.88-2.70, the same rows; DuckDB 2.0, measured, no other source)
+    select exam_type, device_key, quantity, count(*) as n, list_sort(list(log_value)) as v
     from obs group by all
+    having count(*) >= $outlier_min_n
+),
+centre as (
+    -- the median as DuckDB's median() gives it: the middle value, or the mean of the two middle
+    -- values as (a + b) / 2 (not a + (b - a) / 2, which differs in the last bit)
+    select exam_type, device_key, quantity, n, v,
+           case when n % 2 = 1 then v[(n + 1) // 2] else (v[n // 2] + v[n // 2 + 1]) / 2 end as med
+    from sorted
+),
+deviation as (
+    select exam_type, device_key, quantity, n, med,
+           list_sort(list_transform(v, lambda x: abs(x - med))) as d
+    from centre
 ),
 spread as (
-    select o.exam_type, o.device_key, o.quantity, c.med, c.n,
-           median(abs(o.log_value - c.med)) as mad
-    from obs as o join centre as c using (exam_type, device_key, quantity)
-    group by all
+    select exam_type, device_key, quantity, n, med,
+           case when n % 2 = 1 then d[(n + 1) // 2] else (d[n // 2] + d[n // 2 + 1]) / 2 end as mad
+    from deviation
 ),
 spread_rule as (
     -- each group's spread with each outlier rule, before meeting the observations: they then
@@ -33,7 +49,7 @@ spread_rule as (
     select s.*, r.family, r.action, r.verified, r.threshold as z_threshold, r.source
     from spread as s
     join rules as r on r.family = 'robust_outlier'
-    where s.n >= $outlier_min_n and s.mad > 0
+    where s.mad > 0
 ),
 outliers as (
     -- modified z-score on log dose within exam type x device (Iglewicz & Hoaglin 1993):

@@ -70,3 +70,45 @@ def test_drift_ignores_a_tiny_but_significant_shift():
     rng = np.random.default_rng(13)
     data = {"2026-01": rng.lognormal(0, 0.05, 400), "2026-02": rng.lognormal(np.log(0.95), 0.05, 400)}
     assert detect_drift(_series(data)).empty  # 5 % is below the 20 % practical threshold
+
+
+def test_robust_outliers_match_numpy_median_and_mad_of_log_dose(audited):
+    """The audit's robust-outlier alerts equal an independent computation with numpy over the
+    audited values: per exam type x room x quantity with at least outlier_min_n positive values,
+    the modified z-score M = 0.6745 (ln x - median) / MAD on log dose, |M| > 3.5 (Iglewicz &
+    Hoaglin 1993, modified z-score; pipeline/alert_rules.toml, from memory); the reported
+    threshold is the value at which |M| equals 3.5 on that side of the median."""
+    from pipeline.audit import AuditSettings, load_alert_rules
+
+    db, _, _ = audited
+    (rule,) = [r for r in load_alert_rules() if r["family"] == "robust_outlier"]
+    z_threshold, min_n = rule["threshold"], AuditSettings().outlier_min_n
+    con = duckdb.connect(str(db), read_only=True)
+    obs = con.execute("select study_key, device_key, exam_type, quantity, value from audit_observation "
+                      "where study_date between date '2026-09-01' and date '2026-11-30' "   # the audited days
+                      "and value > 0").df()
+    got = con.execute("select study_key, device_key, quantity, rule, threshold from dose_alerts "
+                      "where family = 'robust_outlier'").fetchall()
+    con.close()
+    expected = {}
+    # unmapped studies (no exam type) form no group: the SQL joins on exam_type
+    for _, group in obs.dropna(subset=["exam_type"]).groupby(["exam_type", "device_key", "quantity"]):
+        if len(group) < min_n:
+            continue
+        logs = np.log(group["value"].to_numpy())
+        med = np.median(logs)
+        mad = np.median(np.abs(logs - med))
+        if mad == 0:
+            continue
+        for row, x in zip(group.itertuples(), logs):
+            if abs(0.6745 * (x - med) / mad) > z_threshold:
+                side = 1.0 if x > med else -1.0
+                expected[(row.study_key, row.device_key, row.quantity)] = (
+                    "robust_outlier_high" if x > med else "robust_outlier_low",
+                    float(np.exp(med + side * z_threshold * mad / 0.6745)))
+    assert len(expected) >= 5   # the demo-like network has outliers of both kinds
+    assert {r for r, _ in expected.values()} == {"robust_outlier_high", "robust_outlier_low"}
+    assert sorted((s, d, q, r) for s, d, q, r, _ in got) == \
+        sorted((s, d, q, r) for (s, d, q), (r, _) in expected.items())
+    for s, d, q, r, t in got:
+        assert t == pytest.approx(expected[(s, d, q)][1], rel=1e-12)
