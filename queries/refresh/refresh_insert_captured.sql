@@ -1,2 +1,3 @@
 -- refresh: add the scope's recomputed rows of {table} (refresh_capture.sql)
-insert into {table} by name select * from temp.main.refresh_new_{table}
+-- (then the ORDER BY the rows are written in: pipeline/warehouse/derived.py, _WRITE_ORDER)
+insert into {table} by name select * from temp.main.refresh_new_{table}{order}

@@ -1,2 +1,3 @@
 -- refresh: rebuild {table} whole from {calc} (its columns follow the definition)
-create or replace table {table} as select * from {calc}
+-- (then the ORDER BY the rows are written in: pipeline/warehouse/derived.py, _WRITE_ORDER)
+create or replace table {table} as select * from {calc}{order}

@@ -19,8 +19,8 @@ import pytest
 
 from pipeline.ingest import ingest
 from pipeline.warehouse.connection import connection
-from pipeline.warehouse.derived import (DERIVED_TABLES, MAP_FLOOR_MGY, MATCH_TABLES, OBJECT_TABLES,
-                                        refresh_derived)
+from pipeline.warehouse.derived import (_WRITE_ORDER, DERIVED_TABLES, MAP_FLOOR_MGY, MATCH_TABLES,
+                                        OBJECT_TABLES, refresh_derived)
 from tests.helpers import KEY
 
 _ORDER = {"derived_irradiation_event": ["event_uid", "study_key", "device_key"],
@@ -179,6 +179,37 @@ def test_a_current_refresh_does_nothing_and_a_stale_one_rebuilds_whole(warehouse
         con.execute("delete from derived_state")
         assert refresh_derived(con).mode == "full"
         assert refresh_derived(con).mode == "none"
+
+
+def _out_of_order(con, table: str) -> int:
+    """Rows of `table` whose place in storage (rowid) differs from their place in the table's
+    write order (ties kept in storage order)."""
+    return con.execute(f"select count(*) from (select row_number() over (order by rowid) as a, "
+                       f"row_number() over (order by {_WRITE_ORDER[table]}, rowid) as b "
+                       f"from {table}) where a <> b").fetchall()[0][0]
+
+
+def test_a_rebuild_writes_each_table_in_room_and_study_order(warehouse, tmp_path):
+    """A whole rebuild writes the derived tables in their write order (month, room, study), so
+    the audit's groupings by room and by study read neighbouring rows; before, a parallel join
+    wrote them in no order."""
+    db = tmp_path / "copy.duckdb"
+    shutil.copy(warehouse[0], db)
+    with connection(db) as con:
+        con.execute("delete from derived_state")   # as a warehouse of an earlier version
+        assert refresh_derived(con).mode == "full"
+        for table in _WRITE_ORDER:
+            (n,) = con.execute(f"select count(*) from {table}").fetchone()
+            assert n > 100, table
+            assert _out_of_order(con, table) == 0, table
+        # the check can fail: rows written the other way round are out of order
+        con.execute("create table reversed as select * from derived_audit_observation "
+                    "order by period desc, device_key desc")
+        (n_reversed,) = con.execute(
+            "select count(*) from (select row_number() over (order by rowid) as a, row_number() "
+            f"over (order by {_WRITE_ORDER['derived_audit_observation']}, rowid) as b "
+            "from reversed) where a <> b").fetchone()
+        assert n_reversed > 0
 
 
 def test_an_audit_below_the_kept_maps_floor_computes_the_missing_maps(warehouse, tmp_path):
