@@ -12,8 +12,10 @@ read-only connection, hands the frames to ``dashboards.pages.build_site`` and wr
 
 from __future__ import annotations
 
+import contextlib
 import datetime as dt
 import re
+from collections.abc import Iterator
 from pathlib import Path
 
 import duckdb
@@ -93,6 +95,71 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
     return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
+def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] | None = None
+          ) -> pd.DataFrame:
+    """The rows of the SELECT `text` as DuckDB's ``.df()`` gives them (the same dtypes and
+    values), built from its Arrow result where every column is of a kind converted here.
+
+    ``.df()`` makes a Python object of every text value before pandas packs it into Arrow
+    again: at 10M events the room medians (225k rows, 113 MiB) passed through a transient of
+    ~540 MiB and left ~350 MiB in the process; through Arrow ~310 and ~180, in half the CPU
+    time (measured, no other source). Integers and booleans with a NULL become pandas' nullable
+    kinds, a text column of NULLs only an object column of None, dates datetime64[us], as
+    ``.df()`` does; any other kind (decimals, intervals, lists, ...) is read by ``.df()``.
+    """
+    import pyarrow as pa
+
+    rel = con.sql(text, params=params or None)
+    table = rel.to_arrow_table()
+    columns = {}
+    for name, column in zip(table.column_names, table.columns, strict=True):
+        series = _arrow_series(column, pa)
+        if series is None or name in columns:
+            return con.execute(text, params or None).df()
+        columns[name] = series
+    del table
+    return pd.DataFrame(columns) if columns else con.execute(text, params or None).df()
+
+
+def _arrow_series(column, pa) -> pd.Series | None:
+    """One Arrow column as ``.df()`` would give it; None for a kind left to ``.df()``."""
+    kind = column.type
+    nulls = column.null_count
+    if pa.types.is_integer(kind):
+        if not nulls:
+            return column.to_pandas()
+        values = column.fill_null(0).to_numpy()
+        mask = column.is_null().to_numpy(zero_copy_only=False)
+        return pd.Series(pd.arrays.IntegerArray(values, mask))
+    if pa.types.is_boolean(kind):
+        values = column.fill_null(False).to_numpy(zero_copy_only=False)
+        if not nulls:
+            return pd.Series(values)
+        return pd.Series(pd.arrays.BooleanArray(values, column.is_null().to_numpy(zero_copy_only=False)))
+    if pa.types.is_floating(kind):
+        return column.to_pandas()
+    if pa.types.is_string(kind):
+        if nulls == len(column):
+            return pd.Series([None] * len(column), dtype=object)
+        # copied into buffers of their own size: DuckDB's Arrow buffers are larger than their
+        # rows (10M events: the frames held ~35 % more than .df()'s, measured, no other source)
+        compact = pa.chunked_array([pa.concat_arrays([*column.chunks, pa.array([], kind)])], kind)
+        series = compact.to_pandas()
+        return series if isinstance(series.dtype, pd.StringDtype) else None
+    if pa.types.is_date32(kind):
+        return column.cast(pa.timestamp("us")).to_pandas()
+    if pa.types.is_timestamp(kind) and kind.unit == "us" and kind.tz is None:
+        return column.to_pandas()
+    return None
+
+
+def _release(con: duckdb.DuckDBPyConnection, memory_limit: str) -> None:
+    """Hand the memory DuckDB's allocator keeps after a statement back to the system: setting
+    the memory bound (to the same value) flushes it. At 10M events the room medians' read left
+    ~120 MiB more in the process without it (measured, no other source)."""
+    con.execute(f"set memory_limit = '{memory_limit}'")
+
+
 def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None = None
                    ) -> tuple[SiteData, str, dt.date | None, dt.date | None, pd.DataFrame]:
     """Run every ``queries/dashboards`` SELECT; (frames, period label, first day, last day, sets).
@@ -102,8 +169,11 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None =
     """
 
     def q(name: str, **params: object) -> pd.DataFrame:
-        used = {k: v for k, v in params.items() if f"${k}" in sql(name)}
-        return con.execute(sql(name), used).df()
+        text = sql(name)
+        rows = frame(con, text, {k: v for k, v in params.items() if f"${k}" in text})
+        if memory_limit:
+            _release(con, memory_limit)
+        return rows
 
     if memory_limit:
         con.execute(f"set memory_limit = '{memory_limit}'")
@@ -137,11 +207,25 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     # populations (adult age) are the audit's own: read from its tables, never set here
     con.register("dash_exam_type", _exam_types())
     con.register("dash_concept", _concepts())
-    # the alerted studies' events first: turning its result into a frame is the build's largest
-    # transient, best met before the other frames are held (10M events: it set the peak RSS)
-    alert_events = q("dash_alert_events")
     devices = q("dash_devices")
     con.register("dash_device", devices)
+    # the SELECTs over the temporary study_dose and file counts first, while few frames are
+    # held (they group every study of the period within DuckDB's bound), then the temporary
+    # tables go; the long frames last (10M events: the build's peak RSS was the study_dose
+    # SELECTs over ~1000 MiB of frames)
+    small = {"overview": q("dash_overview", **params), "unmapped": q("dash_unmapped", **params),
+             "source_status": q("dash_source_status"), "files_not_loaded": q("dash_quarantined_files"),
+             "weight_share": q("dash_weight_share", **params),
+             "value_issues": q("dash_value_issues", **params),
+             "value_issue_rows": q("dash_value_issue_rows", **params),
+             "device_studies": q("dash_device_studies", **params)}
+    con.execute(sql("dash_drop_materialised"))
+    small.update(estimates=q("dash_estimates", **params), data_alerts=q("dash_data_alerts"),
+                 key_epochs=q("dash_key_epochs"), **_capture_frames(con, q),
+                 skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS))
+    # the alerted studies' events first of the long frames: turning its result into a frame is
+    # the largest transient, best met before the others are held
+    alert_events = q("dash_alert_events")
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     points = q("dash_funnel_points")
@@ -149,23 +233,15 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     drawn = q("dash_funnel_drawn", max_points=MAX_FUNNEL_POINTS)
     con.register("funnel_drawn", drawn)
     data = SiteData(
-        overview=q("dash_overview", **params), devices=devices,
+        devices=devices,
         room_medians=q("dash_room_medians"), network=q("dash_network"),
-        distribution=q("dash_distribution", **params), estimates=q("dash_estimates", **params),
+        distribution=q("dash_distribution", **params),
         monthly=q("dash_monthly"), drift=q("dash_drift"),
         funnel_sigma=sigma, funnel_points=points, funnel_limits=q("dash_funnel_limits"),
         funnel_drawn=drawn, funnel_cells=q("dash_funnel_cells"),
         site_summary=q("dash_site_summary"),
         alerts=q("dash_alerts"), alert_counts=q("dash_alert_counts"),
-        unmapped=q("dash_unmapped", **params), source_status=q("dash_source_status"),
-        files_not_loaded=q("dash_quarantined_files"), weight_share=q("dash_weight_share", **params),
-        value_issues=q("dash_value_issues", **params),
-        value_issue_rows=q("dash_value_issue_rows", **params),
-        data_alerts=q("dash_data_alerts"), key_epochs=q("dash_key_epochs"),
-        **_capture_frames(con, q),
-        skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS),
-        alert_events=alert_events,
-        device_studies=q("dash_device_studies", **params),
+        alert_events=alert_events, **small,
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
                  "funnel_drawn"):
@@ -330,19 +406,25 @@ def _copy_csv(con: duckdb.DuckDBPyConnection, path: Path, rows: pd.DataFrame) ->
         return False
     text = sql("dash_copy_csv").format(columns=", ".join(columns),
                                        path=str(path).replace("'", "''"))
-    con.register("csv_rows", rows)
+    import pyarrow as pa
+
+    # as Arrow: DuckDB's scan of a frame's text columns held ~180 MiB more for the room
+    # medians at 10M events (measured, no other source)
+    con.register("csv_rows", pa.Table.from_pandas(rows, preserve_index=False))
     try:
         con.execute(text)
     finally:
         con.unregister("csv_rows")
+        _release(con, CSV_MEMORY_LIMIT)
     return True
 
 
 def _csv_connection() -> duckdb.DuckDBPyConnection:
     """An in-memory DuckDB connection with the CSV cell macros (dash_csv_macros.sql)."""
     con = duckdb.connect()
-    con.execute("set threads to 2")
+    con.execute("set threads to 1")
     con.execute(f"set memory_limit = '{CSV_MEMORY_LIMIT}'")
+    con.execute("set allocator_background_threads = true")
     con.execute(sql("dash_csv_macros"))
     return con
 
@@ -406,24 +488,48 @@ def write_site(warehouse: Path, out: Path, *, generated_at: dt.datetime | None =
     pipeline.errors.WarehouseError
         The warehouse cannot be opened, or it has not been audited.
     """
+    warehouse, out = Path(warehouse), Path(out)
+    stamp = generated_at or dt.datetime.now(dt.UTC).replace(microsecond=0)
+    with _system_arrow_pool():
+        _write_site(warehouse, out, stamp)
+    return out / "index.html"
+
+
+@contextlib.contextmanager
+def _system_arrow_pool() -> Iterator[None]:
+    """Arrow's buffers (the frames' text columns, their splits per page) from the C library's
+    allocator for the build, which hands freed blocks back to the system; pyarrow's default pool
+    kept them: at 10M events the pages' build left ~70 MiB more (measured, no other source).
+    The previous default pool is set back afterwards."""
+    import pyarrow as pa
+
+    previous = pa.default_memory_pool()
+    pa.set_memory_pool(pa.system_memory_pool())
+    try:
+        yield
+    finally:
+        pa.set_memory_pool(previous)
+
+
+def _write_site(warehouse: Path, out: Path, stamp: dt.datetime) -> None:
     from pipeline import __version__
     from pipeline.warehouse.connection import connection
 
-    warehouse, out = Path(warehouse), Path(out)
-    stamp = generated_at or dt.datetime.now(dt.UTC).replace(microsecond=0)
     with connection(warehouse, read_only=True) as con:
         # DuckDB spills instead of growing with the warehouse (10M events: peak RSS 1949 MiB with
         # 1 GB, 1591 MiB with 512 MB, 1276 MiB with 256 MB; 1M events: 6.1 GiB with no bound)
         _check_audited(con, warehouse)
+        # the allocator hands freed memory back in the background, while the frames are read
+        con.execute("set allocator_background_threads = true")
         data, label, first, last, sets = read_site_data(con, memory_limit=DASHBOARD_MEMORY_LIMIT)
     context = Context(period=label, date_from=first, date_to=last, reference_sets=sets,
                       generated_at=stamp, version=f"{__version__} (plotly {plotly.__version__})")
     site = build_site(data, context)
+    del data   # the tables still hold the frames they write; each goes once written
     out.mkdir(parents=True, exist_ok=True)
     _write_text(out / PLOTLY_JS, get_plotlyjs())
     for name, html in site.pages.items():
         _write_text(out / name, html)
     with _csv_connection() as con:
-        for name, rows in site.tables.items():
-            _write_csv(out / f"{name}.csv", rows, con)
-    return out / "index.html"
+        for name in list(site.tables):
+            _write_csv(out / f"{name}.csv", site.tables.pop(name), con)

@@ -254,6 +254,7 @@ def build_distribution(frame: pd.DataFrame, *, title: str) -> go.Figure:
 
 _CHAR_PX = 7            # a generous mean width of a 12 px tick-label character (DejaVu Sans)
 _LINE_PX = 15           # one line of a 12 px tick label
+_JOIN = " · "           # between the lines of a room label written on one line
 _PLOT_PX = 900          # the plotting width at a 1280 px window, less the legend (measured)
 
 
@@ -275,6 +276,16 @@ def _room_label_axes(layout: dict, cells: tuple[dict, ...], traces: list[dict]) 
         angle, labels_px = 0, depth
     elif depth <= spacing * 0.5:                       # sin 30 degrees
         angle, labels_px = 30, widest * 0.5 + depth * 0.87
+    elif depth > max(spacing, _LINE_PX):
+        # upright labels of several lines are wider than a room's share of the panel (three
+        # lines: 45 px; 24 rooms in one of two panels: ~19 px) and overlap their neighbours: the
+        # lines of a label are written one after the other on one line, and the figure grows
+        # by the longer labels, so the plot keeps its height
+        for t in traces:
+            t["x"] = [label.replace("<br>", _JOIN) for label in t["x"]]
+        joined = _CHAR_PX * max((len(label) for t in traces for label in t["x"]), default=10)
+        layout["height"] += joined - widest
+        angle, labels_px = 90, joined
     else:
         angle, labels_px = 90, widest
     for cell in cells:

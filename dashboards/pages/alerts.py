@@ -109,8 +109,8 @@ def _skin_dose_section(maps: pd.DataFrame) -> Section:
     return Section("skin-dose", "Skin-dose maps of studies at the peak-skin-dose level", tuple(blocks))
 
 
-def alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
-    """alerts.html."""
+def alerts(data: SiteData, site_colours: dict[str, str], listing: pd.DataFrame | None = None) -> Page:
+    """alerts.html; `listing`: ``alert_rows(data.alerts)`` when the caller has it already."""
     counts_rows = rule_counts(data.alert_counts)
     blocks: list[Block] = []
     if not counts_rows.empty:
@@ -121,7 +121,7 @@ def alerts(data: SiteData, site_colours: dict[str, str]) -> Page:
     counts = Table("alerts-by-rule", "Alerts per rule and site", counts_rows,
                    (Column("rule_text", "Rule"), Column("site_label", "Site"), Column("n_alerts", "Alerts", "int"),
                     Column("n_studies", "Studies", "int")))
-    listing_rows = alert_rows(data.alerts)
+    listing_rows = alert_rows(data.alerts) if listing is None else listing
     listing = Table("alerts", "Every alert, patient follow-up first, then furthest beyond its threshold",
                     listing_rows, ALERT_COLUMNS, note="alert-list",
                     details=frozenset(detail_studies(listing_rows)))

@@ -84,8 +84,8 @@ def data_checks(data: SiteData, n_studies: int) -> Section:
     return Section("data-checks", "Data checks (review first)", tuple(blocks))
 
 
-def overview(data: SiteData, ctx: Context, drift: Table) -> Page:
-    """index.html."""
+def overview(data: SiteData, ctx: Context, drift: Table, listing: pd.DataFrame | None = None) -> Page:
+    """index.html; `listing`: ``alert_rows(data.alerts)`` when the caller has it already."""
     n_studies = first_int(data.overview, "n_studies")
     rm = data.room_medians
     above_rows = rm[rm["is_above_reference"].fillna(False).astype(bool)].sort_values(
@@ -98,7 +98,7 @@ def overview(data: SiteData, ctx: Context, drift: Table) -> Page:
                   Column("version", "Version"), Column("effective_date", "Effective", "date"),
                   Column("citation_title", "Source"), Column("is_verified", "Verified", "bool"),
                   Column("n_groups", "Groups compared", "int")))
-    listing = alert_rows(data.alerts)
+    listing = alert_rows(data.alerts) if listing is None else listing
     alerts = Table("overview-top-alerts", "The ten most urgent alerts (patient follow-up first)",
                    listing.head(10), ALERT_COLUMNS, note="top-alerts",
                    details=frozenset(detail_studies(listing)))

@@ -32,9 +32,10 @@ def reference_levels(data: SiteData, site_colours: dict[str, str]) -> Page:
         blocks: list[Block] = []
         keys = part[["quantity", "population"]].drop_duplicates().sort_values(
             ["population", "quantity"], kind="stable")
-        by_key = dict(iter(part.groupby(["quantity", "population"], sort=False)))
+        # each group's rows taken when drawn: one group's copy at a time, not the family's
+        positions = part.groupby(["quantity", "population"], sort=False).indices
         for q, pop in keys.itertuples(index=False):
-            rows = by_key[(q, pop)]
+            rows = part.take(positions[(q, pop)])
             shown, left_out = capped(rows, MAX_PLOT_ROWS, ["ratio_to_reference", "n"])
             n_ref = int(rows["reference_value"].notna().sum())
             caption = (f"{len(rows)} room groups; {n_ref} with a reference value. Dot: room median (colour: "

@@ -339,3 +339,35 @@ def test_figure_of_plain_dicts_keeps_the_layout_key_order():
     assert json.dumps(fig.to_dict()["layout"]) == json.dumps(layout)
     assert fig.layout.xaxis2.title.text == "Month" and fig.layout.yaxis.type == "log"
     assert fig.data[0].yaxis == "y2" and fig.data[0].marker.size == 3
+
+
+def _rooms(n_rooms: int) -> pd.DataFrame:
+    """Two panels (CTDIvol, DLP) of `n_rooms` rooms, adults and children."""
+    rows = []
+    for quantity, unit in (("ctdivol", "mGy"), ("dlp", "mGy.cm")):
+        for k in range(n_rooms):
+            for population in ("adult", "paediatric"):
+                rows.append({"quantity": quantity, "unit": unit, "phantom": None, "population": population,
+                             "site_label": "North Site", "room_label": f"CT-{k:02d}", "n": 40,
+                             "p05": 30.0, "p25": 40.0, "median": 45.0, "p75": 50.0, "p95": 60.0,
+                             "reference_value": None, "reference_set": None, "is_sample_adequate": True})
+    return pd.DataFrame(rows)
+
+
+def test_distribution_room_labels_of_a_crowded_panel_are_one_line_each():
+    few = figures.build_distribution(_rooms(3), title="t")
+    crowded = figures.build_distribution(_rooms(24), title="t")
+    # three rooms: room, site and counts on three lines, flat
+    assert few.layout.xaxis.tickangle == 0
+    assert [b.x[0] for b in few.data if isinstance(b, go.Box)][0] == "CT-00<br>North Site<br>n 40 / 40"
+    # 24 rooms in one of two panels: three upright lines (45 px) would overlap the next room's
+    # (~19 px apart): one line, and the figure grows by the longer labels
+    labels = {x for b in crowded.data if isinstance(b, go.Box) for x in b.x}
+    assert crowded.layout.xaxis.tickangle == 90 and crowded.layout.xaxis2.tickangle == 90
+    assert "CT-00 · North Site · n 40 / 40" in labels and not any("<br>" in x for x in labels)
+    assert len(labels) == 24
+    longest = max(map(len, labels))
+    assert crowded.layout.margin.b >= 7 * longest
+    # the plot keeps the height it had under upright three-line labels (margin 36 px + the
+    # widest line, "North Site")
+    assert crowded.layout.height - crowded.layout.margin.b == 380 + 12 * 24 + 60 - 36 - 7 * len("North Site")
