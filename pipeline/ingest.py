@@ -27,7 +27,7 @@ from .ingest_worker import FileOutcome, _init_worker, _ready, _work, process_fil
 from .models import as_row
 from .pseudonym import key_fingerprint, make_pseudonymiser
 from .sources.files import Candidate, iter_candidates
-from .warehouse.connection import connection
+from .warehouse.connection import connection, evict_cached_blocks
 from .warehouse.key_epoch import check_key_epoch
 from .warehouse.derived import RefreshResult, raw_state, refresh_derived
 from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
@@ -365,14 +365,8 @@ def _release_block_cache(con) -> None:
     DuckDB cannot evict makes it refuse the tiny limit after evicting what it can: that is fine
     here. The primary keys' indexes come back whole with the next batch's inserts (measured, same
     size)."""
-    (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
     con.execute("checkpoint")
-    try:
-        con.execute("set memory_limit = '1MB'")
-    except duckdb.OutOfMemoryException:
-        pass
-    finally:
-        con.execute(f"set memory_limit = '{limit}'")
+    evict_cached_blocks(con)
 
 
 def _release_free_memory() -> None:
