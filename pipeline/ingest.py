@@ -360,11 +360,10 @@ def _release_block_cache(con) -> None:
     bench/ingest_scale.py --studies 40000 --duckdb-memory), though the ingest reads back only
     a few. A checkpoint writes what is held in memory (appended rows, the primary keys' index
     changes) to the file, so that all of it can be evicted; a tiny memory limit then evicts every
-    unpinned block, and the limit is put back (0.02-0.04 s after a refresh at 20k studies; 0.1-1.8 s
-    before one at 40k, where the checkpoint writes the batches loaded since the last). A block
-    DuckDB cannot evict makes it refuse the tiny limit after evicting what it can: that is fine
-    here. The primary keys' indexes come back whole with the next batch's inserts (measured, same
-    size)."""
+    unpinned block, and the limit is put back (evict_cached_blocks: 0.02-0.04 s after a refresh at
+    20k studies; 0.1-1.8 s before one at 40k, where the checkpoint writes the batches loaded since
+    the last). The primary keys' indexes come back whole with the next batch's inserts
+    (measured, same size)."""
     con.execute("checkpoint")
     evict_cached_blocks(con)
 
