@@ -27,7 +27,7 @@ from .ingest_worker import FileOutcome, _init_worker, _ready, _work, process_fil
 from .models import as_row
 from .pseudonym import key_fingerprint, make_pseudonymiser
 from .sources.files import Candidate, iter_candidates
-from .warehouse.connection import connection
+from .warehouse.connection import connection, evict_cached_blocks
 from .warehouse.key_epoch import check_key_epoch
 from .warehouse.derived import RefreshResult, raw_state, refresh_derived
 from .warehouse.load import append_batch, ensure_schema, replace_exam_rules, replace_site_map
@@ -360,19 +360,12 @@ def _release_block_cache(con) -> None:
     bench/ingest_scale.py --studies 40000 --duckdb-memory), though the ingest reads back only
     a few. A checkpoint writes what is held in memory (appended rows, the primary keys' index
     changes) to the file, so that all of it can be evicted; a tiny memory limit then evicts every
-    unpinned block, and the limit is put back (0.02-0.04 s after a refresh at 20k studies; 0.1-1.8 s
-    before one at 40k, where the checkpoint writes the batches loaded since the last). A block
-    DuckDB cannot evict makes it refuse the tiny limit after evicting what it can: that is fine
-    here. The primary keys' indexes come back whole with the next batch's inserts (measured, same
-    size)."""
-    (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
+    unpinned block, and the limit is put back (evict_cached_blocks: 0.02-0.04 s after a refresh at
+    20k studies; 0.1-1.8 s before one at 40k, where the checkpoint writes the batches loaded since
+    the last). The primary keys' indexes come back whole with the next batch's inserts
+    (measured, same size)."""
     con.execute("checkpoint")
-    try:
-        con.execute("set memory_limit = '1MB'")
-    except duckdb.OutOfMemoryException:
-        pass
-    finally:
-        con.execute(f"set memory_limit = '{limit}'")
+    evict_cached_blocks(con)
 
 
 def _release_free_memory() -> None:

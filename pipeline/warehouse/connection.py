@@ -10,7 +10,7 @@ import duckdb
 
 from ..errors import WarehouseError
 
-__all__ = ["connection", "missing_warehouse_message"]
+__all__ = ["connection", "evict_cached_blocks", "missing_warehouse_message"]
 
 
 def missing_warehouse_message(path: Path) -> str:
@@ -53,3 +53,19 @@ def connection(db_path: Path | str, read_only: bool = False, *,
         yield con
     finally:
         con.close()
+
+
+def evict_cached_blocks(con: duckdb.DuckDBPyConnection) -> None:
+    """Let DuckDB drop the table blocks it keeps in memory after reading them. It keeps every
+    block it has read until its memory limit (80 % of RAM by default) is reached, so a whole
+    scan leaves the table's blocks behind, and they grow with the warehouse. A tiny memory limit
+    evicts every block not in use, then the limit is put back. A block DuckDB cannot evict (an
+    index with changes not yet checkpointed) makes it refuse the tiny limit after evicting what
+    it can: that is fine here. Never inside a transaction: there a refused limit aborts it."""
+    (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
+    try:
+        con.execute("set memory_limit = '1MB'")
+    except duckdb.OutOfMemoryException:
+        pass
+    finally:
+        con.execute(f"set memory_limit = '{limit}'")
