@@ -31,7 +31,7 @@ from enum import Enum
 import pyarrow as pa
 
 from .errors import ExtractError
-from .warehouse.tables import SCHEMAS
+from .warehouse.tables import GRAIN, SCHEMAS
 
 __all__ = ["EXTRACT_TABLES", "LAKE_RELATIONS", "MANIFEST_NAME", "PSEUDONYM_SCHEME",
            "SCHEMA_VERSION", "ExtractError", "ExtractTable", "KeyScope", "LakeRelation",
@@ -78,13 +78,12 @@ EXTRACT_TABLES: tuple[ExtractTable, ...] = (
     ExtractTable("dose_object", ("path", "sha256", "run_id"), ("sop_instance_uid",),
                  key=("sop_instance_uid",)),
     ExtractTable("ct_event", ("run_id",), ("event_uid", "sop_instance_uid", "series_instance_uid"),
-                 key=("event_uid", "sop_instance_uid")),
+                 key=GRAIN["ct_event"]),
     ExtractTable("projection_event", ("run_id",), ("event_uid", "sop_instance_uid"),
-                 key=("event_uid", "sop_instance_uid")),
-    ExtractTable("accumulated", ("run_id",), ("sop_instance_uid",),
-                 key=("sop_instance_uid", "plane")),
+                 key=GRAIN["projection_event"]),
+    ExtractTable("accumulated", ("run_id",), ("sop_instance_uid",), key=GRAIN["accumulated"]),
     ExtractTable("value_issue", ("run_id",), ("issue_id", "sop_instance_uid", "event_uid"),
-                 ("detail",), key=("issue_id",)),
+                 ("detail",), key=GRAIN["value_issue"]),
 )
 
 

@@ -9,20 +9,12 @@ import pyarrow.compute as pc
 from queries import apply_all, sql
 
 from .derived import refresh_derived
+from .tables import GRAIN
 
 __all__ = ["GRAIN", "LOAD_ORDER", "append_batch", "ensure_schema", "replace_exam_rules", "replace_site_map"]
 
 LOAD_ORDER = ("source_object", "dose_object", "device", "study", "ct_event", "projection_event",
               "accumulated", "value_issue")
-# The key of each raw table that has no primary key (queries/schema/raw_*.sql): the per-report
-# tables, whose random UIDs made an index that every batch's insert read nearly whole, so it stayed
-# in memory and grew with the warehouse. Their rows are new with their report (a SOP Instance UID
-# already loaded is a duplicate, never loaded again), so a batch cut to the first row of each key
-# keeps the grain. The other raw tables keep their primary key (insert or ignore).
-GRAIN = {"ct_event": ("event_uid", "sop_instance_uid"),
-         "projection_event": ("event_uid", "sop_instance_uid"),
-         "accumulated": ("sop_instance_uid", "plane"),
-         "value_issue": ("issue_id",)}
 
 
 def ensure_schema(con: duckdb.DuckDBPyConnection) -> list[str]:

@@ -10,7 +10,7 @@ import pyarrow as pa
 
 from ..models import Accumulated, CtEvent, DeviceInfo, ProjectionEvent, StudyInfo
 
-__all__ = ["SCHEMAS", "arrow_table", "schema_of"]
+__all__ = ["GRAIN", "SCHEMAS", "arrow_table", "schema_of"]
 
 _ARROW = {str: pa.string(), float: pa.float64(), int: pa.int64(), bool: pa.bool_(),
           dt.datetime: pa.timestamp("us"), dt.date: pa.date32(), dt.time: pa.time64("us")}
@@ -60,6 +60,18 @@ SCHEMAS: dict[str, pa.Schema] = {
         ("n_loaded", pa.int64()), ("n_duplicate", pa.int64()), ("n_not_dose", pa.int64()),
         ("n_quarantined", pa.int64()), ("n_unchanged", pa.int64())]),
 }
+
+# The key of each raw table that has no primary key (queries/schema/raw_*.sql): the per-report
+# tables, whose random UIDs made an index that every batch's insert read nearly whole, so it stayed
+# in memory and grew with the warehouse. Their rows are new with their report (a SOP Instance UID
+# already loaded is a duplicate, never loaded again), so a batch cut to the first row of each key
+# keeps the grain. The other raw tables keep their primary key (insert or ignore).
+# Read by the load (pipeline/warehouse/load.py) and by the network extracts' checks
+# (pipeline/network.py).
+GRAIN = {"ct_event": ("event_uid", "sop_instance_uid"),
+         "projection_event": ("event_uid", "sop_instance_uid"),
+         "accumulated": ("sop_instance_uid", "plane"),
+         "value_issue": ("issue_id",)}
 
 
 def arrow_table(name: str, rows: list[dict]) -> pa.Table:
