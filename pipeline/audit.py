@@ -299,11 +299,14 @@ _MATERIALISED = ("study_dose",)
 # DuckDB working memory of an audit run: beyond it, sorts, joins and the temporary tables above
 # spill to the temp directory beside the warehouse, so memory stays flat however much history
 # the warehouse holds (common practice, no source: well under half of a small 2-core, 4 GiB
-# machine's RAM leaves room for Python and the OS). 700 MB rather than 1 GB: DuckDB fills its
-# bound with cached blocks at 10M events, so the bound set the audit's peak (about 1300 MiB
-# against 850-970 at 1M); at 700 MB the peak was 986-1012 MiB at 10M and 862 at 1M, for about
-# 8 % more CPU (spilling), on bench/audit.py's warehouses (issue 14; measured, no other source).
-AUDIT_MEMORY_LIMIT = "700MB"
+# machine's RAM leaves room for Python and the OS). DuckDB fills its bound with cached blocks
+# at 10M events, so the bound sets the audit's peak there, and a smaller warehouse stays under
+# it: the peak RSS of run_audit (process with pandas, pyarrow and plotly loaded) was 1002 MiB at
+# 10M events against 689 at 1M with 700 MB (1.45x), 805 with 500 MB, 708 against 593 with
+# 400 MB (1.19x, flat within 25 %), for about 5-10 % more CPU (spilling); 500 MB ran out of
+# memory before skin_dose stopped sorting its 2 KB rows (bench/audit.py's warehouses, issue
+# 14; measured, no other source).
+AUDIT_MEMORY_LIMIT = "400MB"
 # Medians, quantiles, sorted lists and distinct counts hold their values in memory (DuckDB does
 # not spill these aggregate states), so the statements that group every observation of the
 # period per room (audit_medians, monthly_medians, the outlier rule of dose_alerts) run over
@@ -312,7 +315,7 @@ AUDIT_MEMORY_LIMIT = "700MB"
 # the row order are as before.
 # Each part also rescans what the statement reads (about 0.2 s per part at 1M events), so parts
 # are as large as fit: at 10M events (6.4M observations) one part ran out of a 1 GB limit,
-# 7 parts of 1M fitted; 4 parts of 2M fitted both 1 GB and 700 MB: see README (issue 14).
+# 7 parts of 1M fitted; 4 parts of 2M fitted 1 GB, 700 MB and 400 MB: see README (issue 14).
 # Measured, no other source.
 ROWS_PER_PART = 2_000_000
 

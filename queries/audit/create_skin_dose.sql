@@ -5,6 +5,9 @@
 -- uncertainty_note (typically within about +-40 %; clinical follow-up by the responsible physician)
 -- The model's results are kept per study in derived_skin_dose (computed when an ingest run touched
 -- the study); here they are joined with study_dose for the period's site and exam type.
+-- Not sorted: the factor and uncertainty texts make each row about 2 KB, and sorting them ran out
+-- of a 500 MB bound at 10M events (bench/audit.py's warehouse, issue 14; measured, no other
+-- source); the audit tables' row order is not part of their interface (read them with ORDER BY).
 create or replace table skin_dose as
 select
     s.study_key, s.patient_key, s.device_key, s.site, s.modality, s.exam_type, s.study_date,
@@ -14,7 +17,6 @@ from study_dose as s
 join derived_skin_dose as k using (study_key, device_key)
 where s.modality in ('RF', 'XA')
   and s.study_date >= $date_from and s.study_date < $date_to
-order by s.study_key, s.device_key
 
 -- columns:
 --   study_key: pseudonymous study key: keyed HMAC-SHA256 of the Study Instance UID (128 bits, hex)
