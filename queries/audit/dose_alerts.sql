@@ -9,7 +9,11 @@
 create or replace table dose_alerts as
 with
 studies as (
-    select * from study_dose where study_date >= $date_from and study_date < $date_to
+    -- only the columns read below: the CTE is materialised (read four times), and with every
+    -- column of study_dose (exam texts, descriptions) it spilled ~1 GB at 10M events
+    select study_key, patient_key, device_key, site, modality, exam_type, study_date,
+           patient_age_years, dose_rp_total_mgy, dap_total_gy_cm2, fluoro_time_total_s
+    from study_dose where study_date >= $date_from and study_date < $date_to
 ),
 rules as (
     select * from alert_rule_in_force
@@ -29,7 +33,8 @@ fluoro as (
 ct_acquisitions as (
     -- protocol family: brain perfusion and cardiac by the acquisition protocol text, else the
     -- body region of the exam type (unmapped or neck: the CTDIvol phantom decides)
-    select e.*, s.patient_key, s.site, s.exam_type, s.study_date, s.patient_age_years,
+    select e.study_key, e.device_key, e.event_uid, e.event_type, e.ctdivol_mgy, e.ctdi_phantom,
+           s.patient_key, s.site, s.exam_type, s.study_date, s.patient_age_years,
            case when lower(coalesce(e.acquisition_protocol, '')) like '%perfusion%' then 'brain_perfusion'
                 when regexp_matches(lower(coalesce(e.acquisition_protocol, '')),
                                     '(cardiac|coronary|ccta|heart)') then 'cardiac'
