@@ -215,13 +215,22 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None =
     With `memory_limit`, DuckDB's memory bound of the SELECTs, set here: the period's files, read
     first while no frame and no temporary table is held, run with FILES_MEMORY_LIMIT instead.
     """
+    from pipeline.warehouse.connection import evict_cached_blocks
 
-    def q(name: str, *, categorical: bool = False, **params: object) -> pd.DataFrame:
+    def q(name: str, *, categorical: bool = False, evict: bool = False, limit: str | None = None,
+          **params: object) -> pd.DataFrame:
+        """The frame of SELECT `name`; `categorical`: see ``frame``; with `evict`, the table
+        blocks DuckDB keeps cached after it are dropped (only once no temporary table is held:
+        those would be spilled); `limit`: DuckDB's bound of this SELECT instead of the build's."""
         text = sql(name)
+        if memory_limit and limit:
+            con.execute(f"set memory_limit = '{limit}'")
         rows = frame(con, text, {k: v for k, v in params.items() if f"${k}" in text},
                      categorical=categorical)
         if memory_limit:
             _release(con, memory_limit)
+            if evict:
+                evict_cached_blocks(con)
         return rows
 
     if memory_limit:
@@ -271,11 +280,13 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     con.execute(sql("dash_drop_materialised"))
     small.update(estimates=q("dash_estimates", **params), data_alerts=q("dash_data_alerts"),
                  key_epochs=q("dash_key_epochs"), **_capture_frames(con, q),
-                 skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS))
-    # the alerted studies' events first of the long frames: turning its result into a frame is
-    # the largest transient, best met before the others are held. The long frames hold their
-    # repeated labels as categoricals (frame(categorical=True)).
-    alert_events = q("dash_alert_events", categorical=True)
+                 skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS, evict=True))
+    # The long frames hold their repeated labels as categoricals (frame(categorical=True)), and
+    # DuckDB's cached blocks go after each. The room medians first: turning its result into a
+    # frame is the largest transient (10M events: ~300 MiB), best met before the others are
+    # held; then the alerted studies' events (with EVENTS_MEMORY_LIMIT)
+    room_medians = q("dash_room_medians", categorical=True, evict=True)
+    alert_events = q("dash_alert_events", categorical=True, evict=True, limit=EVENTS_MEMORY_LIMIT)
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     # the funnel's groups as text while the SELECTs below read them (registered: a categorical
@@ -291,11 +302,11 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     points = _categorical_frame(points)
     data = SiteData(
         devices=devices,
-        room_medians=q("dash_room_medians", categorical=True), network=q("dash_network"),
-        distribution=q("dash_distribution", categorical=True, **params),
-        monthly=q("dash_monthly", categorical=True), drift=q("dash_drift"),
+        room_medians=room_medians, network=q("dash_network"),
+        distribution=q("dash_distribution", categorical=True, evict=True, **params),
+        monthly=q("dash_monthly", categorical=True, evict=True), drift=q("dash_drift"),
         funnel_sigma=sigma, funnel_points=points, funnel_drawn=drawn, **funnel,
-        alerts=q("dash_alerts", categorical=True), alert_counts=q("dash_alert_counts"),
+        alerts=q("dash_alerts", categorical=True, evict=True), alert_counts=q("dash_alert_counts"),
         alert_events=alert_events, **small,
     )
     for name in ("dash_exam_type", "dash_concept", "dash_device"):
@@ -414,10 +425,17 @@ CSV_CHUNK_ROWS = 50_000
 DASHBOARD_MEMORY_LIMIT = "256MB"
 # DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
 # site build: it groups every dose object's studies and joins every input file, and nothing else
-# is held yet, so the process stays below the build's later peak (the frames). 10M events: 3.0
-# CPU-s with 512 MB against 5.2 with 256 MB, where it spilled; a bare process peaked at 599 MiB
-# (measured, no other source).
-FILES_MEMORY_LIMIT = "512MB"
+# is held yet. 10M events, the loaded files counted as they are joined: 1.8 CPU-s and a peak RSS
+# of 752 MiB with 512 MB, 3.1 and 628 with 384 MB, 4.8 and 509 with 256 MB, where it spills
+# (before: 3.1 CPU-s and 760 MiB with 512 MB; measured, no other source).
+FILES_MEMORY_LIMIT = "384MB"
+
+
+# DuckDB working memory of the alerted studies' events (dash_alert_events.sql): it scans every
+# event for the alerted studies, and its table blocks stay cached up to the bound (10M events:
+# ~400 MiB more at its peak with 256 MB, ~250 with 128 MB, the same CPU time; measured, no other
+# source)
+EVENTS_MEMORY_LIMIT = "128MB"
 
 
 # DuckDB working memory of the connection that writes the CSVs (it streams the rows of a frame)
