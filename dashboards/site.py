@@ -111,11 +111,23 @@ def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] |
     pandas categorical instead (categories sorted as the texts sort, NULL as a missing value):
     the long frames' labels (site, exam type, quantity, unit, scope note, ...) repeat on every
     row, most of their memory at 10M events (see ``_categorical``).
+
+    The result is fetched in batches, DuckDB's allocator flushed after each (``_release``,
+    through a cursor: the connection's own statement would end the fetch): the memory of the
+    sorted rows it has handed over goes back to the system before the next batch comes (10M
+    events, the room medians: ~50 MiB less at the read's peak; measured, no other source).
     """
     import pyarrow as pa
 
-    rel = con.sql(text, params=params or None)
-    table = rel.to_arrow_table()
+    reader = con.sql(text, params=params or None).to_arrow_reader(_FETCH_ROWS)
+    with con.cursor() as flush:
+        (limit,), = flush.execute("select current_setting('memory_limit')").fetchall()
+        batches = []
+        for batch in reader:
+            batches.append(batch)
+            _release(flush, limit)
+    table = pa.Table.from_batches(batches, schema=reader.schema)
+    del batches, reader
     columns = {}
     for name, column in zip(table.column_names, table.columns, strict=True):
         series = _arrow_series(column, pa, categorical)
@@ -124,6 +136,10 @@ def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] |
         columns[name] = series
     del table
     return pd.DataFrame(columns) if columns else con.execute(text, params or None).df()
+
+
+# rows per Arrow batch of a frame's read (DuckDB's default for a whole Arrow table)
+_FETCH_ROWS = 131_072
 
 
 def _arrow_series(column, pa, categorical: bool = False) -> pd.Series | None:
