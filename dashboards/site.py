@@ -487,7 +487,7 @@ def _csv_sql_columns(rows: pd.DataFrame) -> list[str] | None:
                 return None
             # a categorical reaches DuckDB as Arrow's dictionary of texts: read as its texts
             columns.append(f"dash_csv_text({name}) as {name}")
-        else:   # nullable numbers, categories, ...: csv_text
+        else:   # nullable numbers, categories of other values, ...: csv_text
             return None
     return columns
 
