@@ -298,11 +298,14 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
                  key_epochs=q("dash_key_epochs"), **_capture_frames(con, q),
                  skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS, evict=True))
     # The long frames hold their repeated labels as categoricals (frame(categorical=True)), and
-    # DuckDB's cached blocks go after each. The room medians first: turning its result into a
-    # frame is the largest transient (10M events: ~300 MiB), best met before the others are
-    # held; then the alerted studies' events (with EVENTS_MEMORY_LIMIT)
+    # DuckDB's cached blocks go after each. The largest transients first, before the others are
+    # held (10M events, above the read's start: the room medians ~300 MiB, the monthly medians
+    # ~250, the alerted studies' events ~250 with SCAN_MEMORY_LIMIT; the write_site peak moved
+    # from the monthly medians, read late, to the period's files: 634-712 -> 621-642 MiB in
+    # three runs each; measured, no other source)
     room_medians = q("dash_room_medians", categorical=True, evict=True)
-    alert_events = q("dash_alert_events", categorical=True, evict=True, limit=EVENTS_MEMORY_LIMIT)
+    monthly = q("dash_monthly", categorical=True, evict=True)
+    alert_events = q("dash_alert_events", categorical=True, evict=True, limit=SCAN_MEMORY_LIMIT)
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
     # the funnel's groups as text while the SELECTs below read them (registered: a categorical
@@ -319,8 +322,9 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     data = SiteData(
         devices=devices,
         room_medians=room_medians, network=q("dash_network"),
-        distribution=q("dash_distribution", categorical=True, evict=True, **params),
-        monthly=q("dash_monthly", categorical=True, evict=True), drift=q("dash_drift"),
+        distribution=q("dash_distribution", categorical=True, evict=True,
+                       limit=SCAN_MEMORY_LIMIT, **params),
+        monthly=monthly, drift=q("dash_drift"),
         funnel_sigma=sigma, funnel_points=points, funnel_drawn=drawn, **funnel,
         alerts=q("dash_alerts", categorical=True, evict=True), alert_counts=q("dash_alert_counts"),
         alert_events=alert_events, **small,
@@ -447,11 +451,12 @@ DASHBOARD_MEMORY_LIMIT = "256MB"
 FILES_MEMORY_LIMIT = "384MB"
 
 
-# DuckDB working memory of the alerted studies' events (dash_alert_events.sql): it scans every
-# event for the alerted studies, and its table blocks stay cached up to the bound (10M events:
-# ~400 MiB more at its peak with 256 MB, ~250 with 128 MB, the same CPU time; measured, no other
-# source)
-EVENTS_MEMORY_LIMIT = "128MB"
+# DuckDB working memory of the long SELECTs that need less than DASHBOARD_MEMORY_LIMIT: the
+# alerted studies' events (dash_alert_events.sql scans every event for them, and the table blocks
+# it reads stay cached up to the bound) and the distributions. 10M events: the events' read ~400
+# MiB above its start at its peak with 256 MB, ~250 with 128 MB; the distributions' ~200 and
+# ~160; the same CPU time (measured, no other source). The room medians run out of 128 MB.
+SCAN_MEMORY_LIMIT = "128MB"
 
 
 # DuckDB working memory of the connection that writes the CSVs (it streams the rows of a frame)
