@@ -95,8 +95,8 @@ def _capture_frames(con: duckdb.DuckDBPyConnection, q) -> dict[str, pd.DataFrame
     return {"capture": q("dash_capture_completeness"), "capture_missing": q("dash_capture_missing")}
 
 
-def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] | None = None
-          ) -> pd.DataFrame:
+def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] | None = None,
+          *, categorical: bool = False) -> pd.DataFrame:
     """The rows of the SELECT `text` as DuckDB's ``.df()`` gives them (the same dtypes and
     values), built from its Arrow result where every column is of a kind converted here.
 
@@ -106,14 +106,31 @@ def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] |
     time (measured, no other source). Integers and booleans with a NULL become pandas' nullable
     kinds, a text column of NULLs only an object column of None, dates datetime64[us], as
     ``.df()`` does; any other kind (decimals, intervals, lists, ...) is read by ``.df()``.
+
+    With `categorical`, a text column with at most one distinct value per two rows is held as a
+    pandas categorical instead (categories sorted as the texts sort, NULL as a missing value):
+    the long frames' labels (site, exam type, quantity, unit, scope note, ...) repeat on every
+    row, most of their memory at 10M events (see ``_categorical``).
+
+    The result is fetched in batches, DuckDB's allocator flushed after each (``_release``,
+    through a cursor: the connection's own statement would end the fetch): the memory of the
+    sorted rows it has handed over goes back to the system before the next batch comes (10M
+    events, the room medians: ~50 MiB less at the read's peak; measured, no other source).
     """
     import pyarrow as pa
 
-    rel = con.sql(text, params=params or None)
-    table = rel.to_arrow_table()
+    reader = con.sql(text, params=params or None).to_arrow_reader(_FETCH_ROWS)
+    with con.cursor() as flush:
+        (limit,), = flush.execute("select current_setting('memory_limit')").fetchall()
+        batches = []
+        for batch in reader:
+            batches.append(batch)
+            _release(flush, limit)
+    table = pa.Table.from_batches(batches, schema=reader.schema)
+    del batches, reader
     columns = {}
     for name, column in zip(table.column_names, table.columns, strict=True):
-        series = _arrow_series(column, pa)
+        series = _arrow_series(column, pa, categorical)
         if series is None or name in columns:
             return con.execute(text, params or None).df()
         columns[name] = series
@@ -121,8 +138,13 @@ def frame(con: duckdb.DuckDBPyConnection, text: str, params: dict[str, object] |
     return pd.DataFrame(columns) if columns else con.execute(text, params or None).df()
 
 
-def _arrow_series(column, pa) -> pd.Series | None:
-    """One Arrow column as ``.df()`` would give it; None for a kind left to ``.df()``."""
+# rows per Arrow batch of a frame's read (DuckDB's default for a whole Arrow table)
+_FETCH_ROWS = 131_072
+
+
+def _arrow_series(column, pa, categorical: bool = False) -> pd.Series | None:
+    """One Arrow column as ``.df()`` would give it (a text column of few distinct values as a
+    categorical with `categorical`); None for a kind left to ``.df()``."""
     kind = column.type
     nulls = column.null_count
     if pa.types.is_integer(kind):
@@ -141,6 +163,8 @@ def _arrow_series(column, pa) -> pd.Series | None:
     if pa.types.is_string(kind):
         if nulls == len(column):
             return pd.Series([None] * len(column), dtype=object)
+        if categorical and (series := _categorical(column, pa)) is not None:
+            return series
         # copied into buffers of their own size: DuckDB's Arrow buffers are larger than their
         # rows (10M events: the frames held ~35 % more than .df()'s, measured, no other source)
         compact = pa.chunked_array([pa.concat_arrays([*column.chunks, pa.array([], kind)])], kind)
@@ -151,6 +175,46 @@ def _arrow_series(column, pa) -> pd.Series | None:
     if pa.types.is_timestamp(kind) and kind.unit == "us" and kind.tz is None:
         return column.to_pandas()
     return None
+
+
+def _categorical(column, pa) -> pd.Series | None:
+    """A text column (Arrow) as a pandas categorical whose categories are its distinct texts in
+    the order pandas sorts them (Python's order of strings: by code point, as Arrow sorts UTF-8
+    bytes), NULL as a missing value; None when it has more than one distinct text per two rows.
+
+    Sorting, grouping, comparing and the values read out (``tolist``, ``to_dict``, iteration:
+    Python strings, NaN for NULL) are those of the text column; the consumers (pages, figures,
+    CSV writers) count observed categories only (``value_counts`` counts every category). At
+    10M events the six long frames took ~430 MiB as text columns (measured, no other source).
+    """
+    import pyarrow.compute as pc
+
+    encoded = column.dictionary_encode().unify_dictionaries().combine_chunks()
+    texts = encoded.dictionary
+    if 2 * len(texts) > len(column):
+        return None
+    order = pc.sort_indices(texts).to_numpy()
+    rank = np.empty(len(order), dtype=np.int32)
+    rank[order] = np.arange(len(order), dtype=np.int32)
+    codes = rank[encoded.indices.fill_null(0).to_numpy(zero_copy_only=False)]
+    if column.null_count:
+        codes[encoded.indices.is_null().to_numpy(zero_copy_only=False)] = -1
+    categories = pd.Index(texts.take(pa.array(order)).to_pylist(), dtype="str")
+    return pd.Series(pd.Categorical.from_codes(codes, dtype=pd.CategoricalDtype(categories)))
+
+
+def _categorical_frame(rows: pd.DataFrame) -> pd.DataFrame:
+    """`rows` with each text column that ``frame(categorical=True)`` would hold as a categorical
+    turned into one (the same categories and codes)."""
+    import pyarrow as pa
+
+    out = rows.copy(deep=False)
+    for column, dtype in rows.dtypes.items():
+        if isinstance(dtype, pd.StringDtype) and rows[column].notna().any():
+            series = _categorical(pa.chunked_array([pa.array(rows[column])]), pa)
+            if series is not None:
+                out[column] = series.set_axis(rows.index)
+    return out
 
 
 def _release(con: duckdb.DuckDBPyConnection, memory_limit: str) -> None:
@@ -167,12 +231,22 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None =
     With `memory_limit`, DuckDB's memory bound of the SELECTs, set here: the period's files, read
     first while no frame and no temporary table is held, run with FILES_MEMORY_LIMIT instead.
     """
+    from pipeline.warehouse.connection import evict_cached_blocks
 
-    def q(name: str, **params: object) -> pd.DataFrame:
+    def q(name: str, *, categorical: bool = False, evict: bool = False, limit: str | None = None,
+          **params: object) -> pd.DataFrame:
+        """The frame of SELECT `name`; `categorical`: see ``frame``; with `evict`, the table
+        blocks DuckDB keeps cached after it are dropped (only once no temporary table is held:
+        those would be spilled); `limit`: DuckDB's bound of this SELECT instead of the build's."""
         text = sql(name)
-        rows = frame(con, text, {k: v for k, v in params.items() if f"${k}" in text})
+        if memory_limit and limit:
+            con.execute(f"set memory_limit = '{limit}'")
+        rows = frame(con, text, {k: v for k, v in params.items() if f"${k}" in text},
+                     categorical=categorical)
         if memory_limit:
             _release(con, memory_limit)
+            if evict:
+                evict_cached_blocks(con)
         return rows
 
     if memory_limit:
@@ -222,29 +296,40 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     con.execute(sql("dash_drop_materialised"))
     small.update(estimates=q("dash_estimates", **params), data_alerts=q("dash_data_alerts"),
                  key_epochs=q("dash_key_epochs"), **_capture_frames(con, q),
-                 skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS))
-    # the alerted studies' events first of the long frames: turning its result into a frame is
-    # the largest transient, best met before the others are held
-    alert_events = q("dash_alert_events")
+                 skin_dose_maps=q("dash_skin_dose_maps", max_maps=MAX_SKIN_MAPS, evict=True))
+    # The long frames hold their repeated labels as categoricals (frame(categorical=True)), and
+    # DuckDB's cached blocks go after each. The largest transients first, before the others are
+    # held (10M events, above the read's start: the room medians ~300 MiB, the monthly medians
+    # ~250, the alerted studies' events ~250 with SCAN_MEMORY_LIMIT; the write_site peak moved
+    # from the monthly medians, read late, to the period's files: 634-712 -> 621-642 MiB in
+    # three runs each; measured, no other source)
+    room_medians = q("dash_room_medians", categorical=True, evict=True)
+    monthly = q("dash_monthly", categorical=True, evict=True)
+    alert_events = q("dash_alert_events", categorical=True, evict=True, limit=SCAN_MEMORY_LIMIT)
     sigma = q("dash_funnel_sigma")
     con.register("funnel_sigma", sigma)
+    # the funnel's groups as text while the SELECTs below read them (registered: a categorical
+    # would reach DuckDB as an ENUM), then as categoricals like the other long frames
     points = q("dash_funnel_points")
     con.register("funnel_point", points)
     drawn = q("dash_funnel_drawn", max_points=MAX_FUNNEL_POINTS)
     con.register("funnel_drawn", drawn)
+    funnel = {"funnel_limits": q("dash_funnel_limits"), "funnel_cells": q("dash_funnel_cells"),
+              "site_summary": q("dash_site_summary")}
+    for name in ("funnel_sigma", "funnel_point", "funnel_drawn"):
+        con.unregister(name)
+    points = _categorical_frame(points)
     data = SiteData(
         devices=devices,
-        room_medians=q("dash_room_medians"), network=q("dash_network"),
-        distribution=q("dash_distribution", **params),
-        monthly=q("dash_monthly"), drift=q("dash_drift"),
-        funnel_sigma=sigma, funnel_points=points, funnel_limits=q("dash_funnel_limits"),
-        funnel_drawn=drawn, funnel_cells=q("dash_funnel_cells"),
-        site_summary=q("dash_site_summary"),
-        alerts=q("dash_alerts"), alert_counts=q("dash_alert_counts"),
+        room_medians=room_medians, network=q("dash_network"),
+        distribution=q("dash_distribution", categorical=True, evict=True,
+                       limit=SCAN_MEMORY_LIMIT, **params),
+        monthly=monthly, drift=q("dash_drift"),
+        funnel_sigma=sigma, funnel_points=points, funnel_drawn=drawn, **funnel,
+        alerts=q("dash_alerts", categorical=True, evict=True), alert_counts=q("dash_alert_counts"),
         alert_events=alert_events, **small,
     )
-    for name in ("dash_exam_type", "dash_concept", "dash_device", "funnel_sigma", "funnel_point",
-                 "funnel_drawn"):
+    for name in ("dash_exam_type", "dash_concept", "dash_device"):
         con.unregister(name)
     return data, label, first, last, q("dash_reference_sets")
 
@@ -295,15 +380,21 @@ def _csv_columns(rows: pd.DataFrame) -> list[tuple[list, bool]] | None:
             columns.append((["" if v != v else "%.12g" % v for v in values.tolist()], True))
         elif isinstance(dtype, np.dtype) and dtype.kind in "iub":   # never NULL; str() as the writer
             columns.append((list(map(str, values.tolist())), True))
-        elif isinstance(dtype, pd.StringDtype) or dtype == object:
+        elif isinstance(dtype, pd.StringDtype) or dtype == object or _text_categories(dtype):
             cells = values.astype(object).tolist()
             missing = values.isna().to_numpy()
             if missing.any():
                 cells = ["" if m else v for v, m in zip(cells, missing.tolist(), strict=True)]
-            columns.append((cells, isinstance(dtype, pd.StringDtype)))
+            columns.append((cells, dtype != object))
         else:
             return None
     return columns
+
+
+def _text_categories(dtype) -> bool:
+    """A categorical of texts (``frame(categorical=True)``): written as its texts."""
+    return isinstance(dtype, pd.CategoricalDtype) and isinstance(dtype.categories.dtype,
+                                                                   pd.StringDtype)
 
 
 # characters that make csv.writer (excel dialect, lineterminator "\n") quote a field
@@ -354,10 +445,18 @@ CSV_CHUNK_ROWS = 50_000
 DASHBOARD_MEMORY_LIMIT = "256MB"
 # DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
 # site build: it groups every dose object's studies and joins every input file, and nothing else
-# is held yet, so the process stays below the build's later peak (the frames). 10M events: 3.0
-# CPU-s with 512 MB against 5.2 with 256 MB, where it spilled; a bare process peaked at 599 MiB
-# (measured, no other source).
-FILES_MEMORY_LIMIT = "512MB"
+# is held yet. 10M events, the loaded files counted as they are joined: 1.8 CPU-s and a peak RSS
+# of 752 MiB with 512 MB, 3.1 and 628 with 384 MB, 4.8 and 509 with 256 MB, where it spills
+# (before: 3.1 CPU-s and 760 MiB with 512 MB; measured, no other source).
+FILES_MEMORY_LIMIT = "384MB"
+
+
+# DuckDB working memory of the long SELECTs that need less than DASHBOARD_MEMORY_LIMIT: the
+# alerted studies' events (dash_alert_events.sql scans every event for them, and the table blocks
+# it reads stay cached up to the bound) and the distributions. 10M events: the events' read ~400
+# MiB above its start at its peak with 256 MB, ~250 with 128 MB; the distributions' ~200 and
+# ~160; the same CPU time (measured, no other source). The room medians run out of 128 MB.
+SCAN_MEMORY_LIMIT = "128MB"
 
 
 # DuckDB working memory of the connection that writes the CSVs (it streams the rows of a frame)
@@ -382,16 +481,18 @@ def _csv_sql_columns(rows: pd.DataFrame) -> list[str] | None:
             columns.append(f"dash_csv_bool({name}) as {name}")
         elif isinstance(dtype, np.dtype) and dtype.kind in "iu":
             columns.append(name)
-        elif isinstance(dtype, pd.StringDtype) or dtype == object:
+        elif isinstance(dtype, pd.StringDtype) or dtype == object or _text_categories(dtype):
             kind = "string" if dtype != object else pd.api.types.infer_dtype(rows[column],
                                                                              skipna=True)
             if kind == "empty":   # every value NULL (None or NaN): empty fields
                 columns.append(f"null::varchar as {name}")
                 continue
-            if kind != "string" or rows[column].str.contains("\r", regex=False, na=False).any():
+            texts = rows[column] if dtype != "category" else dtype.categories.to_series()
+            if kind != "string" or texts.str.contains("\r", regex=False, na=False).any():
                 return None
+            # a categorical reaches DuckDB as Arrow's dictionary of texts: read as its texts
             columns.append(f"dash_csv_text({name}) as {name}")
-        else:   # nullable numbers, categories, ...: csv_text
+        else:   # nullable numbers, categories of other values, ...: csv_text
             return None
     return columns
 

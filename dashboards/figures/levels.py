@@ -100,6 +100,7 @@ def build_reference_comparison(frame: pd.DataFrame, *, site_colours: Mapping[str
                            + "<br>n %{customdata[0]} (%{customdata[3]})<extra>" + site + "</extra>"),
         ))
     by_use = rows["reference_set"].dropna().value_counts()
+    by_use = by_use[by_use > 0]   # a categorical column counts every category, seen or not
     for k, ref_set in enumerate(sorted(by_use.index, key=lambda v: (-int(by_use[v]), str(v)))):
         sel = [i for i, v in enumerate(col["reference_set"]) if v == ref_set]
         symbol, colour = _REFERENCE_SET_MARKS[k % len(_REFERENCE_SET_MARKS)]

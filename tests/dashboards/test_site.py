@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import json
 from markupsafe import escape  # the escaping Jinja2 applies
@@ -571,9 +572,13 @@ def test_csv_written_by_duckdb_is_csv_text(tmp_path):
     }).astype({"note": object, "latest_note": object})
     carriage = rows.assign(note=rows["note"].replace("x,y", "x\ry"))
     nullable = rows.assign(n=pd.array([1, None, 3, 4, 5, 6, 7], dtype="Int64"))
+    # labels held as a categorical (the long frames' repeated labels): written as their texts
+    categorical = rows.assign(site_label=rows["site_label"].astype("category"))
+    assert categorical["site_label"].cat.categories.dtype == "str"
     frames = {"plain": (rows, True), "empty": (rows.iloc[:0], True),
               "two": (rows[["n", "flag"]], True), "carriage": (carriage, False),
-              "lone": (rows[["site_label"]], False), "nullable": (nullable, False)}
+              "lone": (rows[["site_label"]], False), "nullable": (nullable, False),
+              "categorical": (categorical, True)}
     with site_module._csv_connection() as con:
         for name, (frame, by_duckdb) in frames.items():
             path, pieces = tmp_path / f"{name}.csv", tmp_path / f"{name}.pieces.csv"
@@ -582,6 +587,7 @@ def test_csv_written_by_duckdb_is_csv_text(tmp_path):
             assert path.read_bytes() == pieces.read_bytes(), name
             stamps = frame.drop(columns=[c for c in frame if c == "started_at"])
             assert (site_module._csv_sql_columns(stamps) is not None) == by_duckdb, name
+    assert (tmp_path / "categorical.csv").read_bytes() == (tmp_path / "plain.csv").read_bytes()
     text = (tmp_path / "plain.csv").read_text(encoding="utf-8")
     assert ",1234567.89123," in text and ",0.3," in text and ",1e-07," in text and ",-0," in text
     assert "\nroom # 2," in text and '\n"North, ""A""",' in text and ",2026-11-30 10:07:11\n" in text
@@ -620,3 +626,36 @@ def test_every_figure_is_handed_to_the_drawing_script_once(site):
         if divs:
             assert html.index('src="plotly.min.js"') < html.index("window.kermaPlot") < html.index(divs[0])
             assert "The figures are drawn after the page opens" in html, name
+
+
+def _as_text(rows: pd.DataFrame) -> pd.DataFrame:
+    """`rows` with every categorical column turned back into text (pandas' "str")."""
+    out = rows.copy()
+    for column, dtype in rows.dtypes.items():
+        if isinstance(dtype, pd.CategoricalDtype):
+            out[column] = rows[column].astype("str")
+    return out
+
+
+def test_site_from_categorical_frames_is_the_site_from_text_frames(marts):
+    """The long frames hold their repeated labels as categoricals (memory at 10M events): every
+    page and every CSV built from them must be character for character what the same frames as
+    text give (groups of observed labels only, labels sorted as text, NULL as before)."""
+    data, label, first, last, sets = marts
+    ctx = model.Context(period=label, date_from=first, date_to=last, reference_sets=sets,
+                        generated_at=GENERATED_AT)
+    frames = {f.name: getattr(data, f.name) for f in dataclasses.fields(data)
+              if isinstance(getattr(data, f.name), pd.DataFrame)}
+    categorical = {name for name, rows in frames.items()
+                   if any(isinstance(d, pd.CategoricalDtype) for d in rows.dtypes)}
+    assert categorical == {"room_medians", "distribution", "monthly", "funnel_points", "alerts",
+                           "alert_events"}
+    text = dataclasses.replace(data, **{name: _as_text(frames[name]) for name in categorical})
+    assert not any(isinstance(d, pd.CategoricalDtype) for d in text.room_medians.dtypes)
+    got, want = pages.build_site(data, ctx), pages.build_site(text, ctx)
+    assert got.pages.keys() == want.pages.keys()
+    for name, html in want.pages.items():
+        assert got.pages[name] == html, name
+    assert got.tables.keys() == want.tables.keys()
+    for name, rows in want.tables.items():
+        assert site_module.csv_text(got.tables[name]) == site_module.csv_text(rows), name

@@ -6,6 +6,7 @@ import duckdb
 import pandas as pd
 import pytest
 
+from dashboards import site
 from dashboards.site import frame
 
 # every kind of column the dashboard SELECTs return, with and without NULLs, a column of NULLs
@@ -35,3 +36,32 @@ def test_frame_is_what_df_gives(select):
     want = con.execute(select, params).df()
     pd.testing.assert_frame_equal(got, want, check_exact=True)
     assert list(got.columns) == list(want.columns)
+
+
+# labels repeated over many rows (NULL, an empty text, accents, case, a comma), one text per row,
+# and a text column of NULLs only; more rows than one Arrow batch of the read
+_LABELS = """
+select ['b', 'a', null, 'B', 'é', '', 'a, b', 'z'][1 + (i % 8)::int] as label,
+       'uid-' || i as uid, null::varchar as none, i as n
+from range(200000) t(i)
+"""
+
+
+def test_frame_holds_repeated_labels_as_categoricals_that_read_as_the_texts():
+    """frame(categorical=True): a text column of at most one distinct value per two rows is a
+    categorical whose categories are sorted as pandas sorts the texts; its values, sort order
+    and groups are those of the text column; other columns are as frame() gives them."""
+    con = duckdb.connect()
+    got, want = frame(con, _LABELS, categorical=True), frame(con, _LABELS)
+    assert isinstance(got["label"].dtype, pd.CategoricalDtype)
+    assert list(got["label"].cat.categories) == sorted(want["label"].dropna().unique())
+    assert got["label"].tolist()[:16] == want["label"].tolist()[:16]   # NaN for NULL, both
+    assert got["label"].isna().sum() == want["label"].isna().sum() == 25000
+    order = ["label", "n"]
+    assert (got.sort_values(order)["n"].tolist() == want.sort_values(order)["n"].tolist())
+    assert (got.groupby("label")["n"].sum().to_dict() == want.groupby("label")["n"].sum().to_dict())
+    pd.testing.assert_frame_equal(got.drop(columns="label"), want.drop(columns="label"),
+                                  check_exact=True)
+    pd.testing.assert_series_equal(got["label"].astype("str"), want["label"])
+    # the same categoricals made from the frame of text (the funnel points, read as text first)
+    pd.testing.assert_frame_equal(site._categorical_frame(want), got, check_exact=True)
