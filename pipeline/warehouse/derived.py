@@ -193,6 +193,7 @@ def refresh_derived(con: duckdb.DuckDBPyConnection, studies: Iterable[str] | Non
 
     started = time.perf_counter()
     now = (raw_state(con), definitions_digest(), exam_rules_state(con))
+    evict_cached_blocks(con)   # the raw state's scan of the raw tables' keys (_incremental)
     stored = _stored(con)
     if stored == now:
         return RefreshResult("none", 0, time.perf_counter() - started, now[0])
@@ -269,18 +270,31 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
     finally:
         con.unregister("incoming_refresh_scope")
     con.execute(sql("refresh_scope_expand"))
+    # The steps before the transaction each scan whole columns (the raw state's keys, the event
+    # ids above, the derived tables' and raw tables' study_key below). DuckDB keeps every block
+    # it reads, so the blocks of each are let go (evict_cached_blocks) before the next: let go
+    # only once before the transaction, they added up with the warehouse within each refresh
+    # (its table blocks at most 4 MiB at 3.6k files, 67 MiB at 86k of a 100k-study run;
+    # bench/ingest_scale.py --duckdb-memory, measured, no other source).
+    evict_cached_blocks(con)
     ((n,),) = con.execute("select count(*) from refresh_scope").fetchall()
     catalog = _catalog(con)
     # The derived tables holding rows of the scope: each is scanned whole (its study_key column)
     # here, before the transaction, and only those are deleted from in it; nothing else writes
-    # between. The blocks those scans, the raw state and the scope's expansion above read are
-    # then let go (evict_cached_blocks): DuckDB keeps every block it reads, and inside the
-    # transaction they added up with the warehouse (the deletes' scans held 35 MiB at 100k
-    # studies; measured, no other source).
-    held = {table for table in _scope_deletes(rules_changed)
-            if con.execute(sql("refresh_scope_held").format(table=table)).fetchall()[0][0]}
-    evict_cached_blocks(con)
+    # between. Inside the transaction the blocks such scans read added up with the warehouse
+    # (the deletes' scans held 35 MiB at 100k studies; measured, no other source).
+    held = set()
+    for table in _scope_deletes(rules_changed):
+        if con.execute(sql("refresh_scope_held").format(table=table)).fetchall()[0][0]:
+            held.add(table)
+        evict_cached_blocks(con)
     try:
+        # the row ids of the scope's raw rows, found here for the same reason (a whole scan of
+        # each raw table's study_key column), copied by row id in the transaction
+        # (refresh_scope_rows.sql, refresh_shadow.sql)
+        for table in _SCOPED_RAW:
+            con.execute(sql("refresh_scope_rows").format(table=table, catalog=catalog))
+            evict_cached_blocks(con)
         with _transaction(con):
             with _shadowed(con, _SCOPED_RAW, "refresh_shadow", catalog=catalog):
                 for table, calc in DERIVED_TABLES:
@@ -304,6 +318,8 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
                 _skin(con, all_studies=False)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
+        for table in _SCOPED_RAW:
+            con.execute(f"drop table if exists temp.main.refresh_rows_{table}")
         for table, _ in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
             con.execute(f"drop table if exists temp.main.refresh_new_{table}")
     return n
