@@ -22,7 +22,9 @@ process then (duckdb_memory() by tag, and pragma database_size) beside that proc
 memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
 during (VmHWM, reset before it) and after it, to tell what grows; with --statements too, each
 statement the refresh runs by its CPU time and the process's resident memory at its peak during it
-and after it (VmHWM reset before each).
+and after it (VmHWM reset before each). Each refresh and each checkpoint (block-cache release)
+also shows the most DuckDB held during it, by tag (polled every 20 ms from a second cursor).
+Before the summary, the warehouse file's size and its largest tables' rows and row groups.
 """
 
 from __future__ import annotations
