@@ -22,7 +22,9 @@ process then (duckdb_memory() by tag, and pragma database_size) beside that proc
 memory, and each refresh of the derived tables by the ingest process's memory before, at its peak
 during (VmHWM, reset before it) and after it, to tell what grows; with --statements too, each
 statement the refresh runs by its CPU time and the process's resident memory at its peak during it
-and after it (VmHWM reset before each).
+and after it (VmHWM reset before each). Each refresh and each checkpoint (block-cache release)
+also shows the most DuckDB held during it, by tag (polled every 20 ms from a second cursor).
+Before the summary, the warehouse file's size and its largest tables' rows and row groups.
 """
 
 from __future__ import annotations
@@ -163,6 +165,42 @@ def _duckdb_total_mib(con) -> float:
     return total / 2**20
 
 
+class _Sampler:
+    """DuckDB's memory by tag, polled every 20 ms from a second cursor of the ingest's connection
+    while a step runs (a checkpoint, a refresh): the highest total seen and its tags, to tell the
+    memory DuckDB accounts for from what it does not (its allocations outside the buffer
+    manager, glibc's and jemalloc's kept pages)."""
+
+    def __init__(self, con):
+        self._cursor = con.cursor()
+        self._stop = threading.Event()
+        self._thread = None
+        self.top: dict[str, float] = {}
+
+    def __enter__(self):
+        self._stop.clear()
+        self.top = {}
+
+        def poll():
+            while not self._stop.wait(0.02):
+                tags = {t: b / 2**20 for t, b in self._cursor.execute(
+                    "select tag, memory_usage_bytes from duckdb_memory()").fetchall()}
+                if sum(tags.values()) > sum(self.top.values()):
+                    self.top = tags
+        self._thread = threading.Thread(target=poll, daemon=True)
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc):
+        self._stop.set()
+        self._thread.join()
+
+    def __str__(self) -> str:
+        parts = " ".join(f"{t.lower()} {v:.0f}" for t, v in sorted(self.top.items(),
+                                                                  key=lambda kv: -kv[1]) if v >= 1)
+        return f"DuckDB at most {sum(self.top.values()):.0f} MiB during it ({parts})"
+
+
 class _Watched:
     """A connection whose `execute` prints each statement's CPU time and the process's resident
     memory at its peak during it and after it (the refresh's statements, one line each)."""
@@ -184,6 +222,24 @@ class _Watched:
               f"{before:.0f} -> peak {_own_mib('VmHWM'):.0f} -> {_own_mib():.0f} MiB: "
               f"{first[:90]}", flush=True)
         return result
+
+
+def _storage(db: Path) -> str:
+    """The warehouse file's size and the row groups of its largest tables (rows, row groups):
+    how the ingest's checkpoints laid the tables out."""
+    import duckdb
+
+    with duckdb.connect(str(db), read_only=True) as con:
+        (size,), = con.execute("select database_size from pragma_database_size()").fetchall()
+        tables = [r[0] for r in con.execute(
+            "select table_name from duckdb_tables() order by estimated_size desc limit 6").fetchall()]
+        parts = []
+        for table in tables:
+            (rows, groups), = con.execute(
+                f"select count(*), (select count(distinct row_group_id) "
+                f"from pragma_storage_info('{table}')) from {table}").fetchall()
+            parts.append(f"{table} {rows} rows in {groups} row groups")
+    return f"warehouse file {size}; " + ", ".join(parts)
 
 
 def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool = False,
@@ -239,18 +295,25 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
         ingest_module._load_chunk = sampled
         refresh = ingest_module.refresh_derived
 
+        sampler: list[_Sampler] = []   # made with the first refresh or release (its connection)
+
         def watched(con, *args, **kwargs):
             loading = _own_mib("VmHWM")   # the peak since the last refresh (or release)
             before, duckdb_before = _own_mib(), _duckdb_total_mib(con)
             with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
                 f.write("5")
             cpu = time.process_time()
-            result = refresh(_Watched(con, str(done[0])) if statements else con, *args, **kwargs)
+            if not sampler:
+                sampler.append(_Sampler(con))
+            with sampler[0]:
+                result = refresh(_Watched(con, str(done[0])) if statements else con, *args,
+                                 **kwargs)
             print(f"DUCKDB refresh (CPU {time.process_time() - cpu:.1f} s) at {done[0]} files ({result!r}): ingest process RSS "
                   f"{before:.0f} MiB before, peak {_own_mib('VmHWM'):.0f} during, "
                   f"{_own_mib():.0f} after (peak while loading before it {loading:.0f}); "
                   f"DuckDB {duckdb_before:.0f} -> "
-                  f"{_duckdb_total_mib(con):.0f} MiB; {_malloc_mib()}; {_mappings_mib()}",
+                  f"{_duckdb_total_mib(con):.0f} MiB ({sampler[0]}); {_malloc_mib()}; "
+                  f"{_mappings_mib()}",
                   flush=True)
             return result
 
@@ -261,12 +324,15 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
             started = time.perf_counter()
             with open("/proc/self/clear_refs", "w") as f:   # VmHWM := VmRSS (Linux)
                 f.write("5")
-            release(con)
+            if not sampler:
+                sampler.append(_Sampler(con))
+            with sampler[0]:
+                release(con)
             peak = _own_mib("VmHWM")
             with open("/proc/self/clear_refs", "w") as f:   # the loading that follows from here
                 f.write("5")
             print(f"DUCKDB   block cache released in {time.perf_counter() - started:.2f} s "
-                  f"(peak during it {peak:.0f} MiB): "
+                  f"(peak during it {peak:.0f} MiB; {sampler[0]}): "
                   f"{_duckdb_memory(con)[7:]}", flush=True)
 
         if release is not None:
@@ -283,6 +349,7 @@ def child(corpus: Path, db: Path, duckdb_memory: bool = False, statements: bool 
         print(f"DUCKDB peak since the last refresh began (it, the run's end, the connection's "
               f"close): {_own_mib('VmHWM'):.0f} MiB, now {_own_mib():.0f} MiB", flush=True)
     t = os.times()   # the workers have ended (the pool is shut down): their CPU is in children_*
+    print("STORAGE " + _storage(db), flush=True)
     print("RESULT " + json.dumps({"seen": summary.seen, "loaded": summary.by_status["loaded"],
                                   "derived": repr(summary.derived),
                                   "cpu_s": {"ingest": round(t.user + t.system, 1),
@@ -337,6 +404,8 @@ def main() -> None:
             peak_so_far = max((s[1] for s in samples), default=float("nan"))
             print(f"   {int(line.split()[1]):7d} files in {time.perf_counter() - started:5.0f} s: "
                   f"RSS {now:5.0f} MiB, peak so far {peak_so_far:5.0f} MiB", flush=True)
+        elif line.startswith("STORAGE "):
+            print(f"   {line[8:]}", end="", flush=True)
         elif line.startswith("DUCKDB "):
             print(f"     {line[7:]}", end="", flush=True)
     proc.wait()

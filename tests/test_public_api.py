@@ -56,7 +56,8 @@ def test_issue_16_exports():
     from pipeline.warehouse import connection, key_epoch
 
     assert {"check_key_epoch", "current_key_epoch"} == set(key_epoch.__all__)
-    assert {"connection", "evict_cached_blocks", "missing_warehouse_message"} == set(connection.__all__)
+    assert {"connection", "evict_cached_blocks", "missing_warehouse_message",
+            "scan_bounded"} == set(connection.__all__)
     assert "key_fingerprint" in pseudonym.__all__ and "KeyMismatchError" in errors.__all__
     assert issubclass(errors.KeyMismatchError, errors.ConfigError)   # stops with exit 2
     assert {"NO_DATA", "print_data_checks"} <= set(audit.__all__)

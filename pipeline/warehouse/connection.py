@@ -10,7 +10,7 @@ import duckdb
 
 from ..errors import WarehouseError
 
-__all__ = ["connection", "evict_cached_blocks", "missing_warehouse_message"]
+__all__ = ["connection", "evict_cached_blocks", "missing_warehouse_message", "scan_bounded"]
 
 
 def missing_warehouse_message(path: Path) -> str:
@@ -67,5 +67,28 @@ def evict_cached_blocks(con: duckdb.DuckDBPyConnection) -> None:
         con.execute("set memory_limit = '1MB'")
     except duckdb.OutOfMemoryException:
         pass
+    finally:
+        con.execute(f"set memory_limit = '{limit}'")
+
+
+def scan_bounded(con: duckdb.DuckDBPyConnection, query: str, headroom_mib: int = 64) -> list[tuple]:
+    """The rows of `query`, run with DuckDB's memory bounded to what it holds now (once the blocks
+    it caches are let go) plus `headroom_mib`: for a statement that scans whole columns of large
+    tables but holds little (sums, an existence test, a filter by a small set), so that the blocks
+    it reads are evicted as it goes instead of being kept until the limit (80 % of RAM), which
+    made them grow with the warehouse. Should DuckDB need more than the bound, the statement is
+    run again under the usual limit (the same rows, only more memory). Never inside a
+    transaction (evict_cached_blocks; a refused limit there aborts it)."""
+    (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
+    evict_cached_blocks(con)
+    (held,), = con.execute("select coalesce(sum(memory_usage_bytes), 0) from duckdb_memory()"
+                           ).fetchall()
+    try:
+        con.execute(f"set memory_limit = '{int(held / 2**20) + headroom_mib}MiB'")
+        try:
+            return con.execute(query).fetchall()
+        except duckdb.OutOfMemoryException:
+            con.execute(f"set memory_limit = '{limit}'")
+            return con.execute(query).fetchall()
     finally:
         con.execute(f"set memory_limit = '{limit}'")

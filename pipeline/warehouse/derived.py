@@ -43,7 +43,7 @@ import pyarrow as pa
 from queries import ROOT as QUERIES
 from queries import apply_all, sql
 
-from .connection import evict_cached_blocks
+from .connection import evict_cached_blocks, scan_bounded
 
 __all__ = ["DERIVED_TABLES", "MAP_FLOOR_MGY", "MATCH_TABLES", "OBJECT_TABLES", "RefreshResult",
            "definitions_digest", "exam_rules_state", "raw_state", "refresh_derived",
@@ -141,8 +141,9 @@ def definitions_digest() -> str:
 
 
 def raw_state(con: duckdb.DuckDBPyConnection) -> str:
-    """Digest of the raw rows the derived tables are computed from (queries/refresh/)."""
-    return con.execute(sql("derived_raw_state")).fetchall()[0][0]
+    """Digest of the raw rows the derived tables are computed from (queries/refresh/): a scan of
+    the raw tables' keys whole, under a bound on DuckDB's memory (scan_bounded)."""
+    return scan_bounded(con, sql("derived_raw_state"))[0][0]
 
 
 def exam_rules_state(con: duckdb.DuckDBPyConnection) -> str:
@@ -268,19 +269,28 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
         con.execute("insert into refresh_scope select distinct study_key from incoming_refresh_scope")
     finally:
         con.unregister("incoming_refresh_scope")
-    con.execute(sql("refresh_scope_expand"))
+    # The steps before the transaction each scan whole columns (the raw state's keys, the event
+    # ids here, the derived tables' and raw tables' study_key below), under a bound on DuckDB's
+    # memory (scan_bounded), so that the blocks they read are let go as they go: let go only
+    # once before the transaction, they added up with the warehouse within each refresh (its
+    # table blocks at most 4 MiB at 3.6k files, 67 MiB at 86k and 132 MiB at 120k of a
+    # 100k-study run; bench/ingest_scale.py --duckdb-memory, measured, no other source).
+    scan_bounded(con, sql("refresh_scope_expand"))
     ((n,),) = con.execute("select count(*) from refresh_scope").fetchall()
     catalog = _catalog(con)
     # The derived tables holding rows of the scope: each is scanned whole (its study_key column)
     # here, before the transaction, and only those are deleted from in it; nothing else writes
-    # between. The blocks those scans, the raw state and the scope's expansion above read are
-    # then let go (evict_cached_blocks): DuckDB keeps every block it reads, and inside the
-    # transaction they added up with the warehouse (the deletes' scans held 35 MiB at 100k
-    # studies; measured, no other source).
+    # between. Inside the transaction the blocks such scans read added up with the warehouse
+    # (the deletes' scans held 35 MiB at 100k studies; measured, no other source).
     held = {table for table in _scope_deletes(rules_changed)
-            if con.execute(sql("refresh_scope_held").format(table=table)).fetchall()[0][0]}
-    evict_cached_blocks(con)
+            if scan_bounded(con, sql("refresh_scope_held").format(table=table))[0][0]}
     try:
+        # the row ids of the scope's raw rows, found here for the same reason (a whole scan of
+        # each raw table's study_key column), copied by row id in the transaction
+        # (refresh_scope_rows.sql, refresh_shadow.sql)
+        for table in _SCOPED_RAW:
+            scan_bounded(con, sql("refresh_scope_rows").format(table=table, catalog=catalog))
+        evict_cached_blocks(con)
         with _transaction(con):
             with _shadowed(con, _SCOPED_RAW, "refresh_shadow", catalog=catalog):
                 for table, calc in DERIVED_TABLES:
@@ -304,6 +314,8 @@ def _incremental(con, keys: list[str], *, rules_changed: bool = False) -> int:
                 _skin(con, all_studies=False)
     finally:
         con.execute("drop table if exists temp.main.refresh_scope")
+        for table in _SCOPED_RAW:
+            con.execute(f"drop table if exists temp.main.refresh_rows_{table}")
         for table, _ in (*DERIVED_TABLES, *OBJECT_TABLES, *MATCH_TABLES):
             con.execute(f"drop table if exists temp.main.refresh_new_{table}")
     return n

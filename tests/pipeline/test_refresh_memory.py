@@ -9,10 +9,37 @@ import duckdb
 
 import pipeline.ingest as ingest_module
 from pipeline.ingest import ingest
-from pipeline.warehouse.connection import evict_cached_blocks
+from pipeline.warehouse.connection import evict_cached_blocks, scan_bounded
 from pipeline.warehouse.derived import DERIVED_TABLES, MATCH_TABLES, OBJECT_TABLES
 from tests.helpers import KEY
 from tests.pipeline.test_derived_tables import _ORDER, _assert_same, _frame
+
+
+def _row_groups(con, table: str) -> int:
+    (n,), = con.execute(f"select count(distinct row_group_id) from pragma_storage_info('{table}')"
+                        ).fetchall()
+    return n
+
+
+def test_the_ingests_checkpoints_write_appended_rows_without_merging_row_groups(tmp_path):
+    """DuckDB 2.0 starts a row group for the rows appended after each checkpoint and merges them
+    as it checkpoints (rewriting up to three whole row groups in memory each time one fills: a
+    peak that grows with the table); the ingest's connection turns the merges off, so each
+    checkpoint writes only the rows appended since the last one (pipeline/ingest.py)."""
+    counts = {}
+    for merges in (True, False):
+        with duckdb.connect(str(tmp_path / f"merges-{merges}.duckdb")) as con:
+            if not merges:
+                ingest_module._without_row_group_merges(con)
+            con.execute("create table t (i bigint, s varchar)")
+            for k in range(8):
+                con.execute(f"insert into t select range, md5(range::varchar) "
+                            f"from range({k * 1000}, {(k + 1) * 1000})")
+                con.execute("checkpoint")
+            counts[merges] = _row_groups(con, "t")
+            assert con.execute("select count(*), sum(i) from t").fetchall() == [(8000, 31996000)]
+    assert counts[False] == 8      # one per checkpoint, as appended
+    assert counts[True] < 8        # DuckDB's own default merges them
 
 
 def _duckdb_mib(con) -> float:
@@ -37,6 +64,28 @@ def test_evicting_cached_blocks_lets_go_of_a_whole_scan_and_keeps_the_limit(tmp_
         (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
         assert limit.endswith(" GiB") and 2.4 < float(limit.split()[0]) < 2.8
         assert con.execute("select count(*) from t").fetchall() == [(400000,)]
+
+
+def test_a_bounded_scan_lets_go_of_the_blocks_it_reads_and_keeps_the_limit(tmp_path):
+    """scan_bounded: the same rows as the plain statement, keeping no more blocks of its whole
+    scan than the bound (the plain statement keeps them all: about 10 MiB here); and when the
+    bound is too small for the statement, it runs again under the usual limit, same rows."""
+    db = tmp_path / "blocks.duckdb"
+    with duckdb.connect(str(db)) as con:
+        con.execute("create table t as select range as i, md5(range::varchar) as s from range(400000)")
+    query = "select sum(hash(s)), count(*) from t"
+    with duckdb.connect(str(db)) as con:
+        con.execute("set memory_limit = '3GB'")
+        evict_cached_blocks(con)
+        plain = con.execute(query).fetchall()
+        assert _duckdb_mib(con) > 5          # DuckDB kept the blocks it read
+        evict_cached_blocks(con)
+        assert scan_bounded(con, query, headroom_mib=4) == plain
+        assert _duckdb_mib(con) < 5          # read under the bound: let go as it went
+        distinct = con.execute("select count(distinct s) from t").fetchall()
+        assert scan_bounded(con, "select count(distinct s) from t", headroom_mib=1) == distinct
+        (limit,), = con.execute("select current_setting('memory_limit')").fetchall()
+        assert limit.endswith(" GiB") and 2.4 < float(limit.split()[0]) < 2.8
 
 
 class _Recorded:
