@@ -197,7 +197,6 @@ def _first_cause(exc: BaseException) -> str:
 def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress, pool,
          pseudonymise, run_id, started, summary, parse=None, new_key_epoch=False) -> None:
     with connection(warehouse, create=True) as con:
-        _without_row_group_merges(con)
         ensure_schema(con)
         if pool is not None:  # start the workers now: their imports overlap the set-up below
             for _ in range(workers):
@@ -373,23 +372,6 @@ def _release_block_cache(con) -> None:
     (measured, same size)."""
     con.execute("checkpoint")
     evict_cached_blocks(con)
-
-
-def _without_row_group_merges(con) -> None:
-    """No merging of row groups in this connection's checkpoints (DuckDB's `max_vacuum_tasks`
-    = 0). DuckDB 2.0 starts a new row group for the rows appended after each checkpoint and
-    merges small row groups as it checkpoints (a binary-counter pattern: 2, 4, 8... appends),
-    and each time a row group fills, the last up to three are rewritten whole: the checkpoint
-    then holds them uncompressed in memory. That grows with the table until it has three row
-    groups of 122 880 rows, which the widest tables (events, ~50 columns) reach only at about
-    100k studies: a synthetic 31-column table appended 2 500 rows and checkpointed at a time
-    peaked at +150 MiB as its first row group filled, +300 at the second, +445 at the third and
-    after, against +0-9 MiB with no merges (measured, no other source; the ingest's checkpoints
-    at 100k studies: +150-250 MiB). Without merges a checkpoint writes only the rows appended
-    since the last one, so its memory does not depend on the warehouse's size; the cost is
-    row groups of one refresh interval's rows each (bench/ingest_scale.py prints them) instead
-    of full ones. Set for the ingest's connection only: any other writer merges as usual."""
-    con.execute("set max_vacuum_tasks = 0")
 
 
 def _release_free_memory() -> None:

@@ -15,33 +15,6 @@ from tests.helpers import KEY
 from tests.pipeline.test_derived_tables import _ORDER, _assert_same, _frame
 
 
-def _row_groups(con, table: str) -> int:
-    (n,), = con.execute(f"select count(distinct row_group_id) from pragma_storage_info('{table}')"
-                        ).fetchall()
-    return n
-
-
-def test_the_ingests_checkpoints_write_appended_rows_without_merging_row_groups(tmp_path):
-    """DuckDB 2.0 starts a row group for the rows appended after each checkpoint and merges them
-    as it checkpoints (rewriting up to three whole row groups in memory each time one fills: a
-    peak that grows with the table); the ingest's connection turns the merges off, so each
-    checkpoint writes only the rows appended since the last one (pipeline/ingest.py)."""
-    counts = {}
-    for merges in (True, False):
-        with duckdb.connect(str(tmp_path / f"merges-{merges}.duckdb")) as con:
-            if not merges:
-                ingest_module._without_row_group_merges(con)
-            con.execute("create table t (i bigint, s varchar)")
-            for k in range(8):
-                con.execute(f"insert into t select range, md5(range::varchar) "
-                            f"from range({k * 1000}, {(k + 1) * 1000})")
-                con.execute("checkpoint")
-            counts[merges] = _row_groups(con, "t")
-            assert con.execute("select count(*), sum(i) from t").fetchall() == [(8000, 31996000)]
-    assert counts[False] == 8      # one per checkpoint, as appended
-    assert counts[True] < 8        # DuckDB's own default merges them
-
-
 def _duckdb_mib(con) -> float:
     (total,), = con.execute("select sum(memory_usage_bytes) / 2^20 from duckdb_memory()").fetchall()
     return total
