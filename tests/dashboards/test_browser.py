@@ -46,9 +46,7 @@ def reports(browser, site):
         report = browser.open(site / name)
         shots = {"viewport": browser.screenshot()}
         if report.plots:
-            first = report.plots[0]
-            shots["plot"] = browser.screenshot(clip={"x": first["x"], "y": first["y"],
-                                                     "width": first["width"], "height": first["height"]})
+            shots["plot"] = browser.screenshot_element(report.plots[0]["id"])
         out[name] = (report, shots)
     return out
 
