@@ -226,15 +226,10 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
                 if in_flight is not None:
                     _load_chunk(con, in_flight, run_id, summary, progress, touched)
                     if len(touched) >= REFRESH_EVERY_STUDIES:
-                        # checkpoint first (and let the blocks go): else the refresh's commit
-                        # checkpoints the batches' rows, reading the primary keys' indexes whole
-                        # on top of the refresh's memory (_release_block_cache)
-                        _release_block_cache(con)
-                        refreshes.append(refresh_derived(con, touched, since=since))
+                        refreshes.append(_released_refresh(con, touched, since))
                         # the state the refresh read (it writes only the derived tables): not
                         # read again, a whole scan of the raw tables' keys
                         since, touched = refreshes[-1].raw_state, set()
-                        _release_block_cache(con)
                         _release_free_memory()
                 in_flight = dispatched
             if in_flight is not None:
@@ -254,10 +249,19 @@ def _run(paths, warehouse, key, workers, sites, exam_rules, batch_size, progress
         # refresh nor the checkpoint as the connection closes holds the batches' blocks and
         # indexes on top of its own memory (at 100k studies the run's end peaked at 591 MiB
         # in the ingest process without them: bench/ingest_scale.py, measured, no other source)
-        _release_block_cache(con)
-        refreshes.append(refresh_derived(con, touched, since=since))
+        refreshes.append(_released_refresh(con, touched, since))
         summary.derived = _combined(refreshes)
-        _release_block_cache(con)
+
+
+def _released_refresh(con, touched: set[str], since: str) -> RefreshResult:
+    """refresh_derived of the studies `touched` since the raw state `since`, with a checkpoint
+    (and the blocks let go) before it and after it: else the refresh's commit checkpoints the
+    batches' rows, reading the primary keys' indexes whole on top of the refresh's memory, and
+    the blocks it read stay for the next batches (_release_block_cache)."""
+    _release_block_cache(con)
+    result = refresh_derived(con, touched, since=since)
+    _release_block_cache(con)
+    return result
 
 
 def _combined(refreshes: list[RefreshResult]) -> RefreshResult:
