@@ -15,7 +15,10 @@ acquisitions as (
     from irradiation_event as e
     join study_dose as s using (study_key, device_key)
     where s.study_date >= $date_from and s.study_date < $date_to
-      and e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+      and (e.event_type in ('spiral', 'sequenced', 'stationary') or e.event_type is null)
+        -- no event type: a classic CT image's header has no Acquisition Type; a localizer
+        -- is typed constant_angle from its Image Type (pipeline/parsing/headers.py)
+        and e.ctdivol_mgy is not null
 ),
 per_study as (
     select study_key, device_key, sum(ctdivol_mgy) as total_mgy, bool_and(has_range) as all_ranges

@@ -45,7 +45,10 @@ ct_acquisitions as (
     from irradiation_event as e
     join studies as s using (study_key, device_key)
     left join exam_stratum_basis as x on x.exam_type = s.exam_type
-    where e.event_type in ('spiral', 'sequenced', 'stationary') and e.ctdivol_mgy is not null
+    where (e.event_type in ('spiral', 'sequenced', 'stationary') or e.event_type is null)
+      -- no event type: a classic CT image's header has no Acquisition Type; a localizer
+      -- is typed constant_angle from its Image Type (pipeline/parsing/headers.py)
+      and e.ctdivol_mgy is not null
 ),
 ct_events as (
     -- CT dose-check notification values apply per scan sequence (acquisition), by population

@@ -135,3 +135,32 @@ def test_the_devices_own_dose_check_value_is_read_and_applied(tmp_path):
                            "from dose_alerts where family = 'device_dose_check'").fetchall()
     assert rows == [("device_dose_check_notification", "device_dose_check", "protocol_review",
                      45.0, 30.0, True)]
+
+
+def test_ct_images_without_a_dose_report_are_checked_against_the_notification_values(tmp_path):
+    """A CT unit that sends only images: classic CT images carry CTDIvol (0018,9345) but no
+    Acquisition Type, so their acquisitions have no event type. They are still scans and are
+    checked (AAPM 2011 adult head notification value 80 mGy, from memory); a localizer, typed
+    constant angle from its Image Type (PS3.3 C.8.2.1.1.1), is not. Written by DCMTK (dcmcjpeg,
+    JPEG lossless), as such units' archives hold them."""
+    from tests.pipeline.test_real_world_ingest import ct_image, dcmtk, part10
+
+    inbox = tmp_path / "in"
+    inbox.mkdir()
+    study = "2.25.31400000000000000000000000000000777"
+    images = [ct_image(n, ctdivol="95", z=5.0 * n, study_uid=study, event_uid=f"{study}.1")
+              for n in (1, 2, 3)]
+    images.append(ct_image(1, ctdivol="120", series=2, study_uid=study, event_uid=f"{study}.2",
+                           image_type=("ORIGINAL", "PRIMARY", "LOCALIZER")))
+    for k, ds in enumerate(images):
+        ds.SOPInstanceUID = f"{study}.{k + 10}"
+        raw = tmp_path / f"{k}.dcm"
+        raw.write_bytes(part10(ds))
+        dcmtk("dcmcjpeg", "+e1", str(raw), str(inbox / f"{k}.dcm"))
+    db = tmp_path / "w.duckdb"
+    ingest([inbox], db, KEY)
+    run_audit(db, **PERIOD)
+    with duckdb.connect(str(db), read_only=True) as con:
+        rows = con.execute("select rule, value, threshold from dose_alerts "
+                           "where family = 'ct_dose_check_notification'").fetchall()
+    assert rows == [("aapm_ct_notification_adult_head", 95.0, 80.0)]
