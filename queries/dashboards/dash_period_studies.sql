@@ -1,0 +1,35 @@
+-- grain: one row per device x modality x flags (weight, height, age recorded) counting the
+-- studies of the period that have one row of study_dose (study_key NULL, n_studies the count),
+-- and one row per row of study_dose in the period of a study with rows on several devices
+-- (study_key set, n_studies 1; rare: the SELECTs that read these group them by study). A
+-- temporary table read by the SELECTs that count the period's studies (overview, weight share,
+-- device studies), dropped by dash_drop_materialised.sql. Read from the kept totals
+-- (derived_study_total: study_dose's rows, whose study date, device, modality and patient
+-- values are theirs), grouped by study once to find the studies of several rows, not copied
+-- whole and grouped by study in each SELECT; the exam types are dash_period_unmapped.sql's.
+create temp table dash_period_study as
+with
+period_rows as not materialized (
+    select study_key, device_key, modality,
+           patient_weight_kg is not null as has_weight,
+           patient_height_m is not null as has_height,
+           patient_age_years is not null as has_age
+    from derived_study_total
+    where study_date >= $date_from and study_date < $date_to
+),
+several as (
+    -- the period's studies with rows on several devices
+    select study_key
+    from period_rows
+    group by study_key
+    having count(*) > 1
+)
+select device_key, modality, has_weight, has_height, has_age, null::varchar as study_key,
+       count(*)::bigint as n_studies
+from period_rows
+anti join several using (study_key)
+group by device_key, modality, has_weight, has_height, has_age
+union all
+select device_key, modality, has_weight, has_height, has_age, study_key, 1::bigint as n_studies
+from period_rows
+semi join several using (study_key)
