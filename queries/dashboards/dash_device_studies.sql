@@ -9,13 +9,13 @@ per_study as (
            d.family_order, p.n_studies
     from dash_period_study as p
     join dash_device as d on d.device_key = p.device_key
-    where p.study_key is null
+    where not p.is_study_row
     union all
     select d.site_label, d.room_label, d.modality, d.manufacturer, d.model,
            min(d.family_order), 1
     from dash_period_study as p
     join dash_device as d on d.device_key = p.device_key
-    where p.study_key is not null
+    where p.is_study_row and p.study_key is not null   -- a distinct count leaves NULL out
     group by d.site_label, d.room_label, d.modality, d.manufacturer, d.model, p.study_key
 )
 select

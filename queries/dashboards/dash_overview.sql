@@ -10,11 +10,11 @@ period_studies as (
     -- of the others grouped here by study, their flags over their devices' rows)
     select n_studies, has_weight
     from dash_period_study
-    where study_key is null
+    where not is_study_row
     union all
     select 1, bool_or(has_weight)
     from dash_period_study
-    where study_key is not null
+    where is_study_row
     group by study_key
 ),
 period_places as (
@@ -32,7 +32,9 @@ select
     (select n_studies from study_counts) as n_studies,
     (select n_devices from period_places) as n_devices,
     (select n_sites from period_places) as n_sites,
-    (select count(distinct study_key) from dash_period_unmapped) as n_unmapped,
+    -- the studies with a row of no exam type (the rows with no study key, if any, are one)
+    (select count(distinct study_key) + (count(*) > count(study_key))::int
+       from dash_period_unmapped) as n_unmapped,
     (select n_with_weight from study_counts) as n_with_weight,
     (select count(distinct exam_type) from audit_medians) as n_exam_types,
     (select count(distinct exam_type) filter (where reference_value is not null)

@@ -1,7 +1,8 @@
 -- grain: one row per device x modality x flags (weight, height, age recorded) counting the
--- studies of the period that have one row of study_dose (study_key NULL, n_studies the count),
--- and one row per row of study_dose in the period of a study with rows on several devices
--- (study_key set, n_studies 1; rare: the SELECTs that read these group them by study). A
+-- studies of the period that have one row of study_dose (is_study_row false, n_studies the
+-- count), and one row per row of study_dose in the period of a study with rows on several
+-- devices (is_study_row, its study_key, n_studies 1; rare: the SELECTs that read these group
+-- them by study). A
 -- temporary table read by the SELECTs that count the period's studies (overview, weight share,
 -- device studies), dropped by dash_drop_materialised.sql. Read from the kept totals
 -- (derived_study_total: study_dose's rows, whose study date, device, modality and patient
@@ -36,11 +37,20 @@ several as (
     having count(*) > 1
 )
 select device_key, modality, has_weight, has_height, has_age, null::varchar as study_key,
-       count(*)::bigint as n_studies
+       false as is_study_row, count(*)::bigint as n_studies
 from period_rows
 anti join several using (study_key)
+where study_key is not null
 group by device_key, modality, has_weight, has_height, has_age
 union all
-select device_key, modality, has_weight, has_height, has_age, study_key, 1::bigint as n_studies
+select device_key, modality, has_weight, has_height, has_age, study_key,
+       true as is_study_row, 1::bigint as n_studies
 from period_rows
 semi join several using (study_key)
+union all
+-- rows with no study key (none in practice) are listed too: study_dose's SELECTs group them
+-- as one study, as a GROUP BY does, and leave them out of their distinct counts
+select device_key, modality, has_weight, has_height, has_age, study_key,
+       true as is_study_row, 1::bigint as n_studies
+from period_rows
+where study_key is null

@@ -15,11 +15,11 @@ per_study as (
     -- plain counts, not four distinct counts of the study keys
     select site_label, modality, n_studies, has_weight, has_height, has_age
     from period_rows
-    where study_key is null
+    where not is_study_row
     union all
     select site_label, modality, 1, bool_or(has_weight), bool_or(has_height), bool_or(has_age)
     from period_rows
-    where study_key is not null
+    where is_study_row
     group by site_label, modality, study_key
 ),
 counts as (

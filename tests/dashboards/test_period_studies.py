@@ -40,6 +40,8 @@ STUDIES = [
     ("s9", "dev-d", "DX", IN, "HAND", 30.0, None, None),
     ("s10", "dev-a", "CT", IN, "HEAD", None, None, 60.0),    # two devices of one site
     ("s10", "dev-e", "CT", IN, "HEAD", None, None, None),
+    (None, "dev-b", "CT", IN, "ODD", 90.0, None, None),       # no study key (none in practice):
+    (None, "dev-a", "CT", IN, None, None, None, None),        # one study to a GROUP BY
 ]
 # (study_key, device_key, exam_type): the study units' matches
 MATCHES = [("s1", "dev-a", "ct_head"), ("s2", "dev-a", "ct_chest"), ("s4", "dev-a", "ct_head"),
@@ -118,8 +120,9 @@ def test_overview_counts_the_studies_of_the_period():
                 sum(any(r["exam_type"] is None for r in s) for s in studies.values()),
                 sum(any(r["weight"] is not None for r in s) for s in studies.values()))
     assert got[:5] == expected
-    # what the definition gives here: s1-s3 and s5-s10; unmapped s2 (on b), s3, s6, s9
-    assert expected == (9, 6, 4, 4, 5)
+    # what the definition gives here: s1-s3, s5-s10 and the rows with no key; unmapped s2 (on
+    # b), s3, s6, s9 and the rows with no key
+    assert expected == (10, 6, 4, 5, 6)
 
 
 def test_weight_share_counts_each_study_once_per_site_and_modality():
@@ -135,14 +138,14 @@ def test_weight_share_counts_each_study_once_per_site_and_modality():
     assert _select(_warehouse(), "dash_weight_share") == expected
     # s9 has rows on c (no site) and d (North): counted under both; s7 under c only; s10 once
     assert ("North", "DX", 1, 1, 0, 0, 100.0) in expected
-    assert ("North", "CT", 4, 1, 1, 3, 25.0) in expected   # s1 s2 s8 s10
+    assert ("North", "CT", 5, 1, 1, 3, 20.0) in expected   # s1 s2 s8 s10, no key
 
 
 def test_device_studies_count_the_studies_of_each_known_device():
     labels = {d[0]: d for d in DEVICES}
     studies = defaultdict(set)
     for r in _period_rows():
-        if r["device_key"] in labels:
+        if r["device_key"] in labels and r["study_key"] is not None:   # a distinct count
             studies[r["device_key"]].add(r["study_key"])
     stations = [d[3] or d[0] for d in DEVICES]
 
@@ -168,7 +171,8 @@ def test_unmapped_descriptions_are_the_period_rows_with_no_exam_type():
             g = groups[(r["modality"], r["study_description"] or "(no study description)")]
             g[0] |= protocols[(r["study_key"], r["device_key"])]
             g[1].add(_site_label(r["site"]))
-            g[2].add(r["study_key"])
+            if r["study_key"] is not None:   # a distinct count
+                g[2].add(r["study_key"])
     got = {(m, d, p, s, n) for m, d, p, s, n in _select(_warehouse(), "dash_unmapped")}
     expected = {(m, d, "; ".join(sorted(p)) or None, "; ".join(sorted(s)), len(k))
                 for (m, d), (p, s, k) in groups.items()}
