@@ -47,10 +47,14 @@ _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_i
 # SELECT grouped by study again (10M events: 3.7 CPU-s for the copy and 6.1 in those SELECTs,
 # against 0.8 + 1.3-1.9 and 0.5; measured, no other source).
 _PERIOD_STUDIES = ("dash_period_studies", "dash_period_unmapped")
-# Kept tables the site reads directly: each file's studies and dates (dash_period_files.sql), the
-# study totals and exam matches behind study_dose (dash_period_studies.sql). An
-# audit brings them up (it runs ensure_schema), so a warehouse without them has not been audited
-# by this version.
+# The period's files (queries/dashboards/dash_period_files.sql), from their groups made first by
+# dash_period_file_groups.sql: as one statement DuckDB spilled the join of every file to its
+# studies (10M events, FILES_MEMORY_LIMIT: 3.2 -> 1.6 CPU-s; measured, no other source).
+_PERIOD_FILES = ("dash_period_file_groups", "dash_period_files")
+# Kept tables the site reads directly: each file's studies and dates (dash_period_file_groups.sql),
+# the study totals and exam matches behind study_dose (dash_period_studies.sql). An audit brings
+# them up (it runs ensure_schema), so a warehouse without them has not been audited by this
+# version.
 _KEPT = ("derived_object_study", "derived_study_total", "stg_exam_match")
 
 
@@ -269,10 +273,10 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None =
         # finding the unmapped ones joins every study to the exam matches (10M events, with
         # FILES_MEMORY_LIMIT: 1.1 CPU-s against 1.3 and the build's peak RSS ~650 MiB against
         # ~636, at the period's files; measured, no other source)
-        for name in ("dash_period_files", *_PERIOD_STUDIES):
+        for name in (*_PERIOD_FILES, *_PERIOD_STUDIES):
             text = sql(name)
             if memory_limit:
-                limit = FILES_MEMORY_LIMIT if name == "dash_period_files" else memory_limit
+                limit = FILES_MEMORY_LIMIT if name in _PERIOD_FILES else memory_limit
                 con.execute(f"set memory_limit = '{limit}'")
             con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
         if memory_limit:
@@ -450,11 +454,13 @@ CSV_CHUNK_ROWS = 50_000
 # RSS 1592 MiB with 512 MB, 1276 MiB with 256 MB; dash_distribution over the observations ran out
 # of 256 MB before the audit wrote them.
 DASHBOARD_MEMORY_LIMIT = "256MB"
-# DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
-# site build: it groups every dose object's studies and joins every input file, and nothing else
-# is held yet. 10M events, the loaded files counted as they are joined: 1.8 CPU-s and a peak RSS
-# of 752 MiB with 512 MB, 3.1 and 628 with 384 MB, 4.8 and 509 with 256 MB, where it spills
-# (before: 3.1 CPU-s and 760 MiB with 512 MB; measured, no other source).
+# DuckDB working memory of the period's files (dash_period_file_groups.sql, dash_period_files.sql),
+# the first statements of a site build: they group every dose object's studies and join every
+# input file, and nothing else is held yet. 10M events, the file groups in a process of their own
+# (peak RSS ~83 MiB before): 1.6 CPU-s and a peak RSS of 465 MiB with 384 MB, 3.0-3.4 and 405
+# with 320 MB, 3.9-4.4 and 345 with 256 MB, where it spills (as one statement with the files of
+# the period: 3.1 CPU-s with 384 MB, 1.8 and a write_site peak of 752 MiB with 512 MB; measured,
+# no other source).
 FILES_MEMORY_LIMIT = "384MB"
 
 
