@@ -45,7 +45,7 @@ _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_i
 # studies of one row counted per device, modality and patient values recorded, the others and
 # the rows with no exam type listed. They replaced a temporary copy of study_dose that each
 # SELECT grouped by study again (10M events: 3.7 CPU-s for the copy and 6.1 in those SELECTs,
-# against 0.8 + 1.3-1.9 and 0.5; measured, no other source).
+# against 0.5 + 1.3-1.9 and 0.5; measured, no other source).
 _PERIOD_STUDIES = ("dash_period_studies", "dash_period_unmapped")
 # The period's files (queries/dashboards/dash_period_files.sql), from their groups made first by
 # dash_period_file_groups.sql: as one statement DuckDB spilled the join of every file to its
