@@ -39,16 +39,23 @@ AUDIT_TABLES = ("audit_medians", "network_reference", "dose_alerts", "drift_flag
                 "skin_dose", "skin_dose_map")
 _VIEWS = ("study_dose", "device", "irradiation_event", "source_object", "value_issue",
           "audit_observation", "reference_level", "key_epoch")
-# Views several SELECTs read (study_dose alone about ten times), computed once per site build
-# into temporary tables that hide them (queries/dashboards/dash_materialise_*.sql). The
-# deduplicated events and exam matches are kept as tables by each ingest run
-# (pipeline/warehouse/derived.py); study_dose still joins the kept totals to the site map and
-# the matches.
-_MATERIALISED = ("study_dose",)
-# Kept tables the site reads directly: each file's studies and dates (dash_period_files.sql). An
-# audit brings them up (it runs ensure_schema), so a warehouse without them has not been audited
-# by this version.
-_KEPT = ("derived_object_study",)
+# The SELECTs that count the period's studies (overview, unmapped descriptions, weight share,
+# device studies) read two small temporary tables (queries/dashboards/dash_period_studies.sql,
+# dash_period_unmapped.sql) made from the kept totals (derived_study_total) and exam matches: the
+# studies of one row counted per device, modality and patient values recorded, the others and
+# the rows with no exam type listed. They replaced a temporary copy of study_dose that each
+# SELECT grouped by study again (10M events: 3.7 CPU-s for the copy and 6.1 in those SELECTs,
+# against 0.5 + 1.3-1.9 and 0.5; measured, no other source).
+_PERIOD_STUDIES = ("dash_period_studies", "dash_period_unmapped")
+# The period's files (queries/dashboards/dash_period_files.sql), from their groups made first by
+# dash_period_file_groups.sql: as one statement DuckDB spilled the join of every file to its
+# studies (10M events, FILES_MEMORY_LIMIT: 3.2 -> 1.6 CPU-s; measured, no other source).
+_PERIOD_FILES = ("dash_period_file_groups", "dash_period_files")
+# Kept tables the site reads directly: each file's studies and dates (dash_period_file_groups.sql),
+# the study totals and exam matches behind study_dose (dash_period_studies.sql). An audit brings
+# them up (it runs ensure_schema), so a warehouse without them has not been audited by this
+# version.
+_KEPT = ("derived_object_study", "derived_study_total", "stg_exam_match")
 
 
 def _exam_types() -> pd.DataFrame:
@@ -261,15 +268,19 @@ def read_site_data(con: duckdb.DuckDBPyConnection, *, memory_limit: str | None =
         params = {"date_from": first, "date_to": last + dt.timedelta(days=1)}
     try:
         # the period's files first, while no temporary table holds DuckDB's memory bound (it
-        # groups every file's studies and joins every file; after study_dose's copy it spilled)
-        text = sql("dash_period_files")   # a temporary table of the files' counts
-        if memory_limit:
-            con.execute(f"set memory_limit = '{FILES_MEMORY_LIMIT}'")
-        con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
+        # groups every file's studies and joins every file; after a copy of study_dose it
+        # spilled), then the period's studies (small temporary tables) with the build's bound:
+        # finding the unmapped ones joins every study to the exam matches (10M events, with
+        # FILES_MEMORY_LIMIT: 1.1 CPU-s against 1.3 and the build's peak RSS ~650 MiB against
+        # ~636, at the period's files; measured, no other source)
+        for name in (*_PERIOD_FILES, *_PERIOD_STUDIES):
+            text = sql(name)
+            if memory_limit:
+                limit = FILES_MEMORY_LIMIT if name in _PERIOD_FILES else memory_limit
+                con.execute(f"set memory_limit = '{limit}'")
+            con.execute(text, {k: v for k, v in params.items() if f"${k}" in text})
         if memory_limit:
             con.execute(f"set memory_limit = '{memory_limit}'")
-        for name in _MATERIALISED:
-            con.execute(sql(f"dash_materialise_{name}"))
         return _read_site_data(con, q, label, first, last, params)
     finally:
         con.execute(sql("dash_drop_materialised"))
@@ -283,10 +294,10 @@ def _read_site_data(con: duckdb.DuckDBPyConnection, q, label: str, first: dt.dat
     con.register("dash_concept", _concepts())
     devices = q("dash_devices")
     con.register("dash_device", devices)
-    # the SELECTs over the temporary study_dose and file counts first, while few frames are
-    # held (they group every study of the period within DuckDB's bound), then the temporary
-    # tables go; the long frames last (10M events: the build's peak RSS was the study_dose
-    # SELECTs over ~1000 MiB of frames)
+    # the SELECTs over the temporary tables of the period's studies and files first, while few
+    # frames are held, then the temporary tables go; the long frames last (10M events: the
+    # build's peak RSS was the study_dose SELECTs over ~1000 MiB of frames, when they grouped
+    # every study of the period)
     small = {"overview": q("dash_overview", **params), "unmapped": q("dash_unmapped", **params),
              "source_status": q("dash_source_status"), "files_not_loaded": q("dash_quarantined_files"),
              "weight_share": q("dash_weight_share", **params),
@@ -443,11 +454,13 @@ CSV_CHUNK_ROWS = 50_000
 # RSS 1592 MiB with 512 MB, 1276 MiB with 256 MB; dash_distribution over the observations ran out
 # of 256 MB before the audit wrote them.
 DASHBOARD_MEMORY_LIMIT = "256MB"
-# DuckDB working memory of the period's files (dash_period_files.sql), the first statement of a
-# site build: it groups every dose object's studies and joins every input file, and nothing else
-# is held yet. 10M events, the loaded files counted as they are joined: 1.8 CPU-s and a peak RSS
-# of 752 MiB with 512 MB, 3.1 and 628 with 384 MB, 4.8 and 509 with 256 MB, where it spills
-# (before: 3.1 CPU-s and 760 MiB with 512 MB; measured, no other source).
+# DuckDB working memory of the period's files (dash_period_file_groups.sql, dash_period_files.sql),
+# the first statements of a site build: they group every dose object's studies and join every
+# input file, and nothing else is held yet. 10M events, the file groups in a process of their own
+# (peak RSS ~83 MiB before): 1.6 CPU-s and a peak RSS of 465 MiB with 384 MB, 3.0-3.4 and 405
+# with 320 MB, 3.9-4.4 and 345 with 256 MB, where it spills (as one statement with the files of
+# the period: 3.1 CPU-s with 384 MB, 1.8 and a write_site peak of 752 MiB with 512 MB; measured,
+# no other source).
 FILES_MEMORY_LIMIT = "384MB"
 
 
@@ -544,10 +557,7 @@ def _write_csv(path: Path, rows: pd.DataFrame, con: duckdb.DuckDBPyConnection | 
     if stamps:
         rows = rows.copy(deep=False)
         for column in stamps:
-            text = rows[[column]].to_csv(index=False, header=False, lineterminator="\n")
-            # a lone empty field (NaT) comes back quoted: it is NULL, written empty
-            values = [None if v == '""' else v for v in text.split("\n")[:-1]]
-            rows[column] = pd.Series(values, index=rows.index, dtype=object)
+            rows[column] = pd.Series(_stamp_texts(rows[column]), index=rows.index, dtype=object)
     tmp = path.with_name(path.name + ".tmp")
     if con is None or not _copy_csv(con, tmp, rows):
         with open(tmp, "w", encoding="utf-8", newline="") as f:
@@ -558,6 +568,28 @@ def _write_csv(path: Path, rows: pd.DataFrame, con: duckdb.DuckDBPyConnection | 
         tmp.unlink()
     else:
         os.replace(tmp, path)
+
+
+def _stamp_texts(values: pd.Series) -> list[str | None]:
+    """A timestamp column as pandas' ``to_csv`` writes it, NaT as None: dates only
+    (YYYY-MM-DD) when every value is at midnight, else to the second when none has a fraction of
+    a second, written here by numpy (years 1000-9999); any other column by pandas. At 10M
+    events the alerted studies' event times (360k) took 0.3 CPU-s through pandas, 0.14 here
+    (measured, no other source)."""
+    array = values.to_numpy()
+    if array.dtype.kind == "M":
+        valid = array[~np.isnat(array)]
+        seconds = valid.astype("datetime64[s]")
+        days = valid.astype("datetime64[D]")
+        if len(valid) and (seconds == valid).all() \
+                and days.min() >= np.datetime64("1000-01-01") \
+                and days.max() <= np.datetime64("9999-12-31"):
+            unit = "D" if (days == valid).all() else "s"
+            texts = np.datetime_as_string(array.astype(f"datetime64[{unit}]"), unit=unit)
+            return [None if v == "NaT" else v.replace("T", " ") for v in texts.tolist()]
+    text = values.to_frame().to_csv(index=False, header=False, lineterminator="\n")
+    # a lone empty field (NaT) comes back quoted: it is NULL, written empty
+    return [None if v == '""' else v for v in text.split("\n")[:-1]]
 
 
 def _write_text(path: Path, text: str) -> None:

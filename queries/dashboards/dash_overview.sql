@@ -1,32 +1,40 @@
--- grain: one row: the headline counts of the audit period (each links to its page); files are
--- those of the period (dash_period_file, made by dash_period_files.sql: a row per file not
--- loaded, a row per reason of the loaded ones with their n_files)
+-- grain: one row: the headline counts of the audit period (each links to its page); studies are
+-- those of the period (dash_period_study and dash_period_unmapped, made by
+-- dash_period_studies.sql and dash_period_unmapped.sql), files those of the
+-- period (dash_period_file, made by dash_period_files.sql: a row per file not loaded, a row per
+-- reason of the loaded ones with their n_files)
 with
 period_studies as (
-    -- one row per study of the period: its flags over its devices' rows (one grouping, not
-    -- three distinct counts of the study keys; at 10M events 2.2 -> 1.1 CPU-s, measured)
-    select study_key,
-           bool_or(exam_type is null) as has_unmapped,
-           bool_or(patient_weight_kg is not null) as has_weight
-    from study_dose
-    where study_date >= $date_from and study_date < $date_to
+    -- one row per study of the period, or per count of them (dash_period_study, made by
+    -- dash_period_studies.sql: the studies of one row counted per device and flags, the rows
+    -- of the others grouped here by study, their flags over their devices' rows)
+    select n_studies, has_weight
+    from dash_period_study
+    where not is_study_row
+    union all
+    select 1, bool_or(has_weight)
+    from dash_period_study
+    where is_study_row
     group by study_key
 ),
 period_places as (
-    select count(distinct device_key) as n_devices, count(distinct coalesce(site, '')) as n_sites
-    from study_dose
-    where study_date >= $date_from and study_date < $date_to
+    -- the devices of the period's studies and their sites (the view device, as study_dose)
+    select count(p.device_key) as n_devices, count(distinct coalesce(v.site, '')) as n_sites
+    from (select distinct device_key from dash_period_study) as p
+    left join device as v on v.device_key = p.device_key
 ),
 study_counts as (
-    select count(*) as n_studies, count(*) filter (where has_unmapped) as n_unmapped,
-           count(*) filter (where has_weight) as n_with_weight
+    select coalesce(sum(n_studies), 0)::bigint as n_studies,
+           coalesce(sum(n_studies) filter (where has_weight), 0)::bigint as n_with_weight
     from period_studies
 )
 select
     (select n_studies from study_counts) as n_studies,
     (select n_devices from period_places) as n_devices,
     (select n_sites from period_places) as n_sites,
-    (select n_unmapped from study_counts) as n_unmapped,
+    -- the studies with a row of no exam type (the rows with no study key, if any, are one)
+    (select count(distinct study_key) + (count(*) > count(study_key))::int
+       from dash_period_unmapped) as n_unmapped,
     (select n_with_weight from study_counts) as n_with_weight,
     (select count(distinct exam_type) from audit_medians) as n_exam_types,
     (select count(distinct exam_type) filter (where reference_value is not null)

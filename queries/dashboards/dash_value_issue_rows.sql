@@ -4,7 +4,7 @@ studies as (
     -- only the studies with an issue (a few): grouping every study of study_dose cost 2.1-2.5
     -- of 2.5 CPU-s at 10M events (measured, no other source)
     select study_key, any_value(study_date) as study_date, any_value(device_key) as device_key
-    from study_dose
+    from derived_study_total   -- study_dose's rows: its date and device are the kept totals'
     where study_key in (select study_key from value_issue)
     group by study_key
 )

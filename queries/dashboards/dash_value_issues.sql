@@ -4,7 +4,7 @@ with
 studies as (
     -- only the studies with an issue (a few), not every study of study_dose
     select study_key, any_value(study_date) as study_date
-    from study_dose
+    from derived_study_total   -- study_dose's rows: its date and device are the kept totals'
     where study_key in (select study_key from value_issue)
     group by study_key
 )

@@ -1,5 +1,6 @@
-"""queries/dashboards/dash_period_files.sql: the files of the audit period, each file not loaded as
-a row, the loaded ones counted per reason; checked against the definition written out in Python."""
+"""queries/dashboards/dash_period_files.sql (over the file groups of dash_period_file_groups.sql):
+the files of the audit period, each file not loaded as a row, the loaded ones counted per reason;
+checked against the definition written out in Python."""
 
 from __future__ import annotations
 
@@ -67,7 +68,8 @@ def test_period_files_are_the_files_of_the_period_counted_per_reason():
     con.execute("create table derived_object_study (sop_instance_uid varchar, study_date date)")
     con.executemany("insert into source_object values (?, ?, ?, ?, ?, ?, ?)", FILES)
     con.executemany("insert into derived_object_study values (?, ?)", STUDIES)
-    con.execute(sql("dash_period_files"), {"date_from": DATE_FROM, "date_to": DATE_TO})
+    con.execute(sql("dash_period_file_groups"), {"date_from": DATE_FROM, "date_to": DATE_TO})
+    con.execute(sql("dash_period_files"))
     got = con.execute("select * from dash_period_file").fetchall()
     expected = _expected()
     assert sorted(got, key=repr) == expected

@@ -549,6 +549,34 @@ def test_csv_written_in_pieces_is_the_csv_of_the_whole_table(tmp_path, monkeypat
     assert path.read_text() == site_module.csv_text(rows.iloc[:0])
 
 
+def test_timestamps_are_written_as_pandas_writes_them():
+    """_stamp_texts writes a timestamp column (numpy for whole seconds, pandas otherwise) in
+    the characters pandas' to_csv gives it: dates only when all are at midnight, a fraction of a
+    second for every value once one has one, a time zone, NaT empty (None)."""
+    import numpy as np
+
+    def column(values, unit="us"):
+        return pd.Series(np.array(values, dtype=f"datetime64[{unit}]"))
+
+    columns = [
+        column(["2026-09-01T10:11:12", "NaT", "2026-10-01T00:00:00"]),
+        column(["2026-09-01", "NaT", "2026-10-01"]),
+        column(["2026-09-01T10:11:12.5", "2026-10-01"]),
+        column(["NaT", "NaT"]),
+        column(["2026-09-01T10:11", "2026-10-01T01:00"], "ns"),
+        column(["0999-01-01T10:00:00", "2026-01-01"], "s"),
+        column([]),
+        column(["2026-09-01T10:11:12", "2026-10-01T01:00"]).dt.tz_localize("UTC"),
+    ]
+    for values in columns:
+        text = values.to_frame().to_csv(index=False, header=False, lineterminator="\n")
+        expected = [None if v == '""' else v for v in text.split("\n")[:-1]]
+        assert site_module._stamp_texts(values) == expected
+    assert site_module._stamp_texts(columns[0]) == ["2026-09-01 10:11:12", None,
+                                                   "2026-10-01 00:00:00"]
+    assert site_module._stamp_texts(columns[1]) == ["2026-09-01", None, "2026-10-01"]
+
+
 def test_csv_written_by_duckdb_is_csv_text(tmp_path):
     """The site's CSVs are written by DuckDB's COPY (speed) where it writes csv_text's characters
     (pandas' own, checked above; written piece by piece without a connection): floats to 12 significant figures (last-bit noise, 1e-7, -0,
