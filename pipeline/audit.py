@@ -578,7 +578,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                                           settings, config)
         con.execute(f"set memory_limit = '{AUDIT_MEMORY_LIMIT}'")
         for name in _MATERIALISED:
-            con.execute(sql(f"materialise_{name}"))
+            con.execute(sql(f"materialise_{name}"), {"date_to": after})
         choice = choose_reference_sets(
             _records(con.execute(sql("select_reference_set_meta"))), first,
             after - dt.timedelta(days=1), explicit=reference_sets or list(settings.reference_sets),
