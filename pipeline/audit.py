@@ -626,9 +626,9 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                   parts)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
+        con.execute(sql("create_ct_acquisition"), {"date_from": first, "date_to": after})
         con.execute(sql("create_ct_accumulated"), {
-            "date_from": first, "date_to": after, "method_by_position": METHOD_BY_POSITION,
-            "method_upper_bound": METHOD_UPPER_BOUND})
+            "method_by_position": METHOD_BY_POSITION, "method_upper_bound": METHOD_UPPER_BOUND})
         # the rules on each study's own values over the whole period at once (per part, each
         # part re-read the studies and their CT events: 4 parts at 10M events), then the outlier
         # rule, whose medians hold the values, over the parts

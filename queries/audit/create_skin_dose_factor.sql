@@ -3,7 +3,8 @@
 -- over the events' central rays (pipeline/skin_dose.py); source: the publication and table the
 -- factor comes from, or "from memory" where it was not read (queries/seeds/skin_dose_factors.md)
 -- Not sorted, like skin_dose: the audit tables' row order is not part of their interface (read
--- them with ORDER BY); sorting took 0.7 CPU-s of 1.1 at 10M events (measured, no other source).
+-- them with ORDER BY); sorted by study it took 1.1 CPU-s at 10M events, unsorted 0.6 (measured,
+-- no other source).
 create or replace table skin_dose_factor as
 select f.study_key, f.device_key, f.factor, f.n_events, f.value_min, f.value_max, f.source
 from derived_skin_dose_factor as f

@@ -7,10 +7,12 @@
 -- memory, is inserted after it over parts of the rooms (dose_alerts_outliers.sql). Rows are not
 -- in a defined order: read with ORDER BY.
 -- The CT rules run on the keys and the values alone (an acquisition's study, device, CTDIvol,
--- protocol family and the study's age), and only the rows that fire meet the studies' other
--- columns (patient, site, exam type, date): grouping every acquisition with those columns and
--- the rule's texts (group by all) took 7.0 CPU-s at 10M events and spilled 2.8 GB under the
--- audit's 400 MB, this form 4.0 CPU-s, the same rows (measured, no other source).
+-- protocol family and the study's age: ct_acquisition, create_ct_acquisition.sql), and only the
+-- rows that fire meet the studies' other columns (patient, site, exam type, date): joining every
+-- acquisition to those columns and grouping it with them and the rule's texts (group by all)
+-- took 7.0 CPU-s at 10M events and spilled 2.8 GB under the audit's 400 MB; this form 4.0 with
+-- its own join of the acquisitions to the studies, 1.9 reading ct_acquisition; the same rows
+-- (measured, no other source).
 create or replace table dose_alerts as
 with
 rules as (
@@ -30,27 +32,9 @@ fluoro as (
     where s.modality in ('RF', 'XA') and s.study_date >= $date_from and s.study_date < $date_to
 ),
 ct_acquisitions as (
-    -- protocol family: brain perfusion and cardiac by the acquisition protocol text, else the
-    -- body region of the exam type (unmapped or neck: the CTDIvol phantom decides); only the
-    -- keys and what the rules read (the study's descriptive columns are joined to the few rows
-    -- that fire, below)
-    select e.study_key, e.device_key, e.event_uid, e.event_type, e.ctdivol_mgy, e.ctdi_phantom,
-           s.patient_age_years,
-           case when lower(coalesce(e.acquisition_protocol, '')) like '%perfusion%' then 'brain_perfusion'
-                when regexp_matches(lower(coalesce(e.acquisition_protocol, '')),
-                                    '(cardiac|coronary|ccta|heart)') then 'cardiac'
-                when x.region = 'head' then 'head'
-                when (x.region is null or x.region = 'neck') and e.ctdi_phantom = 'head_16cm' then 'head'
-                else 'torso' end as protocol_family,
-           s.patient_age_years is null or s.patient_age_years >= $adult_min_age as is_adult
-    from irradiation_event as e
-    join study_dose as s using (study_key, device_key)
-    left join exam_stratum_basis as x on x.exam_type = s.exam_type
-    where s.study_date >= $date_from and s.study_date < $date_to
-      and (e.event_type in ('spiral', 'sequenced', 'stationary') or e.event_type is null)
-      -- no event type: a classic CT image's header has no Acquisition Type; a localizer
-      -- is typed constant_angle from its Image Type (pipeline/parsing/headers.py)
-      and e.ctdivol_mgy is not null
+    -- the period's CT acquisitions with their protocol family (create_ct_acquisition.sql)
+    select *, patient_age_years is null or patient_age_years >= $adult_min_age as is_adult
+    from ct_acquisition
 ),
 ct_events as (
     -- CT dose-check notification values apply per scan sequence (acquisition), by population
@@ -73,16 +57,15 @@ ct_events as (
 device_check as (
     -- the scanner's own CT dose-check values (PS3.16 TID 10015, NEMA XR 25) as recorded in its
     -- report: an acquisition above the value the device was configured with
-    select a.study_key, a.device_key, v.kind, v.threshold, max(a.ctdivol_mgy) as value
-    from ct_acquisitions as a
-    join (
-        select event_uid, 'notification' as kind, max(dose_check_notification_ctdivol_mgy) as threshold
-        from raw_ct_event where dose_check_notification_ctdivol_mgy > 0 group by event_uid
-        union all
-        select event_uid, 'alert', max(dose_check_alert_ctdivol_mgy)
-        from raw_ct_event where dose_check_alert_ctdivol_mgy > 0 group by event_uid
-    ) as v on v.event_uid = a.event_uid
-    group by a.study_key, a.device_key, v.kind, v.threshold
+    select study_key, device_key, 'notification' as kind, device_notification_mgy as threshold,
+           max(ctdivol_mgy) as value
+    from ct_acquisition where device_notification_mgy is not null
+    group by study_key, device_key, device_notification_mgy
+    union all
+    select study_key, device_key, 'alert' as kind, device_alert_mgy as threshold,
+           max(ctdivol_mgy) as value
+    from ct_acquisition where device_alert_mgy is not null
+    group by study_key, device_key, device_alert_mgy
 ),
 ct_fired as (
     -- the CT rows that fire, by the keys; then the study's columns, once
