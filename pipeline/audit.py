@@ -634,6 +634,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
         # rule, whose medians hold the values, over the parts
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
                                          "adult_min_age": settings.adult_min_age_years})
+        con.execute(sql("drop_ct_acquisition"))
         _by_parts(con, "dose_alerts_outliers", {"date_from": first, "date_to": after,
                                                 "outlier_min_n": settings.outlier_min_n}, parts)
         con.register("effective_dose_factor", _effective_dose_factors(con, after, settings))
