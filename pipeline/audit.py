@@ -578,7 +578,7 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                                           settings, config)
         con.execute(f"set memory_limit = '{AUDIT_MEMORY_LIMIT}'")
         for name in _MATERIALISED:
-            con.execute(sql(f"materialise_{name}"))
+            con.execute(sql(f"materialise_{name}"), {"date_to": after})
         choice = choose_reference_sets(
             _records(con.execute(sql("select_reference_set_meta"))), first,
             after - dt.timedelta(days=1), explicit=reference_sets or list(settings.reference_sets),
@@ -626,14 +626,15 @@ def run_audit(warehouse: Path, *, period: str | None = None, date_from: dt.date 
                   parts)
         con.execute(sql("network_reference"), {"period": label,
                                                "min_rooms": settings.min_rooms_local_drl})
+        con.execute(sql("create_ct_acquisition"), {"date_from": first, "date_to": after})
         con.execute(sql("create_ct_accumulated"), {
-            "date_from": first, "date_to": after, "method_by_position": METHOD_BY_POSITION,
-            "method_upper_bound": METHOD_UPPER_BOUND})
+            "method_by_position": METHOD_BY_POSITION, "method_upper_bound": METHOD_UPPER_BOUND})
         # the rules on each study's own values over the whole period at once (per part, each
         # part re-read the studies and their CT events: 4 parts at 10M events), then the outlier
         # rule, whose medians hold the values, over the parts
         con.execute(sql("dose_alerts"), {"date_from": first, "date_to": after,
                                          "adult_min_age": settings.adult_min_age_years})
+        con.execute(sql("drop_ct_acquisition"))
         _by_parts(con, "dose_alerts_outliers", {"date_from": first, "date_to": after,
                                                 "outlier_min_n": settings.outlier_min_n}, parts)
         con.register("effective_dose_factor", _effective_dose_factors(con, after, settings))

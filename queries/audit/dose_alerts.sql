@@ -6,15 +6,15 @@
 -- states are per study and spill); the outlier rule, whose medians hold every value of a group in
 -- memory, is inserted after it over parts of the rooms (dose_alerts_outliers.sql). Rows are not
 -- in a defined order: read with ORDER BY.
+-- The CT rules run on the keys and the values alone (an acquisition's study, device, CTDIvol,
+-- protocol family and the study's age: ct_acquisition, create_ct_acquisition.sql), and only the
+-- rows that fire meet the studies' other columns (patient, site, exam type, date): joining every
+-- acquisition to those columns and grouping it with them and the rule's texts (group by all)
+-- took 7.0 CPU-s at 10M events and spilled 2.8 GB under the audit's 400 MB; this form 4.0 with
+-- its own join of the acquisitions to the studies, 1.9 reading ct_acquisition; the same rows
+-- (measured, no other source).
 create or replace table dose_alerts as
 with
-studies as (
-    -- only the columns read below: the CTE is materialised (read four times), and with every
-    -- column of study_dose (exam texts, descriptions) it spilled ~1 GB at 10M events
-    select study_key, patient_key, device_key, site, modality, exam_type, study_date,
-           patient_age_years, dose_rp_total_mgy, dap_total_gy_cm2, fluoro_time_total_s
-    from study_dose where study_date >= $date_from and study_date < $date_to
-),
 rules as (
     select * from alert_rule_in_force
 ),
@@ -27,39 +27,20 @@ fluoro as (
                            when 'fluoro_time' then s.fluoro_time_total_s end as value,
            r.threshold, r.unit, r.source,
            'study total of ' || r.quantity || ' (all irradiation events of the study)' as method
-    from studies as s
-    join rules as r on r.family = 'fluoro_substantial_dose' and s.modality in ('RF', 'XA')
+    from study_dose as s
+    join rules as r on r.family = 'fluoro_substantial_dose'
+    where s.modality in ('RF', 'XA') and s.study_date >= $date_from and s.study_date < $date_to
 ),
 ct_acquisitions as (
-    -- protocol family: brain perfusion and cardiac by the acquisition protocol text, else the
-    -- body region of the exam type (unmapped or neck: the CTDIvol phantom decides)
-    select e.study_key, e.device_key, e.event_uid, e.event_type, e.ctdivol_mgy, e.ctdi_phantom,
-           s.patient_key, s.site, s.exam_type, s.study_date, s.patient_age_years,
-           case when lower(coalesce(e.acquisition_protocol, '')) like '%perfusion%' then 'brain_perfusion'
-                when regexp_matches(lower(coalesce(e.acquisition_protocol, '')),
-                                    '(cardiac|coronary|ccta|heart)') then 'cardiac'
-                when x.region = 'head' then 'head'
-                when (x.region is null or x.region = 'neck') and e.ctdi_phantom = 'head_16cm' then 'head'
-                else 'torso' end as protocol_family,
-           s.patient_age_years is null or s.patient_age_years >= $adult_min_age as is_adult
-    from irradiation_event as e
-    join studies as s using (study_key, device_key)
-    left join exam_stratum_basis as x on x.exam_type = s.exam_type
-    where (e.event_type in ('spiral', 'sequenced', 'stationary') or e.event_type is null)
-      -- no event type: a classic CT image's header has no Acquisition Type; a localizer
-      -- is typed constant_angle from its Image Type (pipeline/parsing/headers.py)
-      and e.ctdivol_mgy is not null
+    -- the period's CT acquisitions with their protocol family (create_ct_acquisition.sql)
+    select *, patient_age_years is null or patient_age_years >= $adult_min_age as is_adult
+    from ct_acquisition
 ),
 ct_events as (
     -- CT dose-check notification values apply per scan sequence (acquisition), by population
-    -- x body region x protocol family (AAPM 2011), not by phantom alone
-    select a.study_key, a.patient_key, a.device_key, a.site, a.exam_type, a.study_date, r.rule,
-           r.family, r.action, r.verified as threshold_verified, r.quantity,
-           max(a.ctdivol_mgy) as value, r.threshold, r.unit, r.source,
-           'largest CTDIvol of one acquisition, ' || a.protocol_family || ' protocol, '
-               || case when a.patient_age_years is null then 'age unknown: adult value'
-                       when a.is_adult then 'adult'
-                       else 'paediatric, age ' || round(a.patient_age_years, 1) || ' y' end as method
+    -- x body region x protocol family (AAPM 2011), not by phantom alone: the largest CTDIvol
+    -- per study x device x rule (a rule has one protocol family; the age is the study's)
+    select a.study_key, a.device_key, r.rule, max(a.ctdivol_mgy) as value
     from ct_acquisitions as a
     join rules as r
       on r.family = 'ct_dose_check_notification' and r.quantity = 'ctdivol'
@@ -71,45 +52,67 @@ ct_events as (
           or (not a.is_adult and r.population = 'paediatric'
               and a.patient_age_years >= coalesce(r.age_min_years, 0)
               and a.patient_age_years < coalesce(r.age_max_years, 1e9)))
-    group by all
-),
-ct_alert as (
-    -- CT dose-check alert value: CTDIvol accumulated at a table position (ct_accumulated:
-    -- maximum over z, or the labelled upper bound when positions are missing)
-    select s.study_key, s.patient_key, s.device_key, s.site, s.exam_type, s.study_date, r.rule,
-           r.family, r.action, r.verified as threshold_verified, r.quantity,
-           c.accumulated_ctdivol_mgy as value, r.threshold, r.unit, r.source, c.method
-    from ct_accumulated as c
-    join studies as s using (study_key, device_key)
-    join rules as r on r.family = 'ct_dose_check_alert' and r.quantity = 'ctdivol'
+    group by a.study_key, a.device_key, r.rule
 ),
 device_check as (
     -- the scanner's own CT dose-check values (PS3.16 TID 10015, NEMA XR 25) as recorded in its
     -- report: an acquisition above the value the device was configured with
-    select a.study_key, a.patient_key, a.device_key, a.site, a.exam_type, a.study_date,
-           'device_dose_check_' || v.kind as rule, 'device_dose_check' as family,
-           'protocol_review' as action, true as threshold_verified, 'ctdivol' as quantity,
-           max(a.ctdivol_mgy) as value, v.threshold, 'mGy' as unit,
-           'the device''s own configured CTDIvol ' || v.kind || ' value (TID 10015) in its dose report'
-               as source,
+    select study_key, device_key, 'notification' as kind, device_notification_mgy as threshold,
+           max(ctdivol_mgy) as value
+    from ct_acquisition where device_notification_mgy is not null
+    group by study_key, device_key, device_notification_mgy
+    union all
+    select study_key, device_key, 'alert' as kind, device_alert_mgy as threshold,
+           max(ctdivol_mgy) as value
+    from ct_acquisition where device_alert_mgy is not null
+    group by study_key, device_key, device_alert_mgy
+),
+ct_fired as (
+    -- the CT rows that fire, by the keys; then the study's columns, once
+    select e.study_key, e.device_key, r.rule, r.family, r.action,
+           r.verified as threshold_verified, r.quantity, e.value, r.threshold, r.unit, r.source,
+           r.protocol_family, null::varchar as method
+    from ct_events as e
+    join rules as r using (rule)
+    where e.value > r.threshold
+    union all
+    -- CT dose-check alert value: CTDIvol accumulated at a table position (ct_accumulated:
+    -- maximum over z, or the labelled upper bound when positions are missing)
+    select c.study_key, c.device_key, r.rule, r.family, r.action,
+           r.verified as threshold_verified, r.quantity, c.accumulated_ctdivol_mgy as value,
+           r.threshold, r.unit, r.source, null as protocol_family, c.method
+    from ct_accumulated as c
+    join rules as r on r.family = 'ct_dose_check_alert' and r.quantity = 'ctdivol'
+    where c.accumulated_ctdivol_mgy > r.threshold
+    union all
+    select study_key, device_key, 'device_dose_check_' || kind as rule,
+           'device_dose_check' as family, 'protocol_review' as action, true as threshold_verified,
+           'ctdivol' as quantity, value, threshold, 'mGy' as unit,
+           'the device''s own configured CTDIvol ' || kind || ' value (TID 10015) in its dose report'
+               as source, null as protocol_family,
            'largest CTDIvol of one acquisition against the value the device recorded for it' as method
-    from ct_acquisitions as a
-    join (
-        select event_uid, 'notification' as kind, max(dose_check_notification_ctdivol_mgy) as threshold
-        from raw_ct_event where dose_check_notification_ctdivol_mgy > 0 group by event_uid
-        union all
-        select event_uid, 'alert', max(dose_check_alert_ctdivol_mgy)
-        from raw_ct_event where dose_check_alert_ctdivol_mgy > 0 group by event_uid
-    ) as v on v.event_uid = a.event_uid
-    group by all
+    from device_check
+    where value > threshold
+),
+ct as (
+    select s.study_key, s.patient_key, s.device_key, s.site, s.exam_type, s.study_date, f.rule,
+           f.family, f.action, f.threshold_verified, f.quantity, f.value, f.threshold, f.unit,
+           f.source,
+           case when f.family = 'ct_dose_check_notification'
+                then 'largest CTDIvol of one acquisition, ' || f.protocol_family || ' protocol, '
+                     || case when s.patient_age_years is null then 'age unknown: adult value'
+                             when s.patient_age_years >= $adult_min_age then 'adult'
+                             else 'paediatric, age ' || round(s.patient_age_years, 1) || ' y' end
+                else f.method end as method
+    from ct_fired as f
+    join study_dose as s using (study_key, device_key)
+    where s.study_date >= $date_from and s.study_date < $date_to
 )
 select study_key, patient_key, device_key, site, exam_type, study_date, rule, family, action,
        quantity, value, threshold, unit, source, method, threshold_verified
 from (
     select * from fluoro where value >= threshold
-    union all by name select * from ct_events where value > threshold
-    union all by name select * from ct_alert where value > threshold
-    union all by name select * from device_check where value > threshold
+    union all by name select * from ct
 )
 order by study_date, rule, study_key
 

@@ -80,17 +80,23 @@ def test_set_based_drift_of_no_history_is_empty():
 def _accumulated_sql(acquisitions: list[tuple[str, float, float | None, float | None]]):
     con = duckdb.connect()
     events = pd.DataFrame(
-        [{"study_key": s, "device_key": "dev", "event_type": "spiral", "ctdivol_mgy": c,
+        [{"event_uid": f"e{n}", "study_key": s, "device_key": "dev", "event_type": "spiral",
+          "ctdivol_mgy": c, "ctdi_phantom": "body_32cm", "acquisition_protocol": None,
           "top_z_scanning_length_mm": a, "bottom_z_scanning_length_mm": b}
-         for s, c, a, b in acquisitions])
+         for n, (s, c, a, b) in enumerate(acquisitions)])
     studies = pd.DataFrame({"study_key": sorted({s for s, *_ in acquisitions}), "device_key": "dev",
-                            "study_date": dt.date(2026, 1, 10)})
+                            "study_date": dt.date(2026, 1, 10), "exam_type": "ct_chest",
+                            "patient_age_years": 50.0})
     con.register("events_frame", events)
     con.register("studies_frame", studies)
     con.execute("create table irradiation_event as select * from events_frame")
     con.execute("create table study_dose as select * from studies_frame")
+    con.execute("create table exam_stratum_basis (exam_type varchar, region varchar)")
+    con.execute("create table raw_ct_event (event_uid varchar, "
+                "dose_check_notification_ctdivol_mgy double, dose_check_alert_ctdivol_mgy double)")
+    con.execute(sql("create_ct_acquisition"), {
+        "date_from": dt.date(2026, 1, 1), "date_to": dt.date(2026, 2, 1)})
     con.execute(sql("create_ct_accumulated"), {
-        "date_from": dt.date(2026, 1, 1), "date_to": dt.date(2026, 2, 1),
         "method_by_position": METHOD_BY_POSITION, "method_upper_bound": METHOD_UPPER_BOUND})
     return {s: (v, m) for s, v, m in con.execute(
         "select study_key, accumulated_ctdivol_mgy, method from ct_accumulated").fetchall()}
